@@ -1,0 +1,13 @@
+"""aquitardmap: screening maps of clay aquitard integrity from borehole logs.
+
+Screening-level estimates only: see ``aquitardmap.outputs.CAUTION``.
+"""
+
+from importlib.metadata import PackageNotFoundError, version
+
+try:
+    __version__ = version("aquitardmap")
+except PackageNotFoundError:  # running from a source tree that is not installed
+    __version__ = "0.0.0+source"
+
+__all__ = ["__version__"]

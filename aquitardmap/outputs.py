@@ -1,0 +1,35 @@
+"""The one place that knows the names of the output files of a run.
+
+Every writer and reader (pipeline, map, report, tests) takes names from here.
+"""
+
+from __future__ import annotations
+
+AQUITARD_THICKNESS = "aquitard_thickness_m.tif"
+AQUITARD_THICKNESS_SD = "aquitard_thickness_sd_m.tif"
+COVER_THICKNESS = "cover_thickness_m.tif"
+KV = "kv_m_s.tif"
+LEAKANCE = "leakance_per_s.tif"
+RESISTANCE = "resistance_yr.tif"
+TRAVEL_TIME = "travel_time_yr.tif"
+P_THIN = "p_thin_approx.tif"
+ZONES = "zones.gpkg"
+ZONES_LAYER = "zones"
+BOREHOLES = "boreholes.gpkg"
+BOREHOLES_LAYER = "boreholes"
+MAP = "map.html"
+SUMMARY = "summary.json"
+
+
+def unit_thickness(code: str) -> str:
+    """File name of the thickness grid of unit ``code``: ``thickness_<code>_m.tif``."""
+    return f"thickness_{code}_m.tif"
+
+
+CAUTION = (
+    "Screening-level estimate only. The grids are interpolated between boreholes and carry "
+    "interpolation uncertainty that is largest far from holes; a window in the clay can hide "
+    "between boreholes. This is not a substitute for site-specific investigation. Defer to "
+    "local regulations, source-protection rules and licensed professionals (professional "
+    "geoscientists or engineers)."
+)

@@ -1,0 +1,436 @@
+"""Read and validate ``project.toml``: the stack of units, the grid and the thresholds.
+
+The configuration is data only: it is parsed with :mod:`tomllib`, never evaluated, and every
+path it names is resolved inside the project folder. A path that escapes the folder is
+refused.
+
+Example ``project.toml`` (every key below ``[project]``, ``[grid]`` and ``[[units]]`` has a
+documented default)::
+
+    [project]
+    name = "Ostrel Valley"
+    crs = "EPSG:32632"
+
+    [grid]
+    cell_size_m = 50
+
+    [[units]]
+    code = "SAND"
+    name = "Surficial sand"
+    role = "cover"
+    effective_porosity = 0.30
+    k_default_m_s = 1e-4
+    k_method = "hazen"
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from pyproj import CRS
+from pyproj.exceptions import CRSError
+
+from aquitardmap.errors import ProblemList
+
+PROJECT_FILE = "project.toml"
+ROLES = ("cover", "aquitard", "aquifer")
+K_METHODS = ("hazen", "kozeny_carman", "none")
+VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
+
+#: Default input file names inside a project folder (``[files]`` may override them).
+DEFAULT_FILES = {
+    "collars": "collars.csv",
+    "intervals": "intervals.csv",
+    "samples": "samples.csv",
+    "dem": "dem.tif",
+    "boundary": "boundary.geojson",
+}
+REQUIRED_FILES = ("collars", "intervals")
+
+
+@dataclass(frozen=True)
+class Unit:
+    """One unit of the stack.
+
+    Attributes:
+        code: short code used in ``intervals.csv``.
+        name: plain-language name shown to readers.
+        role: ``"cover"``, ``"aquitard"`` or ``"aquifer"``.
+        effective_porosity: fraction of the bulk volume that carries advective flow (-).
+        k_default_m_s: hydraulic conductivity used when the unit has no lab or grain-size
+            value (m/s).
+        k_method: grain-size method used for samples of this unit (``"hazen"``,
+            ``"kozeny_carman"`` or ``"none"``); lab values always come first.
+        anisotropy_kh_kv: ratio of horizontal to vertical conductivity; vertical K is the
+            unit's K divided by this ratio (-).
+    """
+
+    code: str
+    name: str
+    role: str
+    effective_porosity: float = 0.30
+    k_default_m_s: float = 1e-9
+    k_method: str = "none"
+    anisotropy_kh_kv: float = 1.0
+
+
+@dataclass(frozen=True)
+class KrigingSettings:
+    """Variogram and neighbourhood choices for every kriged surface."""
+
+    variogram_model: str = "spherical"
+    n_lags: int = 12
+    max_lag_fraction: float = 0.5
+    max_neighbours: int = 64
+
+
+@dataclass(frozen=True)
+class HydraulicSettings:
+    """Physical constants of the screening.
+
+    Attributes:
+        groundwater_temp_c: groundwater temperature for water viscosity and density (°C).
+        vertical_gradient: downward hydraulic gradient across the column (-); 1.0 is the
+            unit-gradient screening assumption.
+        hazen_c: Hazen's empirical coefficient C in ``K[cm/s] = C * D10[cm]^2``.
+    """
+
+    groundwater_temp_c: float = 10.0
+    vertical_gradient: float = 1.0
+    hazen_c: float = 100.0
+
+
+@dataclass(frozen=True)
+class ScreeningThresholds:
+    """Thresholds that turn grids into zones.
+
+    Attributes:
+        window_thickness_m: total aquitard thickness below which the clay is taken as absent.
+        thin_thickness_m: total aquitard thickness below which the clay is flagged as thin.
+        fast_travel_time_yr: advective travel time below which a cell is a fast path.
+    """
+
+    window_thickness_m: float = 1.0
+    thin_thickness_m: float = 5.0
+    fast_travel_time_yr: float = 50.0
+
+
+@dataclass(frozen=True)
+class QASettings:
+    """Borehole quality checks.
+
+    Attributes:
+        dem_misfit_m: a collar whose elevation differs from the DEM by more than this is
+            flagged (m).
+        exclude_boreholes: borehole ids left out of every computation (still listed).
+    """
+
+    dem_misfit_m: float = 3.0
+    exclude_boreholes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Project:
+    """A validated project: where its files are and every setting of the run."""
+
+    root: Path
+    name: str
+    crs: CRS
+    cell_size_m: float
+    buffer_m: float
+    units: tuple[Unit, ...]
+    kriging: KrigingSettings = field(default_factory=KrigingSettings)
+    hydraulics: HydraulicSettings = field(default_factory=HydraulicSettings)
+    screening: ScreeningThresholds = field(default_factory=ScreeningThresholds)
+    qa: QASettings = field(default_factory=QASettings)
+    files: dict[str, Path] = field(default_factory=dict)
+    config_sha256: str = ""
+
+    @property
+    def unit_codes(self) -> tuple[str, ...]:
+        return tuple(u.code for u in self.units)
+
+    def unit(self, code: str) -> Unit:
+        for u in self.units:
+            if u.code == code:
+                return u
+        raise KeyError(code)
+
+    @property
+    def column_units(self) -> tuple[Unit, ...]:
+        """Units above the protected aquifer (the first unit whose role is ``aquifer``)."""
+        out = []
+        for u in self.units:
+            if u.role == "aquifer":
+                break
+            out.append(u)
+        return tuple(out)
+
+    @property
+    def aquitard_units(self) -> tuple[Unit, ...]:
+        """Aquitard units above the protected aquifer, top to bottom."""
+        return tuple(u for u in self.column_units if u.role == "aquitard")
+
+    @property
+    def aquifer_unit(self) -> Unit:
+        return next(u for u in self.units if u.role == "aquifer")
+
+    def file(self, key: str) -> Path | None:
+        """Path of input ``key`` (``collars``, ``dem``, ...) or None if it is absent."""
+        p = self.files.get(key)
+        return p if p is not None and p.exists() else None
+
+
+def _locate(text: str, key: str, table: str | None = None, index: int = 0) -> tuple[int, int]:
+    """Best-effort (line, column) of ``key = ...`` inside ``[table]`` or the ``index``-th
+    ``[[table]]``; (0, 0) when it cannot be found. Used only to point messages."""
+    lines = text.splitlines()
+    start = 0
+    if table is not None:
+        header = re.compile(r"^\s*\[\[\s*" + re.escape(table) + r"\s*\]\]|^\s*\[\s*"
+                            + re.escape(table) + r"\s*\]")
+        seen = -1
+        start = None
+        for i, ln in enumerate(lines):
+            if header.match(ln):
+                seen += 1
+                if seen == index:
+                    start = i
+                    break
+        if start is None:
+            return (0, 0)
+        if key == "":
+            return (start + 1, 1)
+    pat = re.compile(r"^(\s*)" + re.escape(key) + r"\s*=")
+    for i in range(start + (1 if table else 0), len(lines)):
+        if table is not None and re.match(r"^\s*\[", lines[i]):
+            break
+        m = pat.match(lines[i])
+        if m:
+            return (i + 1, len(m.group(1)) + 1)
+    return (start + 1, 1) if table is not None else (0, 0)
+
+
+def _number(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], key: str,
+            default: float, table: str, index: int = 0, *, low: float | None = None,
+            high: float | None = None, low_open: bool = False) -> float:
+    value = tbl.get(key, default)
+    line, col = _locate(text, key, table, index)
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        problems.add(path, line, col, f"[{table}] {key} must be a number, got {value!r}")
+        return float(default)
+    value = float(value)
+    if low is not None and (value <= low if low_open else value < low):
+        rel = ">" if low_open else ">="
+        problems.add(path, line, col, f"[{table}] {key} must be {rel} {low}, got {value}")
+    if high is not None and value > high:
+        problems.add(path, line, col, f"[{table}] {key} must be <= {high}, got {value}")
+    return value
+
+
+def _resolve_inside(problems: ProblemList, path: Path, text: str, root: Path, key: str,
+                    name: str) -> Path:
+    """Resolve ``name`` inside ``root``; a path that escapes the folder is refused."""
+    candidate = (root / name).resolve()
+    try:
+        candidate.relative_to(root.resolve())
+    except ValueError:
+        line, col = _locate(text, key, "files")
+        problems.add(path, line, col,
+                     f"[files] {key} = {name!r} points outside the project folder; refused")
+    return candidate
+
+
+def read_project(folder: str | Path) -> Project:
+    """Read ``folder/project.toml`` and return a validated :class:`Project`.
+
+    Raises:
+        InputError: listing every problem found, each with file, line and column.
+    """
+    root = Path(folder)
+    path = root / PROJECT_FILE
+    problems = ProblemList()
+    if not root.is_dir():
+        problems.add(str(root), 0, 0, "project folder not found")
+        problems.raise_if_any()
+    if not path.is_file():
+        problems.add(path, 0, 0, "project.toml not found in the project folder")
+        problems.raise_if_any()
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        problems.add(path, line, 0, "file is not valid UTF-8 text")
+        problems.raise_if_any()
+    try:
+        cfg = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        m = re.search(r"line (\d+), column (\d+)", str(exc))
+        line, col = (int(m.group(1)), int(m.group(2))) if m else (0, 0)
+        problems.add(path, line, col, f"not valid TOML: {str(exc).split(' (at')[0]}")
+        problems.raise_if_any()
+
+    known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files"}
+    for key in cfg:
+        if key not in known:
+            line, col = _locate(text, "", key)
+            if (line, col) == (0, 0):
+                line, col = _locate(text, key)
+            problems.add(path, line, col, f"unknown section or key {key!r}; "
+                         f"expected one of {', '.join(sorted(known))}")
+
+    proj = cfg.get("project", {})
+    name = proj.get("name")
+    if not isinstance(name, str) or not name.strip():
+        line, col = _locate(text, "name", "project")
+        problems.add(path, line, col, "[project] name is required (a non-empty string)")
+        name = ""
+    crs_value = proj.get("crs")
+    crs = CRS.from_epsg(3857)
+    line, col = _locate(text, "crs", "project")
+    if crs_value is None:
+        problems.add(path, line, col, "[project] crs is required, e.g. crs = \"EPSG:32632\"")
+    else:
+        try:
+            crs = CRS.from_user_input(crs_value)
+            unit = crs.axis_info[0].unit_name if crs.axis_info else ""
+            if not crs.is_projected or unit not in ("metre", "meter"):
+                problems.add(path, line, col, f"[project] crs {crs_value!r} must be a projected "
+                             f"CRS in metres (got {crs.name}, axis unit {unit or 'unknown'})")
+        except CRSError:
+            problems.add(path, line, col, f"[project] crs {crs_value!r} is not a known CRS; "
+                         "give an EPSG code such as \"EPSG:32632\"")
+
+    grid = cfg.get("grid", {})
+    if "cell_size_m" not in grid:
+        line, col = _locate(text, "", "grid")
+        problems.add(path, line, col, "[grid] cell_size_m is required")
+    cell = _number(problems, path, text, grid, "cell_size_m", 50.0, "grid", low=0,
+                   low_open=True)
+    buffer_m = _number(problems, path, text, grid, "buffer_m", 250.0, "grid", low=0)
+
+    units_cfg = cfg.get("units", [])
+    units: list[Unit] = []
+    if not isinstance(units_cfg, list) or not units_cfg:
+        problems.add(path, 0, 0, "at least one [[units]] table is required (the stack, top "
+                     "to bottom)")
+        units_cfg = []
+    seen_codes: set[str] = set()
+    for i, u in enumerate(units_cfg):
+        if not isinstance(u, dict):
+            continue
+        code = u.get("code")
+        lc = _locate(text, "code", "units", i)
+        if not isinstance(code, str) or not re.fullmatch(r"[A-Za-z0-9_]{1,24}", code or ""):
+            problems.add(path, *lc, f"unit {i + 1}: code must be 1-24 letters, digits or "
+                         f"underscores, got {code!r}")
+            code = f"unit{i + 1}"
+        elif code in seen_codes:
+            problems.add(path, *lc, f"unit code {code!r} appears twice")
+        seen_codes.add(code)
+        uname = u.get("name", code)
+        role = u.get("role")
+        if role not in ROLES:
+            problems.add(path, *_locate(text, "role", "units", i),
+                         f"unit {code}: role must be one of {', '.join(ROLES)}, got {role!r}")
+            role = "cover"
+        k_method = u.get("k_method", "none")
+        if k_method not in K_METHODS:
+            problems.add(path, *_locate(text, "k_method", "units", i),
+                         f"unit {code}: k_method must be one of {', '.join(K_METHODS)}, "
+                         f"got {k_method!r}")
+            k_method = "none"
+        por = _number(problems, path, text, u, "effective_porosity", 0.30, "units", i,
+                      low=0, low_open=True, high=1.0)
+        kdef = _number(problems, path, text, u, "k_default_m_s", 1e-9, "units", i, low=0,
+                       low_open=True, high=1.0)
+        aniso = _number(problems, path, text, u, "anisotropy_kh_kv", 1.0, "units", i,
+                        low=0, low_open=True)
+        units.append(Unit(code, str(uname), role, por, kdef, k_method, aniso))
+    roles = [u.role for u in units]
+    if units and "aquifer" not in roles:
+        problems.add(path, 0, 0, "the stack needs a unit with role = \"aquifer\" (the "
+                     "aquifer to protect)")
+    elif units:
+        above = roles[: roles.index("aquifer")]
+        if "aquitard" not in above:
+            problems.add(path, 0, 0, "the stack needs at least one unit with role = "
+                         "\"aquitard\" above the first aquifer")
+
+    kr = cfg.get("kriging", {})
+    model = kr.get("variogram_model", "spherical")
+    if model not in VARIOGRAM_MODELS:
+        problems.add(path, *_locate(text, "variogram_model", "kriging"),
+                     f"[kriging] variogram_model must be one of {', '.join(VARIOGRAM_MODELS)}")
+        model = "spherical"
+    kriging = KrigingSettings(
+        variogram_model=model,
+        n_lags=int(_number(problems, path, text, kr, "n_lags", 12, "kriging", low=3, high=100)),
+        max_lag_fraction=_number(problems, path, text, kr, "max_lag_fraction", 0.5, "kriging",
+                                 low=0.05, high=1.0),
+        max_neighbours=int(_number(problems, path, text, kr, "max_neighbours", 64, "kriging",
+                                   low=4, high=5000)),
+    )
+    hy = cfg.get("hydraulics", {})
+    hydraulics = HydraulicSettings(
+        groundwater_temp_c=_number(problems, path, text, hy, "groundwater_temp_c", 10.0,
+                                   "hydraulics", low=0.0, high=100.0),
+        vertical_gradient=_number(problems, path, text, hy, "vertical_gradient", 1.0,
+                                  "hydraulics", low=0, low_open=True, high=100.0),
+        hazen_c=_number(problems, path, text, hy, "hazen_c", 100.0, "hydraulics", low=0,
+                        low_open=True, high=1000.0),
+    )
+    sc = cfg.get("screening", {})
+    screening = ScreeningThresholds(
+        window_thickness_m=_number(problems, path, text, sc, "window_thickness_m", 1.0,
+                                   "screening", low=0),
+        thin_thickness_m=_number(problems, path, text, sc, "thin_thickness_m", 5.0,
+                                 "screening", low=0),
+        fast_travel_time_yr=_number(problems, path, text, sc, "fast_travel_time_yr", 50.0,
+                                    "screening", low=0, low_open=True),
+    )
+    if screening.thin_thickness_m < screening.window_thickness_m:
+        problems.add(path, *_locate(text, "thin_thickness_m", "screening"),
+                     "[screening] thin_thickness_m must be >= window_thickness_m")
+    q = cfg.get("qa", {})
+    excl = q.get("exclude_boreholes", [])
+    if not isinstance(excl, list) or not all(isinstance(e, str | int) for e in excl):
+        problems.add(path, *_locate(text, "exclude_boreholes", "qa"),
+                     "[qa] exclude_boreholes must be a list of borehole ids")
+        excl = []
+    qa = QASettings(
+        dem_misfit_m=_number(problems, path, text, q, "dem_misfit_m", 3.0, "qa", low=0,
+                             low_open=True),
+        exclude_boreholes=tuple(str(e) for e in excl),
+    )
+
+    files_cfg = cfg.get("files", {})
+    files: dict[str, Path] = {}
+    for key, default in DEFAULT_FILES.items():
+        name_ = files_cfg.get(key, default)
+        if not isinstance(name_, str):
+            problems.add(path, *_locate(text, key, "files"), f"[files] {key} must be a path")
+            continue
+        files[key] = _resolve_inside(problems, path, text, root, key, name_)
+    for key in files_cfg:
+        if key not in DEFAULT_FILES:
+            problems.add(path, *_locate(text, key, "files"),
+                         f"[files] unknown key {key!r}; expected one of "
+                         f"{', '.join(DEFAULT_FILES)}")
+    for key in REQUIRED_FILES:
+        if key in files and not files[key].is_file():
+            problems.add(files[key], 0, 0, f"required input file {files[key].name} not found "
+                         "in the project folder")
+
+    problems.raise_if_any()
+    return Project(
+        root=root.resolve(), name=name, crs=crs, cell_size_m=cell, buffer_m=buffer_m,
+        units=tuple(units), kriging=kriging, hydraulics=hydraulics, screening=screening,
+        qa=qa, files=files, config_sha256=hashlib.sha256(raw).hexdigest(),
+    )
