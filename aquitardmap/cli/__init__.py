@@ -1,0 +1,32 @@
+"""Command line: ``aquitardmap run`` and ``aquitardmap check`` (one file per command).
+
+Exit status: 0 success, 2 bad input (every problem listed, nothing written), 1 internal
+error.
+"""
+
+from __future__ import annotations
+
+import click
+
+from aquitardmap import __version__
+from aquitardmap.cli.check import check_command
+from aquitardmap.cli.run import run_command
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="aquitardmap")
+def cli() -> None:
+    """Screen the integrity of clay aquitards from borehole logs.
+
+    Screening-level estimates only: interpolated between boreholes, with uncertainty; not a
+    substitute for site-specific investigation.
+    """
+
+
+cli.add_command(run_command)
+cli.add_command(check_command)
+
+
+def main() -> None:
+    """Entry point of the ``aquitardmap`` console script."""
+    cli()

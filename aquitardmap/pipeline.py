@@ -1,0 +1,437 @@
+"""The whole screening run, stage by stage: logs → surfaces → hydraulics → zones → outputs.
+
+Each stage is a public function a notebook can call in turn; :func:`run` calls them in
+order and writes every output into a temporary folder that replaces ``out_dir`` only when
+all of it is written, so a failed or interrupted run never leaves a half-written result and
+never damages the previous one.
+"""
+
+from __future__ import annotations
+
+import os
+import platform
+import shutil
+import tempfile
+import time
+import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import rasterio
+from pyproj import Transformer
+from shapely.geometry import MultiPoint
+from shapely.ops import unary_union
+
+from aquitardmap import __version__, outputs
+from aquitardmap.conductivity import unit_conductivity
+from aquitardmap.errors import InputError, Problem, ProblemList
+from aquitardmap.grid import Grid, make_grid, write_raster
+from aquitardmap.hydraulics import (
+    SECONDS_PER_YEAR,
+    advective_travel_time_yr,
+    equivalent_kv_m_s,
+    leakance_per_s,
+    series_resistance_s,
+)
+from aquitardmap.logs import Boreholes, column_table, read_boreholes
+from aquitardmap.project import Project, read_project
+from aquitardmap.report import file_sha256, write_summary
+from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+from aquitardmap.surfaces import Surface, krige_column
+from aquitardmap.webmap import write_map
+
+#: Called with (stage description, stage number from 1, number of stages).
+ProgressFn = Callable[[str, int, int], None]
+
+STAGES = (
+    "Reading and checking inputs",
+    "Kriging unit thicknesses",
+    "Computing conductivity and hydraulics",
+    "Drawing flagged zones",
+    "Writing outputs and map",
+)
+
+
+@dataclass
+class Inputs:
+    """Everything read from a project folder, validated, plus the grid it defines."""
+
+    project: Project
+    boreholes: Boreholes
+    columns: pd.DataFrame
+    area: object
+    grid: Grid
+    warnings: list[Problem] = field(default_factory=list)
+
+
+@dataclass
+class Hydraulics:
+    """Per-unit conductivity and the per-cell hydraulic grids."""
+
+    unit_k: pd.DataFrame
+    column_thickness_m: dict[str, np.ndarray]
+    resistance_yr: np.ndarray
+    kv_m_s: np.ndarray
+    leakance_per_s: np.ndarray
+    travel_time_yr: np.ndarray
+
+
+@dataclass
+class RunResult:
+    """What a run produced (in memory) and where it wrote it."""
+
+    out_dir: Path | None
+    inputs: Inputs
+    surfaces: dict[str, Surface]
+    hydraulics: Hydraulics
+    p_thin: np.ndarray
+    zones: gpd.GeoDataFrame
+    boreholes: gpd.GeoDataFrame
+    summary: dict
+
+
+def _read_area(project: Project, columns: pd.DataFrame, problems: ProblemList,
+               notes: list[Problem]):
+    """Study-area polygon in the project CRS: the boundary file, else the collars' convex
+    hull buffered by ``buffer_m``."""
+    path = project.file("boundary")
+    if path is None:
+        hull = MultiPoint(list(zip(columns["x"], columns["y"], strict=True))).convex_hull
+        notes.append(Problem(project.files["boundary"].name, 0, 0,
+                             f"no boundary file: the study area is the boreholes' convex hull "
+                             f"buffered by {project.buffer_m:g} m"))
+        return hull.buffer(project.buffer_m)
+    try:
+        gdf = gpd.read_file(path)
+    except Exception as exc:  # noqa: BLE001 - any reader failure is an input problem
+        problems.add(path, 0, 0, f"cannot read the boundary: {exc}")
+        return None
+    gdf = gdf[gdf.geometry.notna()]
+    gdf = gdf[gdf.geometry.geom_type.isin(["Polygon", "MultiPolygon"])]
+    if gdf.empty:
+        problems.add(path, 0, 0, "the boundary holds no polygon")
+        return None
+    if gdf.crs is None:
+        notes.append(Problem(path.name, 0, 0, "boundary has no CRS; taken as the project CRS"))
+    elif not gdf.crs.equals(project.crs):
+        notes.append(Problem(path.name, 0, 0, f"boundary reprojected from {gdf.crs.to_string()}"
+                             f" to the project CRS {project.crs.to_string()}"))
+        gdf = gdf.to_crs(project.crs)
+    area = unary_union(list(gdf.geometry.make_valid()))
+    if area.is_empty or area.area <= 0:
+        problems.add(path, 0, 0, "the boundary polygon has no area")
+        return None
+    return area
+
+
+def _dem_at_collars(project: Project, columns: pd.DataFrame, problems: ProblemList,
+                    notes: list[Problem]) -> np.ndarray:
+    """Ground elevation from the DEM at each collar (m), NaN where the DEM has no value."""
+    out = np.full(len(columns), np.nan)
+    path = project.file("dem")
+    if path is None:
+        return out
+    try:
+        with rasterio.open(path) as src:
+            x, y = columns["x"].to_numpy(float), columns["y"].to_numpy(float)
+            if src.crs is None:
+                notes.append(Problem(path.name, 0, 0, "DEM has no CRS; taken as the project CRS"))
+            elif not project.crs.equals(src.crs):
+                notes.append(Problem(path.name, 0, 0, f"DEM is in {src.crs.to_string()}; collars "
+                                     "were transformed to it to read elevations"))
+                x, y = Transformer.from_crs(project.crs, src.crs, always_xy=True).transform(x, y)
+            vals = np.array([v[0] for v in src.sample(zip(x, y, strict=True), masked=True)
+                             ], dtype=object)
+            for i, v in enumerate(vals):
+                if v is not np.ma.masked and np.isfinite(float(v)):
+                    out[i] = float(v)
+    except rasterio.errors.RasterioIOError as exc:
+        problems.add(path, 0, 0, f"cannot read the DEM: {exc}")
+    n_out = int(np.isnan(out).sum())
+    if n_out:
+        notes.append(Problem(path.name, 0, 0, f"{n_out} collar(s) fall outside the DEM or on "
+                             "its nodata cells; their elevations were not checked"))
+    return out
+
+
+def load_inputs(project_dir: str | Path) -> Inputs:
+    """Stage 1: read ``project.toml``, the logs, the boundary and the DEM; define the grid.
+
+    Adds to the column table the DEM elevation at each collar, the misfit, and a QA flag
+    when the misfit exceeds ``[qa] dem_misfit_m``.
+
+    Raises:
+        InputError: every problem found, each with file, line and column.
+    """
+    project = read_project(project_dir)
+    boreholes = read_boreholes(project)
+    columns = column_table(boreholes, project)
+    problems = ProblemList()
+    notes: list[Problem] = list(boreholes.warnings)
+    used = columns[~columns["excluded"]]
+    unknown = set(project.qa.exclude_boreholes) - set(columns.index)
+    if unknown:
+        notes.append(Problem("project.toml", 0, 0, "[qa] exclude_boreholes names ids not in "
+                             f"collars.csv: {', '.join(sorted(unknown))}"))
+    if len(used) == 0:
+        problems.add(project.files["collars"], 0, 0, "no borehole left to use")
+    if int((used["status_aquitard"] == "full").sum()) < 3:
+        problems.add(project.files["intervals"], 0, 0,
+                     "fewer than 3 boreholes reach the aquifer: the total aquitard thickness "
+                     "cannot be mapped (holes that stop in the clay only give lower bounds)")
+    problems.raise_if_any()
+
+    area = _read_area(project, used, problems, notes)
+    dem = _dem_at_collars(project, columns, problems, notes)
+    problems.raise_if_any()
+    columns = columns.copy()
+    columns["dem_elev_m"] = dem
+    columns["dem_misfit_m"] = columns["ground_elev_m"] - dem
+    bad = columns["dem_misfit_m"].abs() > project.qa.dem_misfit_m
+    for bid in columns.index[bad]:
+        flag = (f"collar elevation differs from the DEM by "
+                f"{columns.at[bid, 'dem_misfit_m']:+.1f} m")
+        prev = columns.at[bid, "qa_flags"]
+        columns.at[bid, "qa_flags"] = f"{prev}; {flag}" if prev else flag
+    grid = make_grid(area, project.cell_size_m, project.crs)
+    if not grid.mask.any():
+        problems.add(project.files["boundary"], 0, 0, "the study area holds no grid cell: "
+                     "cell_size_m is larger than the area")
+        problems.raise_if_any()
+    row, _ = grid.rowcol(used["x"].to_numpy(), used["y"].to_numpy())
+    n_outside = int((row < 0).sum())
+    if n_outside:
+        notes.append(Problem(project.files["collars"].name, 0, 0, f"{n_outside} borehole(s) lie "
+                             "outside the grid; they still inform the kriging near the edge"))
+    return Inputs(project, boreholes, columns, area, grid, notes)
+
+
+def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
+    """Stage 2: krige the total aquitard thickness and each unit above the aquifer."""
+    p = inputs.project
+    used = inputs.columns[~inputs.columns["excluded"]]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return krige_column(used, [u.code for u in p.column_units],
+                            [u.code for u in p.aquitard_units], inputs.grid, p.kriging)
+
+
+def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:
+    """Stage 3: K per unit (lab, else grain size, else default), then per-cell series
+    resistance, equivalent vertical K, leakance and advective travel time through every unit
+    above the aquifer (cover included, as in the AVI)."""
+    p = inputs.project
+    units = p.column_units
+    unit_k = unit_conductivity(inputs.boreholes.samples, p.units, p.hydraulics)
+    thick = np.stack([surfaces[u.code].thickness_m for u in units])
+    kv = np.array([unit_k.at[u.code, "kv_m_s"] for u in units], dtype=float)
+    por = np.array([u.effective_porosity for u in units], dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        c_s = series_resistance_s(thick, kv)
+        return Hydraulics(
+            unit_k=unit_k,
+            column_thickness_m={u.code: surfaces[u.code].thickness_m for u in units},
+            resistance_yr=c_s / SECONDS_PER_YEAR,
+            kv_m_s=equivalent_kv_m_s(thick, kv),
+            leakance_per_s=leakance_per_s(thick, kv),
+            travel_time_yr=advective_travel_time_yr(thick, kv, por,
+                                                    p.hydraulics.vertical_gradient),
+        )
+
+
+def borehole_table(inputs: Inputs) -> gpd.GeoDataFrame:
+    """Every borehole with its derived values, as points in the project CRS."""
+    c = inputs.columns.copy()
+    th = inputs.project.screening
+    c["proves_window"] = (c["status_aquitard"] == "full") & (
+        c["aquitard_thickness_m"] < th.window_thickness_m)
+    c["proves_thin"] = (c["status_aquitard"] == "full") & (
+        c["aquitard_thickness_m"] < th.thin_thickness_m)
+    c = c.reset_index().rename(columns={"index": "borehole_id"})
+    return gpd.GeoDataFrame(c, geometry=gpd.points_from_xy(c["x"], c["y"]),
+                            crs=inputs.project.crs)
+
+
+def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
+           boreholes: gpd.GeoDataFrame) -> tuple[np.ndarray, gpd.GeoDataFrame]:
+    """Stage 4: approximate P(thin) grid and the window / thin / fast zones."""
+    total = surfaces["aquitard"]
+    th = inputs.project.screening
+    p_thin = probability_below(th.thin_thickness_m, total.thickness_m, total.sd_m)
+    used = boreholes[~boreholes["excluded"]]
+    zones = zones_from_grids(total.thickness_m, total.sd_m, hyd.travel_time_yr, p_thin,
+                             inputs.grid, th, used)
+    return p_thin, zones
+
+
+def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
+             zones: gpd.GeoDataFrame, boreholes: gpd.GeoDataFrame, started: datetime,
+             t0: float) -> dict:
+    p = inputs.project
+    g = inputs.grid
+    used = boreholes[~boreholes["excluded"]]
+    inputs_hash = {"project.toml": {"sha256": p.config_sha256}}
+    for key in p.files:
+        f = p.file(key)
+        if f is not None:
+            inputs_hash[f.name] = {"sha256": file_sha256(f)}
+    units = []
+    for u in p.units:
+        row = {"code": u.code, "name": u.name, "role": u.role,
+               "effective_porosity": u.effective_porosity, "k_default_m_s": u.k_default_m_s,
+               "k_method": u.k_method, "anisotropy_kh_kv": u.anisotropy_kh_kv}
+        if u.code in hyd.unit_k.index:
+            row.update({k: v for k, v in hyd.unit_k.loc[u.code].items()})
+        units.append(row)
+    inside = g.mask
+    total = surfaces["aquitard"].thickness_m
+    return {
+        "caution": outputs.CAUTION,
+        "project": {"name": p.name, "crs": p.crs.to_string(), "folder": str(p.root)},
+        "run": {"started_utc": started.isoformat(timespec="seconds"),
+                "run_time_s": round(time.perf_counter() - t0, 2),
+                "package_version": __version__, "python": platform.python_version()},
+        "inputs": inputs_hash,
+        "grid": {"cell_size_m": g.cell_size_m, "width": g.width, "height": g.height,
+                 "bounds_m": list(g.bounds), "cells_in_study_area": int(inside.sum()),
+                 "study_area_km2": float(inside.sum() * g.cell_area_m2 / 1e6)},
+        "counts": {
+            "boreholes": int(len(boreholes)),
+            "excluded": int(boreholes["excluded"].sum()),
+            "reached_aquifer": int(used["reached_aquifer"].sum()),
+            "aquitard_lower_bound_holes": int((used["status_aquitard"] == "lower_bound").sum()),
+            "proves_window": int(used["proves_window"].sum()),
+            "qa_flagged": int((used["qa_flags"] != "").sum()),
+            "samples": int(len(inputs.boreholes.samples)),
+        },
+        "units": units,
+        "thresholds": {"window_thickness_m": p.screening.window_thickness_m,
+                       "thin_thickness_m": p.screening.thin_thickness_m,
+                       "fast_travel_time_yr": p.screening.fast_travel_time_yr},
+        "hydraulics": {"groundwater_temp_c": p.hydraulics.groundwater_temp_c,
+                       "vertical_gradient": p.hydraulics.vertical_gradient,
+                       "gradient_assumption": "uniform vertical gradient across the column"
+                       + (" (unit gradient)" if p.hydraulics.vertical_gradient == 1.0 else ""),
+                       "hazen_c": p.hydraulics.hazen_c},
+        "kriging": {"variogram_model": p.kriging.variogram_model,
+                    "n_lags": p.kriging.n_lags, "max_neighbours": p.kriging.max_neighbours},
+        "surfaces": {
+            name: {"variogram": s.variogram.as_dict(), "n_full": s.n_full,
+                   "n_lower_bounds": s.n_lower_bounds, "n_bounds_active": s.n_bounds_active,
+                   "cross_validation": s.cv}
+            for name, s in surfaces.items()
+        },
+        "aquitard_thickness_m": {"min": float(np.nanmin(total)), "mean": float(np.nanmean(total)),
+                                 "max": float(np.nanmax(total))},
+        "zones": {"area_m2_by_kind": zone_areas_m2(zones),
+                  "count_by_kind": {k: int((zones["kind"] == k).sum())
+                                    for k in ("window", "thin", "fast")}},
+        "warnings": [str(w) for w in inputs.warnings],
+    }
+
+
+@contextmanager
+def staged_output_dir(out_dir: str | Path) -> Iterator[Path]:
+    """Yield a fresh temporary folder next to ``out_dir``; on success it replaces
+    ``out_dir`` in two renames, on any failure it is removed and ``out_dir`` is untouched.
+
+    An existing ``out_dir`` is replaced only if it is empty or holds a previous run (a
+    ``summary.json``); anything else is refused, so a mistyped path cannot wipe a folder.
+    """
+    out = Path(out_dir).resolve()
+    if out.exists() and (not out.is_dir() or (any(out.iterdir())
+                                             and not (out / outputs.SUMMARY).exists())):
+        raise InputError([Problem(str(out), 0, 0, "output folder exists and does not hold a "
+                                  "previous aquitardmap run; choose another --out")])
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
+    try:
+        yield tmp
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    old = None
+    if out.exists():
+        old = out.parent / f".{out.name}.old-{os.getpid()}-{time.time_ns()}"
+        os.replace(out, old)
+    os.replace(tmp, out)
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
+                  hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
+                  boreholes: gpd.GeoDataFrame, summary: dict) -> list[str]:
+    """Stage 5: write every output file into ``folder``; returns the file names."""
+    g = inputs.grid
+    p = inputs.project
+    total = surfaces["aquitard"]
+    grids = {
+        outputs.AQUITARD_THICKNESS: (total.thickness_m, "total aquitard thickness", "m"),
+        outputs.AQUITARD_THICKNESS_SD: (total.sd_m, "kriging SD of total aquitard thickness",
+                                        "m"),
+        outputs.COVER_THICKNESS: (sum(surfaces[u.code].thickness_m for u in p.column_units
+                                      if u.role == "cover") + 0.0 * total.thickness_m,
+                                  "cover thickness above the aquitard", "m"),
+        outputs.KV: (hyd.kv_m_s, "equivalent vertical K of the column", "m/s"),
+        outputs.LEAKANCE: (hyd.leakance_per_s, "leakance of the column", "1/s"),
+        outputs.RESISTANCE: (hyd.resistance_yr, "vertical hydraulic resistance", "years"),
+        outputs.TRAVEL_TIME: (hyd.travel_time_yr, "advective vertical travel time", "years"),
+        outputs.P_THIN: (p_thin, "approx. probability total aquitard is thin", "1"),
+    }
+    for u in p.aquitard_units:
+        grids[outputs.unit_thickness(u.code)] = (surfaces[u.code].thickness_m,
+                                                 f"thickness of {u.name}", "m")
+    for name, (arr, desc, units) in grids.items():
+        write_raster(folder / name, arr, g, description=desc, units=units)
+    zones.to_file(folder / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
+    bh = boreholes.copy()
+    for col in bh.columns:
+        if bh[col].dtype == object and col != "geometry":
+            bh[col] = bh[col].astype(str)
+    bh.to_file(folder / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
+    names = sorted([*grids, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP])
+    summary["outputs"] = names
+    write_summary(folder / outputs.SUMMARY, summary)
+    write_map(folder)
+    return names
+
+
+def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
+        progress: ProgressFn | None = None) -> RunResult:
+    """Run the whole screening on a project folder and write every output to ``out_dir``.
+
+    With ``out_dir=None`` nothing is written (the result is returned in memory only).
+
+    Raises:
+        InputError: when inputs are unusable (nothing is written).
+    """
+    def step(i: int) -> None:
+        if progress is not None:
+            progress(STAGES[i], i + 1, len(STAGES))
+
+    started = datetime.now(UTC)
+    t0 = time.perf_counter()
+    step(0)
+    inputs = load_inputs(project_dir)
+    step(1)
+    surfaces = build_surfaces(inputs)
+    step(2)
+    hyd = compute_hydraulics(inputs, surfaces)
+    step(3)
+    boreholes = borehole_table(inputs)
+    p_thin, zones = screen(inputs, surfaces, hyd, boreholes)
+    summary = _summary(inputs, surfaces, hyd, zones, boreholes, started, t0)
+    written = None
+    if out_dir is not None:
+        step(4)
+        with staged_output_dir(out_dir) as tmp:
+            write_outputs(tmp, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)
+        written = Path(out_dir).resolve()
+    return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)

@@ -1,0 +1,53 @@
+"""Zones from grids."""
+
+import numpy as np
+import pytest
+from pyproj import CRS
+from scipy.stats import norm
+from shapely.geometry import box
+
+from aquitardmap.grid import make_grid
+from aquitardmap.project import ScreeningThresholds
+from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+
+
+def test_probability_below_is_gaussian_cdf():
+    # Reference: scipy.stats.norm.cdf, P(T < t) = Φ((t − T*)/σ).
+    p = probability_below(5.0, np.array([3.0, 5.0, 9.0, 2.0]), np.array([2.0, 1.0, 2.0, 0.0]))
+    assert p[0] == pytest.approx(norm.cdf(1.0))
+    assert p[1] == pytest.approx(0.5)
+    assert p[2] == pytest.approx(norm.cdf(-2.0))
+    assert p[3] == 1.0
+
+
+def test_window_and_thin_zones_have_the_right_areas():
+    g = make_grid(box(0, 0, 2000, 2000), 50.0, CRS.from_epsg(32632))
+    xs, ys = g.cell_centres()
+    xx, yy = np.meshgrid(xs, ys)
+    r = np.hypot(xx - 1000, yy - 1000)
+    # 0 m inside r < 300 m, 3 m in the ring 300–500 m, 20 m outside.
+    t = np.where(r < 300, 0.0, np.where(r < 500, 3.0, 20.0))
+    sd = np.full(t.shape, 1.0)
+    tt = t * 10.0  # years: fast where thickness < 5 m with a 50-year threshold
+    th = ScreeningThresholds(window_thickness_m=1.0, thin_thickness_m=5.0,
+                             fast_travel_time_yr=50.0)
+    zones = zones_from_grids(t, sd, tt, probability_below(5.0, t, sd), g, th)
+    areas = zone_areas_m2(zones)
+    cell = 50.0 * 50.0
+    assert areas["window"] == pytest.approx((r < 300).sum() * cell)
+    assert areas["thin"] == pytest.approx(((r >= 300) & (r < 500)).sum() * cell)
+    assert areas["fast"] == pytest.approx((r < 500).sum() * cell)
+    # Polygon areas agree with cell counts (the vectorisation loses nothing).
+    for z in zones.itertuples():
+        assert z.geometry.area == pytest.approx(z.area_m2)
+    win = zones[zones.kind == "window"].iloc[0]
+    assert "Clay likely absent" in win.reason and win.mean_p_thin > 0.99
+    assert set(zones.kind) == {"window", "thin", "fast"}
+
+
+def test_no_zone_when_clay_is_thick_everywhere():
+    g = make_grid(box(0, 0, 500, 500), 50.0, CRS.from_epsg(32632))
+    t = np.full((g.height, g.width), 30.0)
+    zones = zones_from_grids(t, t * 0 + 1, t * 100, t * 0, g, ScreeningThresholds())
+    assert len(zones) == 0
+    assert zone_areas_m2(zones) == {"window": 0.0, "thin": 0.0, "fast": 0.0}
