@@ -380,7 +380,7 @@ def read_project(folder: str | Path) -> Project:
     hy = cfg.get("hydraulics", {})
     hydraulics = HydraulicSettings(
         groundwater_temp_c=_number(problems, path, text, hy, "groundwater_temp_c", 10.0,
-                                   "hydraulics", low=0.0, high=100.0),
+                                   "hydraulics", low=0.0, high=40.0),
         vertical_gradient=_number(problems, path, text, hy, "vertical_gradient", 1.0,
                                   "hydraulics", low=0, low_open=True, high=100.0),
         hazen_c=_number(problems, path, text, hy, "hazen_c", 100.0, "hydraulics", low=0,
