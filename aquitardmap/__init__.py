@@ -10,4 +10,15 @@ try:
 except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0.0.0+source"
 
-__all__ = ["__version__"]
+
+from aquitardmap.pipeline import (  # noqa: E402 - needs __version__ above
+    RunResult,
+    build_surfaces,
+    compute_hydraulics,
+    load_inputs,
+    run,
+    screen,
+)
+
+__all__ = ["RunResult", "__version__", "build_surfaces", "compute_hydraulics", "load_inputs",
+           "run", "screen"]

@@ -84,8 +84,8 @@ class KrigingSettings:
     """Variogram and neighbourhood choices for every kriged surface."""
 
     variogram_model: str = "spherical"
-    n_lags: int = 12
-    max_lag_fraction: float = 0.5
+    n_lags: int = 0  # 0: lag width = median nearest-neighbour spacing of the holes
+    max_lag_fraction: float = 0.25
     max_neighbours: int = 64
 
 
@@ -371,8 +371,8 @@ def read_project(folder: str | Path) -> Project:
         model = "spherical"
     kriging = KrigingSettings(
         variogram_model=model,
-        n_lags=int(_number(problems, path, text, kr, "n_lags", 12, "kriging", low=3, high=100)),
-        max_lag_fraction=_number(problems, path, text, kr, "max_lag_fraction", 0.5, "kriging",
+        n_lags=int(_number(problems, path, text, kr, "n_lags", 0, "kriging", low=0, high=100)),
+        max_lag_fraction=_number(problems, path, text, kr, "max_lag_fraction", 0.25, "kriging",
                                  low=0.05, high=1.0),
         max_neighbours=int(_number(problems, path, text, kr, "max_neighbours", 64, "kriging",
                                    low=4, high=5000)),

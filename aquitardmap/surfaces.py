@@ -30,6 +30,7 @@ from aquitardmap.project import KrigingSettings
 from aquitardmap.variogram import (
     ExperimentalVariogram,
     VariogramModel,
+    default_lags,
     experimental_variogram,
     fit_variogram,
 )
@@ -94,7 +95,7 @@ def cross_validate(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
 
 def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                     status: np.ndarray, grid: Grid, settings: KrigingSettings, *,
-                    with_cv: bool = True) -> Surface:
+                    with_cv: bool = True, model: VariogramModel | None = None) -> Surface:
     """Krige one thickness from borehole values whose ``status`` is ``"full"`` or
     ``"lower_bound"`` (others are ignored), honouring lower bounds as described in the
     module docstring.
@@ -106,6 +107,7 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         status: ``"full"``, ``"lower_bound"`` or ``"unknown"`` per hole.
         grid: the target grid.
         settings: variogram model and neighbourhood.
+        model: a variogram to use as given instead of fitting one.
 
     Raises:
         ValueError: when no hole gives a full thickness.
@@ -120,9 +122,12 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
     bx, by, bt = x[lower], y[lower], t[lower]
 
     variance = float(np.var(ft))
-    if fx.size >= MIN_HOLES_FOR_VARIOGRAM:
-        exp = experimental_variogram(fx, fy, ft, n_lags=settings.n_lags,
-                                     max_lag_fraction=settings.max_lag_fraction)
+    if model is not None:
+        exp = ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
+    elif fx.size >= MIN_HOLES_FOR_VARIOGRAM:
+        n_lags, max_lag = default_lags(fx, fy, max_lag_fraction=settings.max_lag_fraction)
+        exp = experimental_variogram(fx, fy, ft, n_lags=settings.n_lags or n_lags,
+                                     max_lag_m=max_lag)
         model = fit_variogram(exp, settings.variogram_model, sample_variance=variance)
     else:
         exp = ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))

@@ -1,0 +1,5 @@
+"""``python -m aquitardmap`` runs the command line."""
+
+from aquitardmap.cli import main
+
+main()
