@@ -56,13 +56,14 @@ def krige_points(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     xt, yt = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     if x.size == 0:
         raise ValueError("no data to krige")
-    if x.size == 1:
+    if x.size == 1 and model.anisotropy_ratio == 1.0:
         return KrigingResult(np.full(xt.size, z[0]),
                              model.gamma(np.hypot(xt - x[0], yt - y[0])) * 2.0)
     ok = OrdinaryKriging(
         x, y, z, variogram_model=model.model,
         variogram_parameters={"psill": model.psill, "range": model.range_m,
                               "nugget": model.nugget},
+        anisotropy_scaling=model.anisotropy_ratio, anisotropy_angle=model.anisotropy_angle_deg,
         exact_values=True, pseudo_inv=True,
     )
     est = np.empty(xt.size)

@@ -36,20 +36,26 @@ class VariogramModel:
         model: ``"spherical"``, ``"exponential"`` or ``"gaussian"``.
         nugget: semivariance at vanishing distance (value units²).
         psill: partial sill, the structured part of the variance (value units²).
-        range_m: practical range (m).
+        range_m: practical range (m), along the major axis when anisotropic.
+        anisotropy_ratio: major range / minor range (≥ 1; 1 = isotropic).
+        anisotropy_angle_deg: direction of the major axis, degrees counter-clockwise from
+            east (the convention of pykrige's ``anisotropy_angle``).
     """
 
     model: str
     nugget: float
     psill: float
     range_m: float
+    anisotropy_ratio: float = 1.0
+    anisotropy_angle_deg: float = 0.0
 
     @property
     def sill(self) -> float:
         return self.nugget + self.psill
 
     def gamma(self, h_m: np.ndarray) -> np.ndarray:
-        """Model semivariance at distances ``h_m`` (m); γ(0) = 0 exactly."""
+        """Model semivariance at (isotropic or already anisotropy-scaled) distances ``h_m``
+        (m); γ(0) = 0 exactly."""
         h = np.asarray(h_m, dtype=float)
         return np.where(h > 0, self.nugget + self.psill * _structure(self.model, h,
                                                                      self.range_m), 0.0)

@@ -1,0 +1,127 @@
+"""End to end on the bundled demo region: the output contract, and skill against its truth.
+
+The truth grids come from the seeded generator (aquitardmap.synthetic), not from the
+pipeline: they are the outside reference here.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import geopandas as gpd
+import numpy as np
+import pytest
+import rasterio
+
+from aquitardmap import outputs
+from aquitardmap.grid import NODATA, read_raster
+
+from conftest import DEMO
+
+AQUITARDS = ("UMC", "LMC", "LAM")
+GRIDS = [outputs.AQUITARD_THICKNESS, outputs.AQUITARD_THICKNESS_SD, outputs.KV,
+         outputs.LEAKANCE, outputs.TRAVEL_TIME, *(outputs.unit_thickness(c) for c in AQUITARDS)]
+
+
+def test_every_contract_output_is_written(demo_run):
+    names = {p.name for p in demo_run.out_dir.iterdir()}
+    for required in [*GRIDS, outputs.ZONES, outputs.BOREHOLES, outputs.MAP, outputs.SUMMARY]:
+        assert required in names
+    # Nothing temporary is left beside the output folder.
+    assert not [p for p in demo_run.out_dir.parent.iterdir() if ".partial-" in p.name]
+
+
+@pytest.mark.parametrize("name", GRIDS)
+def test_grids_are_float32_in_project_crs_with_nodata_outside(demo_run, name):
+    with rasterio.open(demo_run.out_dir / name) as src:
+        assert src.dtypes[0] == "float32"
+        assert src.crs.to_epsg() == 32632
+        assert src.nodata == NODATA
+        arr = src.read(1)
+    mask = demo_run.inputs.grid.mask
+    assert np.all(arr[~mask] == NODATA)
+    inside = arr[mask]
+    assert np.all(np.isfinite(inside)) and np.all(inside != NODATA)
+    if "thickness" in name or name == outputs.TRAVEL_TIME:
+        assert inside.min() >= 0
+
+
+def test_unit_thicknesses_add_up_to_total(demo_run):
+    total, *_ = read_raster(demo_run.out_dir / outputs.AQUITARD_THICKNESS)
+    parts = sum(read_raster(demo_run.out_dir / outputs.unit_thickness(c))[0] for c in AQUITARDS)
+    m = np.isfinite(total)
+    assert np.allclose(parts[m], total[m], atol=1e-3)
+
+
+def test_zones_and_boreholes_tables(demo_run):
+    zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    assert set(zones["kind"]) <= {"window", "thin", "fast"}
+    assert {"window", "thin"} <= set(zones["kind"])
+    assert np.allclose(zones.geometry.area, zones["area_m2"])
+    assert zones["reason"].str.len().min() > 40
+    bh = gpd.read_file(demo_run.out_dir / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER)
+    assert len(bh) == 400
+    gt = bh[bh["borehole_id"].str.startswith("GT-")]
+    assert (gt["status_aquitard"] == "lower_bound").all()
+    assert bh.crs.to_epsg() == 32632
+
+
+def test_every_hole_that_proves_a_window_lies_in_a_window_or_thin_zone(demo_run):
+    zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    bh = gpd.read_file(demo_run.out_dir / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER)
+    proving = bh[bh["proves_window"].astype(bool)]
+    assert len(proving) >= 5
+    area = zones[zones["kind"].isin(["window", "thin"])].union_all()
+    assert proving.within(area).all(), proving.loc[~proving.within(area), "borehole_id"]
+
+
+def test_holes_stopped_in_thick_clay_create_no_thin_zone(demo_run):
+    # A geotechnical hole that went through >= 5 m of clay without reaching the base proves
+    # >= 5 m there: its cell must not be flagged thin or window (DOMAIN §3, common practice).
+    bh = demo_run.boreholes
+    th = demo_run.inputs.project.screening.thin_thickness_m
+    deep = bh[(bh["status_aquitard"] == "lower_bound") & (bh["aquitard_thickness_m"] >= th)]
+    g = demo_run.inputs.grid
+    r, c = g.rowcol(deep["x"].to_numpy(), deep["y"].to_numpy())
+    ok = r >= 0
+    est = demo_run.surfaces["aquitard"].thickness_m[r[ok], c[ok]]
+    assert len(est) > 50
+    assert np.all(est >= th - 1e-6)
+
+
+def test_summary_records_hashes_version_and_caution(demo_run):
+    s = json.loads((demo_run.out_dir / outputs.SUMMARY).read_text())
+    assert s["caution"] == outputs.CAUTION
+    sha = hashlib.sha256((DEMO / "collars.csv").read_bytes()).hexdigest()
+    assert s["inputs"]["collars.csv"]["sha256"] == sha
+    assert s["run"]["package_version"]
+    assert s["counts"]["boreholes"] == 400
+    assert s["surfaces"]["aquitard"]["variogram"]["range_m"] > 0
+    assert set(s["zones"]["area_m2_by_kind"]) == {"window", "thin", "fast"}
+    html = (demo_run.out_dir / outputs.MAP).read_text()
+    assert "not a substitute for site-specific investigation" in html
+
+
+def _skill(estimate: np.ndarray, truth: np.ndarray, threshold_m: float) -> tuple[float, float]:
+    m = np.isfinite(estimate) & np.isfinite(truth)
+    pred, real = estimate[m] < threshold_m, truth[m] < threshold_m
+    tp = float((pred & real).sum())
+    return tp / max(real.sum(), 1), tp / max(pred.sum(), 1)
+
+
+def test_skill_against_the_demo_truth(demo_run):
+    # Reference: the generator's truth grid (demo_region/truth), on the same grid.
+    est = demo_run.surfaces["aquitard"].thickness_m
+    truth, *_ = read_raster(DEMO / "truth" / "aquitard_thickness_m.tif")
+    assert truth.shape == est.shape
+    m = np.isfinite(est) & np.isfinite(truth)
+    rmse = float(np.sqrt(np.mean((est[m] - truth[m]) ** 2)))
+    rec_w, prec_w = _skill(est, truth, 1.0)
+    rec_t, prec_t = _skill(est, truth, 5.0)
+    print(f"demo skill: rmse {rmse:.2f} m; window recall {rec_w:.2f} precision {prec_w:.2f}; "
+          f"thin(<5 m) recall {rec_t:.2f} precision {prec_t:.2f}")
+    # Floors from the measured figures (README), so a regression shows.
+    assert rmse < 5.5
+    assert prec_w >= 0.9 and rec_w >= 0.3
+    assert prec_t >= 0.85 and rec_t >= 0.12
