@@ -43,6 +43,7 @@ from pathlib import Path
 import pandas as pd
 
 from aquitardmap.errors import Problem, ProblemList
+from aquitardmap.materials import match_material
 from aquitardmap.project import DEFAULT_FILES, Project
 
 #: Allowance (m) for ``to_m`` and sample depths beyond ``total_depth_m``: logs and collars
@@ -79,13 +80,15 @@ class Boreholes:
     Attributes:
         collars: index ``borehole_id`` (str); columns ``x``, ``y`` (project CRS, m),
             ``ground_elev_m`` (m), ``total_depth_m`` (m below ground), ``line`` (source line
-            in the collars file). Rows in file order.
+            in the collars file), ``source`` (name of that file, or ``book.xlsx[collars]``).
+            Rows in file order.
         intervals: columns ``borehole_id``, ``from_m``, ``to_m`` (m below ground), ``unit``
-            (stack code), ``line``; sorted by ``borehole_id`` then ``from_m``.
+            (stack code), ``line``, ``material`` (the description in words when the log
+            gave one, else None), ``source``; sorted by ``borehole_id`` then ``from_m``.
         samples: columns ``borehole_id``, ``depth_m`` (m below ground), ``d10_mm``,
             ``d60_mm`` (mm), ``porosity`` (-), ``k_lab_m_s`` (m/s), ``unit`` (code of the
-            interval holding ``depth_m``, None if none), ``line``; blank values are NaN.
-            Empty (with these columns) when there is no samples file.
+            interval holding ``depth_m``, None if none), ``line``, ``source``; blank values
+            are NaN. Empty (with these columns) when there is no samples file.
         warnings: non-fatal findings, each with file, line and column.
     """
 
@@ -99,11 +102,28 @@ class Boreholes:
 # Reading one CSV file into text cells with their line and column.
 
 
+@dataclass(frozen=True)
+class RawTable:
+    """The cells of one input table as text, before any check.
+
+    Attributes:
+        label: what problems name as the file: a file name (``collars.csv``) or a table
+            inside a file (``logs.xlsx[collars]``).
+        records: ``(line, fields)`` with the header record first; ``line`` is what problems
+            report as the line (a CSV's physical line, a sheet's row, a layer's feature id)
+            and field positions are reported as columns (1 = first field).
+    """
+
+    label: str
+    records: list[tuple[int, list[str]]]
+
+
 @dataclass
 class _Table:
-    """Text cells of one CSV file. ``columns`` maps header name to 1-based column."""
+    """Text cells of one table after its header was checked. ``columns`` maps header name
+    to 1-based column; ``path`` is the label problems carry."""
 
-    path: Path
+    path: str
     columns: dict[str, int]
     rows: list[tuple[int, list[str]]]  # (physical line of the record's start, fields)
 
@@ -140,9 +160,14 @@ def _decode(path: Path, raw: bytes, problems: ProblemList) -> str | None:
     return None
 
 
-def _read_table(path: Path, required: Sequence[str], optional: Sequence[str],
-                problems: ProblemList, warnings: ProblemList) -> _Table | None:
-    """Read ``path`` into a :class:`_Table`; None when the file cannot be read at all."""
+def read_csv_cells(path: str | Path, problems: ProblemList) -> RawTable | None:
+    """Read a CSV file (UTF-8, comma-separated, header first) into text cells.
+
+    Problems (unreadable file, bad encoding, empty file, malformed quoting) are added to
+    ``problems`` with file, line and column; returns None when the file cannot be read at
+    all. Lines holding only whitespace or empty fields are skipped.
+    """
+    path = Path(path)
     try:
         raw = path.read_bytes()
     except OSError as exc:
@@ -174,7 +199,22 @@ def _read_table(path: Path, required: Sequence[str], optional: Sequence[str],
     if not records:
         problems.add(path, 0, 0, "file is empty; it needs a header line and data rows")
         return None
+    return RawTable(path.name, records)
 
+
+def _check_header(raw: RawTable, required: Sequence[str], optional: Sequence[str],
+                  problems: ProblemList, warnings: ProblemList,
+                  either: Sequence[str] = ()) -> _Table | None:
+    """Check the header of ``raw`` and the field count of each record.
+
+    ``either`` names columns of which at least one must be present (all are then used).
+    Returns None when a required column is missing or repeated.
+    """
+    path = raw.label
+    records = raw.records
+    if not records:
+        problems.add(path, 0, 0, "table is empty; it needs a header and data rows")
+        return None
     header_line, header = records[0]
     columns: dict[str, int] = {}
     ok = True
@@ -193,6 +233,10 @@ def _read_table(path: Path, required: Sequence[str], optional: Sequence[str],
     for name in missing:
         problems.add(path, header_line, 0, f"missing required column {name!r}; the header "
                      f"must name {', '.join(required)}")
+    if either and not any(c in columns for c in either):
+        missing.append(either[0])
+        problems.add(path, header_line, 0, "missing required column "
+                     + " or ".join(repr(c) for c in either))
     if missing and len(header) == 1:
         for sep, label in ((";", "semicolons"), ("\t", "tabs")):
             if sep in header[0]:
@@ -204,7 +248,7 @@ def _read_table(path: Path, required: Sequence[str], optional: Sequence[str],
         if name not in columns:
             warnings.add(path, header_line, 0,
                          f"column {name!r} is absent; its values are read as blank")
-    used = set(required) | set(optional)
+    used = set(required) | set(optional) | set(either)
     for name, col in columns.items():
         if name not in used:
             warnings.add(path, header_line, col, f"extra column {name!r} is ignored")
@@ -266,6 +310,7 @@ class _Collar:
     ground_elev_m: float
     total_depth_m: float
     id_column: int
+    source: str = ""
 
 
 def _crs_in_metres(project: Project) -> bool:
@@ -273,10 +318,11 @@ def _crs_in_metres(project: Project) -> bool:
     return bool(axes) and axes[0].unit_name in ("metre", "meter")
 
 
-def _read_collars(path: Path, project: Project, problems: ProblemList,
+def _read_collars(raw: RawTable, project: Project, problems: ProblemList,
                   warnings: ProblemList) -> tuple[dict[str, _Collar], set[str]] | None:
     """Valid collars by id, and every id named (valid or not); None if unreadable."""
-    table = _read_table(path, COLLAR_COLUMNS, (), problems, warnings)
+    path = raw.label
+    table = _check_header(raw, COLLAR_COLUMNS, (), problems, warnings)
     if table is None:
         return None
     if not table.rows:
@@ -320,6 +366,8 @@ class _Interval:
     from_m: float
     to_m: float
     unit: str
+    material: str | None = None
+    source: str = ""
 
 
 def _unknown_unit_message(code: str, codes: Sequence[str]) -> str:
@@ -330,27 +378,94 @@ def _unknown_unit_message(code: str, codes: Sequence[str]) -> str:
     return msg
 
 
-def _read_intervals(path: Path, project: Project, collars: dict[str, _Collar] | None,
+def _not_in_collars(bid: str, collars_name: str, stored_ids: frozenset[str]) -> str:
+    msg = f"borehole {bid!r} is not in {collars_name}"
+    if bid in stored_ids:
+        msg += (" (it is in the store; a batch carries whole boreholes: add its collar, "
+                "intervals and samples together, with --replace to change it)")
+    return msg
+
+
+def _interval_unit(table: _Table, problems: ProblemList, line: int, fields: list[str],
+                   project: Project, unmapped: dict[str, list[int]]
+                   ) -> tuple[str | None, str | None, bool]:
+    """(unit code, material text, ok) of one interval row.
+
+    A non-blank ``unit`` wins; else the ``material`` text is mapped by the project's
+    ``[[materials]]`` rules. A description no rule maps is collected in ``unmapped`` (never
+    guessed) and the row is not ok.
+    """
+    codes = project.unit_codes
+    unit = table.cell(fields, "unit") if "unit" in table.columns else ""
+    material = table.cell(fields, "material") if "material" in table.columns else ""
+    material = " ".join(material.split()) or None
+    if unit:
+        if unit not in codes:
+            problems.add(table.path, line, table.columns["unit"],
+                         _unknown_unit_message(unit, codes))
+            return None, material, False
+        return unit, material, True
+    if material is None:
+        if "material" in table.columns and "unit" in table.columns:
+            problems.add(table.path, line, table.columns["unit"],
+                         "unit and material are both blank")
+        elif "unit" in table.columns:
+            problems.add(table.path, line, table.columns["unit"], "unit is blank")
+        else:
+            problems.add(table.path, line, table.columns["material"], "material is blank")
+        return None, None, False
+    code = match_material(material, project.materials)
+    if code is None:
+        unmapped.setdefault(material.lower(), []).append(line)
+        return None, material, False
+    return code, material, True
+
+
+def _report_unmapped(table: _Table, unmapped: dict[str, list[int]], rows: list,
+                     project: Project, problems: ProblemList) -> None:
+    """One problem per distinct unmapped description, at its first line, with its count."""
+    col = table.columns["material"]
+    if unmapped and not project.materials:
+        problems.add(table.path, 0, col, "intervals describe materials in words but "
+                     "project.toml has no [[materials]] rules to map them to unit codes")
+    text = {}
+    for _line, fields in rows:
+        m = " ".join(table.cell(fields, "material").split())
+        text.setdefault(m.lower(), m)
+    for key, lines in sorted(unmapped.items(), key=lambda kv: (-len(kv[1]), kv[0])):
+        n = len(lines)
+        shown = ", ".join(str(ln) for ln in lines[:5]) + (", ..." if n > 5 else "")
+        problems.add(table.path, lines[0], col,
+                     f"material {text.get(key, key)!r} matches no [[materials]] rule: "
+                     f"{n} interval{'s' if n != 1 else ''} (lines {shown}); add a rule "
+                     "mapping it to a unit code (descriptions are never guessed)")
+
+
+def _read_intervals(raw: RawTable, project: Project, collars: dict[str, _Collar] | None,
                     named: set[str] | None, collars_name: str, problems: ProblemList,
-                    warnings: ProblemList) -> tuple[list[_Interval], dict[str, int]] | None:
+                    warnings: ProblemList, stored_ids: frozenset[str] = frozenset()
+                    ) -> tuple[list[_Interval], dict[str, int]] | None:
     """Valid intervals and the header's column numbers; None if unreadable."""
-    table = _read_table(path, INTERVAL_COLUMNS, (), problems, warnings)
+    path = raw.label
+    table = _check_header(raw, INTERVAL_COLUMNS[:3], (), problems, warnings,
+                          either=("unit", "material"))
     if table is None:
         return None
     if not table.rows:
         problems.add(path, 0, 0, "no interval rows below the header")
-    codes = project.unit_codes
     cols = table.columns
     out: list[_Interval] = []
+    unmapped: dict[str, list[int]] = {}
     for line, fields in table.rows:
         bid = _text(table, problems, line, fields, "borehole_id")
         top = _number(table, problems, line, fields, "from_m")
         bottom = _number(table, problems, line, fields, "to_m")
-        unit = _text(table, problems, line, fields, "unit")
-        ok = None not in (bid, top, bottom, unit)
+        unit, material, unit_ok = _interval_unit(table, problems, line, fields, project,
+                                                 unmapped)
+        ok = None not in (bid, top, bottom) and unit_ok
         if bid is not None and named is not None and bid not in named:
             problems.add(path, line, cols["borehole_id"],
-                         f"borehole {bid!r} is not in {collars_name}")
+                         _not_in_collars(bid, collars_name, stored_ids))
             ok = False
         if top is not None and top < 0:
             problems.add(path, line, cols["from_m"], f"from_m must be >= 0, got {top:g}")
@@ -368,11 +483,10 @@ def _read_intervals(path: Path, project: Project, collars: dict[str, _Collar] | 
                          f"to_m ({bottom:g}) is below the total depth of {bid} "
                          f"({collar.total_depth_m:g} m)")
             ok = False
-        if unit is not None and unit not in codes:
-            problems.add(path, line, cols["unit"], _unknown_unit_message(unit, codes))
-            ok = False
         if ok:
-            out.append(_Interval(line, bid, top, bottom, unit))
+            out.append(_Interval(line, bid, top, bottom, unit, material))
+    if unmapped:
+        _report_unmapped(table, unmapped, table.rows, project, problems)
 
     by_hole: dict[str, list[_Interval]] = {}
     for iv in out:
@@ -391,11 +505,13 @@ def _read_intervals(path: Path, project: Project, collars: dict[str, _Collar] | 
     return out, cols
 
 
-def _read_samples(path: Path, collars: dict[str, _Collar] | None, named: set[str] | None,
+def _read_samples(raw: RawTable, collars: dict[str, _Collar] | None, named: set[str] | None,
                   collars_name: str, problems: ProblemList,
-                  warnings: ProblemList) -> list[dict] | None:
+                  warnings: ProblemList, stored_ids: frozenset[str] = frozenset()
+                  ) -> list[dict] | None:
     """Valid sample rows as dicts (blank values NaN); None if unreadable."""
-    table = _read_table(path, SAMPLE_REQUIRED, SAMPLE_VALUES, problems, warnings)
+    path = raw.label
+    table = _check_header(raw, SAMPLE_REQUIRED, SAMPLE_VALUES, problems, warnings)
     if table is None:
         return None
     cols = table.columns
@@ -408,7 +524,7 @@ def _read_samples(path: Path, collars: dict[str, _Collar] | None, named: set[str
         ok = bid is not None and depth is not None and None not in vals.values()
         if bid is not None and named is not None and bid not in named:
             problems.add(path, line, cols["borehole_id"],
-                         f"borehole {bid!r} is not in {collars_name}")
+                         _not_in_collars(bid, collars_name, stored_ids))
             ok = False
         if depth is not None and depth < 0:
             problems.add(path, line, cols["depth_m"], f"depth_m must be >= 0, got {depth:g}")
@@ -520,36 +636,82 @@ def read_boreholes(project: Project) -> Boreholes:
         InputError: when any error is found (warnings are not included).
     """
     problems = ProblemList()
-    warnings = ProblemList()
     collars_path = _path(project, "collars")
     intervals_path = _path(project, "intervals")
     samples_path = project.file("samples")
+    raws: dict[str, RawTable | None] = {}
+    for key, path in (("collars", collars_path), ("intervals", intervals_path)):
+        if project.file(key) is None:
+            problems.add(path, 0, 0, f"required input file {path.name} not found")
+            raws[key] = None
+        else:
+            raws[key] = read_csv_cells(path, problems)
+    raws["samples"] = read_csv_cells(samples_path, problems) if samples_path else None
+    return validate_logs(project, raws["collars"], raws["intervals"], raws["samples"],
+                         problems=problems, collars_name=collars_path.name,
+                         intervals_name=intervals_path.name)
 
-    collar_result = None
-    if project.file("collars") is None:
-        problems.add(collars_path, 0, 0, f"required input file {collars_path.name} not found")
-    else:
-        collar_result = _read_collars(collars_path, project, problems, warnings)
-    collars, named = collar_result if collar_result is not None else (None, None)
 
+def validate_logs(project: Project, collars: RawTable | None, intervals: RawTable | None,
+                  samples: RawTable | None = None, *, problems: ProblemList | None = None,
+                  collars_name: str | None = None, intervals_name: str | None = None,
+                  stored_ids: frozenset[str] = frozenset()) -> Boreholes:
+    """Validate the text cells of collars, intervals and (optional) samples tables.
+
+    The checks are those listed in :func:`read_boreholes`, whatever the tables came from
+    (CSV files, workbook sheets, GeoPackage layers). Intervals may name their unit by code
+    (``unit``) or describe it in words (``material``), mapped by the project's
+    ``[[materials]]`` rules; a description no rule maps is an error, reported once per
+    distinct description with its count.
+
+    Args:
+        collars, intervals, samples: the tables; None for a table that could not be read
+            (its problems are already in ``problems``).
+        problems: problems found earlier (e.g. while reading the files); all are raised
+            together.
+        collars_name, intervals_name: names used in messages (default: the labels).
+        stored_ids: ids already in the project store; only used to explain why an
+            interval or sample naming such an id without its collar is refused.
+
+    Raises:
+        InputError: every problem found.
+    """
+    problems = problems if problems is not None else ProblemList()
+    warnings = ProblemList()
+    collars_name = collars_name or (collars.label if collars else "collars")
+    intervals_name = intervals_name or (intervals.label if intervals else "intervals")
+    collar_result = (_read_collars(collars, project, problems, warnings)
+                     if collars is not None else None)
+    coll, named = collar_result if collar_result is not None else (None, None)
     interval_result = None
-    if project.file("intervals") is None:
-        problems.add(intervals_path, 0, 0,
-                     f"required input file {intervals_path.name} not found")
-    else:
-        interval_result = _read_intervals(intervals_path, project, collars, named,
-                                          collars_path.name, problems, warnings)
-
-    samples = None
-    if samples_path is not None:
-        samples = _read_samples(samples_path, collars, named, collars_path.name, problems,
-                                warnings)
-
+    if intervals is not None:
+        interval_result = _read_intervals(intervals, project, coll, named, collars_name,
+                                          problems, warnings, stored_ids)
+    sample_rows = None
+    if samples is not None:
+        sample_rows = _read_samples(samples, coll, named, collars_name, problems, warnings,
+                                    stored_ids)
     _sort_by_file(problems)
     problems.raise_if_any()
-    assert collars is not None and interval_result is not None  # no problems => both read
-    intervals, icols = interval_result
-    from_col, to_col = icols["from_m"], icols["to_m"]
+    assert coll is not None and interval_result is not None  # no problems => both read
+    ivs, icols = interval_result
+    for c in coll.values():
+        c.source = collars.label
+    for iv in ivs:
+        iv.source = intervals.label
+    for row in sample_rows or []:
+        row["source"] = samples.label
+    return _finish(project, coll, ivs, sample_rows or [], warnings,
+                   {intervals.label: icols}, intervals_name, collars_name)
+
+
+def _finish(project: Project, collars: dict[str, _Collar], intervals: list[_Interval],
+            samples: list[dict], warnings: ProblemList, interval_columns: dict[str, dict],
+            intervals_name: str, collars_name: str) -> Boreholes:
+    """Per-hole warnings (no intervals, gaps, short logs, samples in no interval), the unit
+    of each sample, and the frames."""
+    def col(source: str, name: str) -> int:
+        return interval_columns.get(source, {}).get(name, 0)
 
     by_hole: dict[str, list[_Interval]] = {bid: [] for bid in collars}
     for iv in sorted(intervals, key=lambda iv: (iv.borehole_id, iv.from_m)):
@@ -558,26 +720,27 @@ def read_boreholes(project: Project) -> Boreholes:
     for bid, collar in collars.items():
         ivs = by_hole[bid]
         if not ivs:
-            warnings.add(collars_path, collar.line, collar.id_column,
-                         f"borehole {bid!r} has no intervals in {intervals_path.name}")
+            warnings.add(collar.source, collar.line, collar.id_column,
+                         f"borehole {bid!r} has no intervals in {intervals_name}")
             continue
         for gap in _gaps([(iv.from_m, iv.to_m, iv.line) for iv in ivs]):
-            warnings.add(intervals_path, gap.line, from_col,
+            below = next(iv for iv in ivs if iv.from_m == gap.bottom_m)
+            warnings.add(below.source, gap.line, col(below.source, "from_m"),
                          f"log of {bid} has no interval from {_depth(gap.top_m)} to "
                          f"{_depth(gap.bottom_m)} m")
         end = max(iv.to_m for iv in ivs)
         if end < collar.total_depth_m - TOTAL_DEPTH_TOLERANCE_M:
             last = max(ivs, key=lambda iv: iv.to_m)
-            warnings.add(intervals_path, last.line, to_col,
+            warnings.add(last.source, last.line, col(last.source, "to_m"),
                          f"log of {bid} ends at {_depth(end)} m, above its total depth of "
                          f"{_depth(collar.total_depth_m)} m")
 
     sample_rows = []
-    for row in samples or []:
-        depth_col = row.pop("depth_column")
+    for row in samples:
+        depth_col = row.pop("depth_column", 0)
         unit = _sample_unit(row["depth_m"], by_hole[row["borehole_id"]])
         if unit is None:
-            warnings.add(samples_path, row["line"], depth_col,
+            warnings.add(row["source"], row["line"], depth_col,
                          f"sample of {row['borehole_id']} at {row['depth_m']:g} m lies in no "
                          "logged interval")
         sample_rows.append({**row, "unit": unit})
@@ -586,7 +749,7 @@ def read_boreholes(project: Project) -> Boreholes:
         if bid not in collars:
             warnings.add(project.root / "project.toml", 0, 0,
                          f"[qa] exclude_boreholes names {bid!r}, which is not in "
-                         f"{collars_path.name}")
+                         f"{collars_name}")
     _sort_by_file(warnings)
     return Boreholes(
         collars=_collar_frame(collars),
@@ -594,6 +757,30 @@ def read_boreholes(project: Project) -> Boreholes:
         samples=_sample_frame(sample_rows),
         warnings=tuple(warnings.problems),
     )
+
+
+def boreholes_from_frames(project: Project, collars: pd.DataFrame, intervals: pd.DataFrame,
+                          samples: pd.DataFrame, *, collars_name: str = "collars",
+                          intervals_name: str = "intervals") -> Boreholes:
+    """:class:`Boreholes` from tables that were validated before (e.g. by the store).
+
+    The frames have the columns of :class:`Boreholes` (``collars`` indexed by
+    ``borehole_id``; the samples' ``unit`` is recomputed) including ``source`` and
+    ``line``, which the per-hole warnings (gaps, short logs, samples in no interval) cite.
+    """
+    coll = {str(bid): _Collar(int(r["line"]), float(r["x"]), float(r["y"]),
+                              float(r["ground_elev_m"]), float(r["total_depth_m"]), 0,
+                              str(r["source"]))
+            for bid, r in collars.iterrows()}
+    ivs = [_Interval(int(r.line), str(r.borehole_id), float(r.from_m), float(r.to_m),
+                     str(r.unit), None if pd.isna(r.material) else str(r.material),
+                     str(r.source))
+           for r in intervals.itertuples(index=False)]
+    rows = [{"borehole_id": str(r["borehole_id"]), "depth_m": float(r["depth_m"]),
+             **{k: float(r[k]) for k in SAMPLE_VALUES}, "line": int(r["line"]),
+             "source": str(r["source"])}
+            for r in samples.to_dict("records")]
+    return _finish(project, coll, ivs, rows, ProblemList(), {}, intervals_name, collars_name)
 
 
 def _sort_by_file(problems: ProblemList) -> None:
@@ -612,11 +799,12 @@ def _collar_frame(collars: dict[str, _Collar]) -> pd.DataFrame:
             "ground_elev_m": [c.ground_elev_m for c in collars.values()],
             "total_depth_m": [c.total_depth_m for c in collars.values()],
             "line": [c.line for c in collars.values()],
+            "source": [c.source for c in collars.values()],
         },
         index=pd.Index(list(collars), name="borehole_id", dtype=object),
     )
     return frame.astype({"x": float, "y": float, "ground_elev_m": float,
-                         "total_depth_m": float, "line": int})
+                         "total_depth_m": float, "line": int, "source": object})
 
 
 def _interval_frame(intervals: Iterable[_Interval]) -> pd.DataFrame:
@@ -627,6 +815,8 @@ def _interval_frame(intervals: Iterable[_Interval]) -> pd.DataFrame:
         "to_m": pd.Series([iv.to_m for iv in ivs], dtype=float),
         "unit": pd.Series([iv.unit for iv in ivs], dtype=object),
         "line": pd.Series([iv.line for iv in ivs], dtype=int),
+        "material": pd.Series([iv.material for iv in ivs], dtype=object),
+        "source": pd.Series([iv.source for iv in ivs], dtype=object),
     })
     return frame
 
@@ -640,6 +830,7 @@ def _sample_frame(rows: list[dict]) -> pd.DataFrame:
         data[name] = pd.Series([r[name] for r in rows], dtype=float)
     data["unit"] = pd.Series([r["unit"] for r in rows], dtype=object)
     data["line"] = pd.Series([r["line"] for r in rows], dtype=int)
+    data["source"] = pd.Series([r["source"] for r in rows], dtype=object)
     return pd.DataFrame(data)
 
 
@@ -802,6 +993,7 @@ def _column_names(project: Project) -> list[str]:
 
 
 __all__ = [
-    "FULL", "LOWER_BOUND", "UNKNOWN", "Boreholes", "column_table", "read_boreholes",
+    "FULL", "LOWER_BOUND", "UNKNOWN", "Boreholes", "RawTable", "boreholes_from_frames",
+    "column_table", "read_boreholes", "read_csv_cells", "validate_logs",
     "TOTAL_DEPTH_TOLERANCE_M",
 ]

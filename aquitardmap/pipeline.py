@@ -39,10 +39,11 @@ from aquitardmap.hydraulics import (
     leakance_per_s,
     series_resistance_s,
 )
-from aquitardmap.logs import Boreholes, column_table, read_boreholes
+from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.project import Project, read_project
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+from aquitardmap.store import project_boreholes
 from aquitardmap.surfaces import Surface, krige_column
 from aquitardmap.webmap import write_map
 
@@ -170,7 +171,7 @@ def load_inputs(project_dir: str | Path) -> Inputs:
         InputError: every problem found, each with file, line and column.
     """
     project = read_project(project_dir)
-    boreholes = read_boreholes(project)
+    boreholes = project_boreholes(project)  # the store if there is one, else the CSVs
     columns = column_table(boreholes, project)
     problems = ProblemList()
     notes: list[Problem] = list(boreholes.warnings)

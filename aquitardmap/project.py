@@ -36,6 +36,7 @@ from pyproj import CRS
 from pyproj.exceptions import CRSError
 
 from aquitardmap.errors import ProblemList
+from aquitardmap.materials import MaterialRule
 
 PROJECT_FILE = "project.toml"
 ROLES = ("cover", "aquitard", "aquifer")
@@ -49,6 +50,7 @@ DEFAULT_FILES = {
     "samples": "samples.csv",
     "dem": "dem.tif",
     "boundary": "boundary.geojson",
+    "store": "boreholes_store.gpkg",
 }
 REQUIRED_FILES = ("collars", "intervals")
 
@@ -150,6 +152,7 @@ class Project:
     qa: QASettings = field(default_factory=QASettings)
     files: dict[str, Path] = field(default_factory=dict)
     config_sha256: str = ""
+    materials: tuple[MaterialRule, ...] = ()
 
     @property
     def unit_codes(self) -> tuple[str, ...]:
@@ -246,6 +249,55 @@ def _resolve_inside(problems: ProblemList, path: Path, text: str, root: Path, ke
     return candidate
 
 
+def _read_materials(problems: ProblemList, path: Path, text: str, cfg: Any,
+                    codes: set[str]) -> tuple[MaterialRule, ...]:
+    """The ordered ``[[materials]]`` rules (see :mod:`aquitardmap.materials`)."""
+    if not isinstance(cfg, list):
+        problems.add(path, *_locate(text, "", "materials"),
+                     "materials must be a list of [[materials]] tables")
+        return ()
+    rules = []
+    for i, r in enumerate(cfg):
+        where = _locate(text, "", "materials", i)
+        if not isinstance(r, dict):
+            problems.add(path, *where, f"materials rule {i + 1} must be a table")
+            continue
+        for key in r:
+            if key not in ("unit", "words", "pattern"):
+                problems.add(path, *_locate(text, key, "materials", i),
+                             f"materials rule {i + 1}: unknown key {key!r}; expected unit, "
+                             "words, pattern")
+        unit = r.get("unit")
+        if not isinstance(unit, str) or unit not in codes:
+            problems.add(path, *_locate(text, "unit", "materials", i),
+                         f"materials rule {i + 1}: unit must be a unit code of the stack "
+                         f"({', '.join(sorted(codes))}), got {unit!r}")
+            continue
+        words = r.get("words", [])
+        if isinstance(words, str):
+            words = [words]
+        if not isinstance(words, list) or not all(isinstance(w, str) and w.strip()
+                                                  for w in words):
+            problems.add(path, *_locate(text, "words", "materials", i),
+                         f"materials rule {i + 1}: words must be a list of non-empty strings")
+            continue
+        pattern = r.get("pattern", "")
+        if not isinstance(pattern, str):
+            problems.add(path, *_locate(text, "pattern", "materials", i),
+                         f"materials rule {i + 1}: pattern must be a string")
+            continue
+        if not words and not pattern:
+            problems.add(path, *where, f"materials rule {i + 1}: give words or a pattern")
+            continue
+        try:
+            rules.append(MaterialRule(unit, tuple(words), pattern))
+        except re.error as exc:
+            problems.add(path, *_locate(text, "pattern", "materials", i),
+                         f"materials rule {i + 1}: pattern is not a valid regular expression "
+                         f"({exc})")
+    return tuple(rules)
+
+
 def read_project(folder: str | Path) -> Project:
     """Read ``folder/project.toml`` and return a validated :class:`Project`.
 
@@ -276,7 +328,8 @@ def read_project(folder: str | Path) -> Project:
         problems.add(path, line, col, f"not valid TOML: {str(exc).split(' (at')[0]}")
         problems.raise_if_any()
 
-    known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files"}
+    known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files",
+             "materials"}
     for key in cfg:
         if key not in known:
             line, col = _locate(text, "", key)
@@ -423,7 +476,12 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, *_locate(text, key, "files"),
                          f"[files] unknown key {key!r}; expected one of "
                          f"{', '.join(DEFAULT_FILES)}")
+    materials = _read_materials(problems, path, text, cfg.get("materials", []),
+                                {u.code for u in units})
+    store_file = files.get("store")
     for key in REQUIRED_FILES:
+        if store_file is not None and store_file.is_file():
+            break  # the project's boreholes live in its store (aquitardmap.store)
         if key in files and not files[key].is_file():
             problems.add(files[key], 0, 0, f"required input file {files[key].name} not found "
                          "in the project folder")
@@ -433,4 +491,5 @@ def read_project(folder: str | Path) -> Project:
         root=root.resolve(), name=name, crs=crs, cell_size_m=cell, buffer_m=buffer_m,
         units=tuple(units), kriging=kriging, hydraulics=hydraulics, screening=screening,
         qa=qa, files=files, config_sha256=hashlib.sha256(raw).hexdigest(),
+        materials=materials,
     )

@@ -142,11 +142,13 @@ def test_reads_clean_logs_into_typed_tables(tmp_path):
     assert b.collars.loc["BH-A", "total_depth_m"] == 20.0
     assert b.collars.loc["BH-B", "x"] == 500300.0
     assert list(b.collars["line"]) == [2, 3]
-    assert list(b.intervals.columns) == ["borehole_id", "from_m", "to_m", "unit", "line"]
+    assert list(b.intervals.columns) == ["borehole_id", "from_m", "to_m", "unit", "line",
+                                         "material", "source"]
+    assert set(b.intervals["source"]) == {"intervals.csv"}
     assert len(b.intervals) == 6
     assert b.samples.empty
     assert list(b.samples.columns) == ["borehole_id", "depth_m", "d10_mm", "d60_mm",
-                                       "porosity", "k_lab_m_s", "unit", "line"]
+                                       "porosity", "k_lab_m_s", "unit", "line", "source"]
     assert b.warnings == ()
 
 

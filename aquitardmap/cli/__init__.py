@@ -9,8 +9,11 @@ from __future__ import annotations
 import click
 
 from aquitardmap import __version__
+from aquitardmap.cli.add import add_command
 from aquitardmap.cli.check import check_command
+from aquitardmap.cli.history import history_command
 from aquitardmap.cli.run import run_command
+from aquitardmap.cli.undo import undo_command
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -25,6 +28,9 @@ def cli() -> None:
 
 cli.add_command(run_command)
 cli.add_command(check_command)
+cli.add_command(add_command)
+cli.add_command(history_command)
+cli.add_command(undo_command)
 
 
 def main() -> None:
