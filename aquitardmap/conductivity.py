@@ -1,9 +1,10 @@
 """Hydraulic conductivity of each unit: lab values first, then grain size, then a default.
 
 Every sample gets a conductivity from its lab test when there is one; otherwise from the
-grain-size method chosen for its unit (Hazen or Kozeny–Carman) when the sample lies inside
-that method's range; otherwise none. A unit's conductivity is the geometric mean of its
-usable samples, lab values preferred; a unit with none falls back to its configured default.
+grain-size method chosen for its unit (Hazen, Kozeny–Carman, Slichter, Terzaghi or Beyer)
+when the sample lies inside that method's range; otherwise none. A unit's conductivity is
+the geometric mean of its usable samples, lab values preferred; a unit with none falls back
+to its configured default.
 Every value says where it came from.
 
 Water properties use published correlations valid from 0 to 40 °C:
@@ -26,7 +27,9 @@ import numpy as np
 import numpy.typing as npt
 import pandas as pd
 
+from aquitardmap.errors import Problem
 from aquitardmap.project import HydraulicSettings, Unit
+from aquitardmap.units import M_PER_MM, M_S_PER_CM_S
 
 #: Standard acceleration of gravity (m/s²), the conventional value of the 3rd CGPM (1901).
 STANDARD_GRAVITY_M_S2 = 9.80665
@@ -48,14 +51,41 @@ HAZEN_MAX_CU = 5.0
 #: may leave the laminar (Darcy) regime the equation assumes.
 KOZENY_CARMAN_D10_RANGE_MM = (0.0063, 2.0)
 
+#: Slichter's range (Vukovic & Soro 1992, *from memory*): 0.01 mm < D10 < 5 mm.
+SLICHTER_D10_RANGE_MM = (0.01, 5.0)
+
+#: Terzaghi's range: the form is given for sands (Vukovic & Soro 1992, *from memory*, no
+#: numeric bounds there); we take a sand-sized D10, 0.063–2 mm (ISO 14688-1 class limits,
+#: *from memory*). Porosity must exceed 0.13, where the porosity function vanishes.
+TERZAGHI_D10_RANGE_MM = (0.063, 2.0)
+TERZAGHI_MIN_POROSITY = 0.13
+#: Terzaghi's coefficient: 10.7e-3 for smooth grains, 6.1e-3 for coarse (irregular) grains
+#: (Vukovic & Soro 1992; Rosas et al. 2014; values *from memory*).
+TERZAGHI_C_RANGE = (6.1e-3, 10.7e-3)
+
+#: Beyer's range (Vukovic & Soro 1992, *from memory*): 0.06 mm < D10 < 0.6 mm and
+#: 1 < Cu = D60/D10 < 20.
+BEYER_D10_RANGE_MM = (0.06, 0.6)
+BEYER_CU_RANGE = (1.0, 20.0)
+
+#: Grain-size methods, in the order their columns appear in the per-sample table.
+GRAIN_SIZE_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer")
+
 #: The values ``k_source`` can take, per sample and per unit.
-SAMPLE_SOURCES = ("lab", "hazen", "kozeny_carman", "")
-UNIT_SOURCES = ("lab", "hazen", "kozeny_carman", "default")
+SAMPLE_SOURCES = ("lab", *GRAIN_SIZE_METHODS, "")
+UNIT_SOURCES = ("lab", *GRAIN_SIZE_METHODS, "default")
+
+#: A lab K (m/s) at or above this in a unit whose role is ``aquitard`` gets a warning: it is
+#: above the range of clays and silty clays (about 1e-12 to 1e-9 m/s for unweathered
+#: marine clay, Freeze & Cherry 1979 Table 2.2, *from memory*) by a factor of 100, the
+#: factor between cm/s and m/s.
+AQUITARD_K_HINT_M_S = 1e-7
 
 SAMPLE_COLUMNS = ("borehole_id", "depth_m", "d10_mm", "d60_mm", "porosity", "k_lab_m_s",
                   "unit")
 
-_METHOD_NAMES = {"hazen": "Hazen", "kozeny_carman": "Kozeny–Carman"}
+_METHOD_NAMES = {"hazen": "Hazen", "kozeny_carman": "Kozeny–Carman", "slichter": "Slichter",
+                 "terzaghi": "Terzaghi", "beyer": "Beyer"}
 
 FloatArray = npt.NDArray[np.float64]
 ArrayLike = npt.ArrayLike
@@ -186,6 +216,112 @@ def kozeny_carman_k_m_s(d_mm: ArrayLike, porosity: ArrayLike, temp_c: ArrayLike)
     return rho * STANDARD_GRAVITY_M_S2 / mu * n**3 / (1.0 - n) ** 2 * d_m**2 / 180.0
 
 
+def kinematic_viscosity_m2_s(temp_c: ArrayLike) -> FloatArray:
+    """Kinematic viscosity of water, ``nu = mu / rho`` (m²/s), 0–40 °C.
+
+    From :func:`water_viscosity_pa_s` and :func:`water_density_kg_m3`.
+    """
+    return water_viscosity_pa_s(temp_c) / water_density_kg_m3(temp_c)
+
+
+def general_form_k_m_s(beta: ArrayLike, d_mm: ArrayLike, temp_c: ArrayLike) -> FloatArray:
+    """Conductivity from the general grain-size form ``K = (g / nu) * beta * d**2`` (m/s).
+
+    The form in which Vukovic & Soro (1992), *Determination of Hydraulic Conductivity of
+    Porous Media from Grain-Size Composition* (Water Resources Publications), and after them
+    Odong (2007, J. American Science 3(3)) and Rosas et al. (2014, Groundwater 52(3):399),
+    write the empirical grain-size formulas: ``g`` gravity, ``nu`` the kinematic viscosity
+    of water at ``temp_c``, ``beta`` the method's dimensionless coefficient times its
+    porosity function, ``d`` the representative grain size (m; here D10).
+
+    Args:
+        beta: dimensionless coefficient of the method (``C * phi(n)``), scalar or array.
+        d_mm: representative grain size (mm).
+        temp_c: water temperature (°C), 0–40.
+
+    Returns:
+        K (m/s); NaN where ``d`` is missing or not positive or ``beta`` is NaN.
+    """
+    d = np.asarray(d_mm, dtype=float)
+    d_m = np.where(d > 0, d, np.nan) * M_PER_MM
+    return STANDARD_GRAVITY_M_S2 / kinematic_viscosity_m2_s(temp_c) * np.asarray(
+        beta, dtype=float) * d_m**2
+
+
+def _porosity(porosity: ArrayLike) -> FloatArray:
+    n = np.asarray(porosity, dtype=float)
+    return np.where((n > 0) & (n < 1), n, np.nan)
+
+
+def slichter_k_m_s(d10_mm: ArrayLike, porosity: ArrayLike, temp_c: ArrayLike) -> FloatArray:
+    """Conductivity from Slichter's formula (m/s).
+
+    Slichter (1899), in the general form of Vukovic & Soro (1992) (see
+    :func:`general_form_k_m_s`): ``beta = 1e-2 * n**3.287`` with ``d = D10`` (coefficient
+    and exponent *from memory*; the same in Odong 2007 and Rosas et al. 2014). Range:
+    :func:`slichter_validity`.
+
+    Args:
+        d10_mm: D10 (mm).
+        porosity: total porosity n (-), 0 < n < 1.
+        temp_c: water temperature (°C), 0–40.
+
+    Returns:
+        K (m/s); NaN where D10 or n is missing or outside its physical range.
+    """
+    n = _porosity(porosity)
+    return general_form_k_m_s(1e-2 * n**3.287, d10_mm, temp_c)
+
+
+def terzaghi_k_m_s(d10_mm: ArrayLike, porosity: ArrayLike, temp_c: ArrayLike,
+                   c: float = 10.7e-3) -> FloatArray:
+    """Conductivity from Terzaghi's formula (m/s).
+
+    Terzaghi (1925), in the general form of Vukovic & Soro (1992) (see
+    :func:`general_form_k_m_s`): ``beta = C * ((n - 0.13) / (1 - n)**(1/3))**2`` with
+    ``d = D10``, ``C`` = 10.7e-3 for smooth grains down to 6.1e-3 for coarse, irregular
+    grains (values *from memory*; also in Odong 2007 and Rosas et al. 2014). Range:
+    :func:`terzaghi_validity`.
+
+    Args:
+        d10_mm: D10 (mm).
+        porosity: total porosity n (-), 0.13 < n < 1.
+        temp_c: water temperature (°C), 0–40.
+        c: Terzaghi's coefficient C (-).
+
+    Returns:
+        K (m/s); NaN where D10 or n is missing or n <= 0.13.
+    """
+    n = _porosity(porosity)
+    n = np.where(n > TERZAGHI_MIN_POROSITY, n, np.nan)
+    beta = c * ((n - TERZAGHI_MIN_POROSITY) / np.cbrt(1.0 - n)) ** 2
+    return general_form_k_m_s(beta, d10_mm, temp_c)
+
+
+def beyer_k_m_s(d10_mm: ArrayLike, d60_mm: ArrayLike, temp_c: ArrayLike) -> FloatArray:
+    """Conductivity from Beyer's formula (m/s).
+
+    Beyer (1964), in the general form of Vukovic & Soro (1992) (see
+    :func:`general_form_k_m_s`): ``beta = 5.2e-4 * log10(500 / Cu)`` with the uniformity
+    coefficient ``Cu = D60 / D10`` and ``d = D10``; no porosity term (coefficient *from
+    memory*, as in Rosas et al. 2014). Range: :func:`beyer_validity`.
+
+    Args:
+        d10_mm: D10 (mm).
+        d60_mm: D60 (mm).
+        temp_c: water temperature (°C), 0–40.
+
+    Returns:
+        K (m/s); NaN where D10 or D60 is missing or not positive.
+    """
+    d10 = np.asarray(d10_mm, dtype=float)
+    d60 = np.asarray(d60_mm, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cu = np.where((d10 > 0) & (d60 > 0), d60 / d10, np.nan)
+        beta = 5.2e-4 * np.log10(500.0 / cu)
+    return general_form_k_m_s(beta, d10, temp_c)
+
+
 def _reasons(shape: tuple[int, ...]) -> npt.NDArray[np.object_]:
     return np.full(shape, "", dtype=object)
 
@@ -259,6 +395,92 @@ def kozeny_carman_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
     return r
 
 
+def _porosity_reasons(r: npt.NDArray[np.object_], n: FloatArray, method: str) -> None:
+    _set(r, ~np.isfinite(n), f"porosity missing: {method} not computable")
+    _set(r, (n <= 0) | (n >= 1), f"porosity not between 0 and 1: {method} not computable")
+
+
+def _d10_reasons(r: npt.NDArray[np.object_], d10: FloatArray, d60: FloatArray,
+                 bounds: tuple[float, float], method: str) -> None:
+    lo, hi = bounds
+    _set(r, ~np.isfinite(d10), "D10 missing")
+    _set(r, d10 <= 0, "D10 not positive")
+    _set(r, d10 < lo, f"D10 below {lo:g} mm (too fine for {method})")
+    _set(r, d10 > hi, f"D10 above {hi:g} mm (too coarse for {method})")
+    _set(r, np.isfinite(d60) & (d60 < d10), "D60 smaller than D10 (grading inconsistent)")
+
+
+def _arrays(d10_mm: ArrayLike, *others: ArrayLike) -> list[FloatArray]:
+    d10 = np.asarray(d10_mm, dtype=float)
+    return [d10, *(np.broadcast_to(np.asarray(o, dtype=float), d10.shape) for o in others)]
+
+
+def slichter_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
+                      porosity: ArrayLike) -> npt.NDArray[np.object_]:
+    """Whether each sample lies in Slichter's range; ``""`` when it does, else the reason.
+
+    Range: :data:`SLICHTER_D10_RANGE_MM` (Vukovic & Soro 1992, *from memory*); porosity
+    must be known (the formula needs it); D60 must not be smaller than D10.
+    """
+    d10, d60, n = _arrays(d10_mm, d60_mm, porosity)
+    r = _reasons(d10.shape)
+    _porosity_reasons(r, n, "Slichter")
+    _d10_reasons(r, d10, d60, SLICHTER_D10_RANGE_MM, "Slichter")
+    return r
+
+
+def terzaghi_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
+                      porosity: ArrayLike) -> npt.NDArray[np.object_]:
+    """Whether each sample lies in Terzaghi's range; ``""`` when it does, else the reason.
+
+    Range: sand-sized D10 (:data:`TERZAGHI_D10_RANGE_MM`) and porosity above 0.13, where the
+    porosity function of the formula vanishes; D60 must not be smaller than D10.
+    """
+    d10, d60, n = _arrays(d10_mm, d60_mm, porosity)
+    r = _reasons(d10.shape)
+    _porosity_reasons(r, n, "Terzaghi")
+    _set(r, n <= TERZAGHI_MIN_POROSITY,
+         f"porosity not above {TERZAGHI_MIN_POROSITY:g}: Terzaghi not computable")
+    _d10_reasons(r, d10, d60, TERZAGHI_D10_RANGE_MM, "Terzaghi")
+    return r
+
+
+def beyer_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.object_]:
+    """Whether each sample lies in Beyer's range; ``""`` when it does, else the reason.
+
+    Range (Vukovic & Soro 1992, *from memory*): 0.06 mm <= D10 <= 0.6 mm and
+    1 <= Cu = D60/D10 <= 20; D60 is required (the formula uses Cu).
+    """
+    d10, d60 = _arrays(d10_mm, d60_mm)
+    r = _reasons(d10.shape)
+    _d10_reasons(r, d10, d60, BEYER_D10_RANGE_MM, "Beyer")
+    _set(r, ~np.isfinite(d60), "D60 missing (Beyer needs the uniformity coefficient)")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cu = d60 / d10
+    lo, hi = BEYER_CU_RANGE
+    _set(r, cu > hi, f"Cu = D60/D10 above {hi:g} (outside Beyer's range)")
+    return r
+
+
+def _method_values(df: pd.DataFrame, settings: HydraulicSettings
+                   ) -> dict[str, tuple[FloatArray, npt.NDArray[np.object_]]]:
+    """K (m/s) and validity reason of every grain-size method for every sample."""
+    d10 = df["d10_mm"].to_numpy()
+    d60 = df["d60_mm"].to_numpy()
+    por = df["porosity"].to_numpy()
+    t = settings.groundwater_temp_c
+    terzaghi_c = getattr(settings, "terzaghi_c", 10.7e-3)
+    return {
+        "hazen": (hazen_k_m_s(d10, settings.hazen_c), hazen_validity(d10, d60)),
+        "kozeny_carman": (kozeny_carman_k_m_s(d10, por, t),
+                          kozeny_carman_validity(d10, d60, por)),
+        "slichter": (slichter_k_m_s(d10, por, t), slichter_validity(d10, d60, por)),
+        "terzaghi": (terzaghi_k_m_s(d10, por, t, terzaghi_c),
+                     terzaghi_validity(d10, d60, por)),
+        "beyer": (beyer_k_m_s(d10, d60, t), beyer_validity(d10, d60)),
+    }
+
+
 def _prepare_samples(samples: pd.DataFrame) -> pd.DataFrame:
     """Columns of ``samples`` as typed columns; an empty table may lack them all."""
     missing = [c for c in SAMPLE_COLUMNS if c not in samples.columns]
@@ -280,35 +502,31 @@ def sample_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
 
     Order of preference for ``k_m_s``: the lab value when present and positive
     (``k_source = "lab"``); else the grain-size method of the sample's unit
-    (``Unit.k_method``) when the sample lies in that method's range (``"hazen"`` or
-    ``"kozeny_carman"``); else none (``k_m_s`` NaN, ``k_source = ""``, ``note`` says why).
-    Both grain-size values are computed wherever they can be, in range or not, so a reader
-    can compare them; only the valid value of the unit's own method is used.
+    (``Unit.k_method``) when the sample lies in that method's range (one of
+    :data:`GRAIN_SIZE_METHODS`); else none (``k_m_s`` NaN, ``k_source = ""``, ``note`` says
+    why). Every grain-size value is computed wherever it can be, in range or not, so a
+    reader can compare them; only the valid value of the unit's own method is used.
 
     Args:
         samples: table with columns ``borehole_id, depth_m, d10_mm, d60_mm, porosity,
             k_lab_m_s, unit`` (``unit`` is the code of the unit the sample falls in, or
             None/NaN when unassigned). An empty table may have no columns.
         units: the stack (``Project.units``).
-        settings: ``groundwater_temp_c`` (for Kozeny–Carman) and ``hazen_c``.
+        settings: ``groundwater_temp_c`` (water properties), ``hazen_c`` and
+            ``terzaghi_c``.
 
     Returns:
-        One row per sample, in input order, with the input columns plus
-        ``k_hazen_m_s``, ``hazen_reason``, ``k_kozeny_carman_m_s``,
-        ``kozeny_carman_reason`` (``""`` when valid), ``k_m_s``, ``k_source`` and ``note``.
+        One row per sample, in input order, with the input columns plus, for every method
+        M of :data:`GRAIN_SIZE_METHODS`, ``k_M_m_s`` and ``M_reason`` (``""`` when the
+        sample is in M's range), then ``k_m_s``, ``k_source`` and ``note``.
     """
     df = _prepare_samples(samples)
     by_code = {u.code: u for u in units}
-    d10 = df["d10_mm"].to_numpy()
-    d60 = df["d60_mm"].to_numpy()
-    por = df["porosity"].to_numpy()
     lab = df["k_lab_m_s"].to_numpy()
 
-    df["k_hazen_m_s"] = hazen_k_m_s(d10, settings.hazen_c)
-    df["hazen_reason"] = pd.Series(hazen_validity(d10, d60), dtype=object)
-    df["k_kozeny_carman_m_s"] = kozeny_carman_k_m_s(d10, por, settings.groundwater_temp_c)
-    df["kozeny_carman_reason"] = pd.Series(kozeny_carman_validity(d10, d60, por),
-                                           dtype=object)
+    for method, (k_method, reason) in _method_values(df, settings).items():
+        df[f"k_{method}_m_s"] = k_method
+        df[f"{method}_reason"] = pd.Series(reason, dtype=object)
 
     k = np.full(len(df), np.nan)
     source = np.full(len(df), "", dtype=object)
@@ -352,7 +570,10 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
     the lab values only (``k_source = "lab"``); else the geometric mean of the in-range
     grain-size values from the unit's ``k_method``; else the unit's ``k_default_m_s``
     (``"default"``). The geometric mean suits a quantity spread over orders of magnitude
-    (common practice). Vertical conductivity is ``kv_m_s = k_m_s / anisotropy_kh_kv``.
+    (common practice). Vertical conductivity is
+    ``kv_m_s = k_m_s / anisotropy_kh_kv * secondary_k_factor``: the anisotropy of the
+    intact material, then the multiplier for secondary permeability (fissures, burrows,
+    root holes, silt partings) that samples do not capture.
 
     Args:
         samples: as for :func:`sample_conductivity`; may be empty (no samples file), in
@@ -365,7 +586,12 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
         ``kv_m_s`` (m/s), ``k_source``, ``n_samples`` (samples in the unit), ``n_used``,
         ``n_out_of_range`` (samples without lab K that the unit's grain-size method could
         not use), ``log10_k_sd`` (sample standard deviation of log10 K of the values used;
-        NaN with fewer than two) and ``note`` (plain language).
+        NaN with fewer than two) and ``note`` (plain language); then
+        ``k_geomean_m_s`` (geometric mean of the values used, NaN when the default is
+        used), ``log10_k_min`` and ``log10_k_max`` (their range), ``anisotropy_kh_kv`` and
+        ``secondary_k_factor`` (the unit's multipliers), and for every grain-size method M
+        ``k_M_geomean_m_s`` and ``n_M_in_range``: the geometric mean of M over the unit's
+        samples inside M's range, whichever method the unit uses, for comparison.
     """
     per_sample = sample_conductivity(samples, units, settings)
     rows = []
@@ -405,26 +631,82 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
                 note = (f"{len(out_of_range)} of {len(rest)} grain-size samples not usable "
                         f"for {method_name} ({_top_reason(out_of_range, unit)}); "
                         "default used")
+        nan = float("nan")
         if len(used):
             logs = np.log10(used)
             k = float(10.0 ** logs.mean())
-            sd = float(np.std(logs, ddof=1)) if len(used) >= 2 else float("nan")
+            sd = float(np.std(logs, ddof=1)) if len(used) >= 2 else nan
+            geo, lo, hi = k, float(logs.min()), float(logs.max())
         else:
-            k, sd = float(unit.k_default_m_s), float("nan")
-        rows.append({
+            k, sd = float(unit.k_default_m_s), nan
+            geo = lo = hi = nan
+        secondary = float(getattr(unit, "secondary_k_factor", 1.0))
+        row = {
             "unit": unit.code,
             "k_m_s": k,
-            "kv_m_s": k / unit.anisotropy_kh_kv,
+            "kv_m_s": k / unit.anisotropy_kh_kv * secondary,
             "k_source": source,
             "n_samples": int(len(s)),
             "n_used": int(len(used)),
             "n_out_of_range": int(len(out_of_range)),
             "log10_k_sd": sd,
             "note": note,
-        })
-    table = pd.DataFrame(rows, columns=["unit", "k_m_s", "kv_m_s", "k_source", "n_samples",
-                                        "n_used", "n_out_of_range", "log10_k_sd", "note"])
+            "k_geomean_m_s": geo,
+            "log10_k_min": lo,
+            "log10_k_max": hi,
+            "anisotropy_kh_kv": float(unit.anisotropy_kh_kv),
+            "secondary_k_factor": secondary,
+        }
+        for method in GRAIN_SIZE_METHODS:
+            ok = s[(s[f"{method}_reason"] == "") & np.isfinite(s[f"k_{method}_m_s"])]
+            vals = ok[f"k_{method}_m_s"].to_numpy(float)
+            row[f"k_{method}_geomean_m_s"] = (float(10.0 ** np.log10(vals).mean())
+                                              if len(vals) else nan)
+            row[f"n_{method}_in_range"] = int(len(vals))
+        rows.append(row)
+    columns = ["unit", "k_m_s", "kv_m_s", "k_source", "n_samples", "n_used",
+               "n_out_of_range", "log10_k_sd", "note", "k_geomean_m_s", "log10_k_min",
+               "log10_k_max", "anisotropy_kh_kv", "secondary_k_factor"]
+    for method in GRAIN_SIZE_METHODS:
+        columns += [f"k_{method}_geomean_m_s", f"n_{method}_in_range"]
+    table = pd.DataFrame(rows, columns=columns)
     return table.set_index("unit")
+
+
+def lab_k_magnitude_warnings(samples: pd.DataFrame, units: Sequence[Unit],
+                             file_name: str, column: int = 0) -> list[Problem]:
+    """Warnings for lab K values that look like cm/s written in the m/s column.
+
+    A lab K at or above :data:`AQUITARD_K_HINT_M_S` in a unit whose role is ``aquitard`` is
+    above the range of clays by the cm/s-to-m/s factor of 100 or more. The value is used as
+    given (nothing is clipped or rescaled); the warning names file, line and column and
+    says what to check.
+
+    Args:
+        samples: the samples table (with ``unit``, ``k_lab_m_s`` and ``line`` columns).
+        units: the stack.
+        file_name: name of the samples file, for the messages.
+        column: column number of ``k_lab_m_s`` in that file (0 when unknown).
+
+    Returns:
+        One :class:`~aquitardmap.errors.Problem` per suspicious sample.
+    """
+    if not len(samples) or "k_lab_m_s" not in samples:
+        return []
+    role = {u.code: u.role for u in units}
+    out = []
+    for row in samples.itertuples(index=False):
+        k = float(row.k_lab_m_s)
+        code = getattr(row, "unit", None)
+        if not (np.isfinite(k) and role.get(code) == "aquitard" and k >= AQUITARD_K_HINT_M_S):
+            continue
+        line = int(getattr(row, "line", 0) or 0)
+        out.append(Problem(file_name, line, column,
+                           f"k_lab_m_s = {k:g} m/s in aquitard unit {code} is above "
+                           f"{AQUITARD_K_HINT_M_S:g} m/s, more than clays reach; if the "
+                           f"laboratory reported cm/s, the value in m/s is {k * M_S_PER_CM_S:g}"
+                           " (1 cm/s = 0.01 m/s). Used as given."))
+    return out
 
 
 def _top_reason(out_of_range: pd.DataFrame, unit: Unit) -> str:

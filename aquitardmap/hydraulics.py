@@ -17,8 +17,12 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
-#: Seconds in a Julian year (365.25 days of 86 400 s), the year used for every ``_yr``.
-SECONDS_PER_YEAR = 365.25 * 86_400.0
+from aquitardmap.units import SECONDS_PER_YEAR
+
+__all__ = ["SECONDS_PER_YEAR", "AVI_CLASSES", "AVI_NO_DATA", "avi_class", "avi_legend",
+           "series_resistance_s", "equivalent_kv_m_s", "leakance_per_s",
+           "advective_travel_time_yr", "remove_from_top_m", "crust_thickness_m",
+           "diffusion_time_yr", "peclet_number", "gradient_from_heads"]
 
 #: Aquifer Vulnerability Index classes: ``(code, lower, upper, label)`` where ``lower`` and
 #: ``upper`` bound log10 of the hydraulic resistance in years (lower bound inclusive) and
@@ -171,3 +175,140 @@ def avi_class(resistance_yr: npt.ArrayLike) -> npt.NDArray[np.int8]:
         log_c = np.log10(np.where(np.isnan(c), 1.0, c))
     cls = (np.searchsorted(bounds, log_c, side="right") + 1).astype(np.int8)
     return np.where(np.isnan(c), np.int8(AVI_NO_DATA), cls).astype(np.int8)
+
+
+def avi_legend() -> list[dict[str, object]]:
+    """The AVI classes as legend rows: ``class``, ``log10_resistance_yr`` (text of the
+    range), ``resistance_yr`` (text), ``vulnerability`` (the published class name).
+
+    Van Stempvoort, Ewert & Wassenaar (1993); bounds *from memory* (see :data:`AVI_CLASSES`).
+    """
+    rows = []
+    for code, lo, hi, label in AVI_CLASSES:
+        if not np.isfinite(lo):
+            rng, yrs = f"< {hi:g}", f"< {10 ** hi:g}"
+        elif not np.isfinite(hi):
+            rng, yrs = f">= {lo:g}", f">= {10 ** lo:g}"
+        else:
+            rng, yrs = f"{lo:g} to < {hi:g}", f"{10 ** lo:g} to < {10 ** hi:g}"
+        rows.append({"class": code, "log10_resistance_yr": rng, "resistance_yr": yrs,
+                     "vulnerability": f"{label} vulnerability"})
+    return rows
+
+
+def remove_from_top_m(thickness_m: npt.ArrayLike, removed_m: npt.ArrayLike) -> FloatArray:
+    """Unit thicknesses after removing ``removed_m`` of material from the top of the column.
+
+    An excavation, pit or landslide scar takes the upper units first: the top unit loses
+    up to its whole thickness, then the next, and so on down (unit order of the column).
+
+    Args:
+        thickness_m: unit thicknesses (m), shape ``(n_units, ...)``, top to bottom.
+        removed_m: depth removed from the top of the column (m), >= 0, broadcastable to the
+            grid shape ``(...)``.
+
+    Returns:
+        Thinned thicknesses (m), same shape as ``thickness_m``.
+    """
+    b = np.asarray(thickness_m, dtype=float)
+    r = np.asarray(removed_m, dtype=float)
+    if np.any(r < 0):
+        raise ValueError("removed_m must be >= 0")
+    above = np.cumsum(b, axis=0) - b          # thickness above the top of each unit
+    taken = np.clip(r - above, 0.0, None)     # depth of the cut below each unit's top
+    return np.where(np.isnan(b), np.nan, np.clip(b - taken, 0.0, None))
+
+
+def crust_thickness_m(thickness_m: npt.ArrayLike, is_aquitard: npt.ArrayLike,
+                      crust_depth_m: float) -> FloatArray:
+    """Part of each unit that lies in the weathered crust at the top of the clay (m).
+
+    The crust is the top ``crust_depth_m`` of the aquitard units, counted down from the top
+    of the uppermost aquitard unit present at the cell (cover units do not count towards
+    its depth); DOMAIN primer §2. A clay thinner than the crust is all crust.
+
+    Args:
+        thickness_m: unit thicknesses (m), shape ``(n_units, ...)``, top to bottom.
+        is_aquitard: whether each unit is an aquitard, shape ``(n_units,)``.
+        crust_depth_m: crust thickness (m), >= 0.
+
+    Returns:
+        Crust thickness in each unit (m), same shape as ``thickness_m``; 0 for cover units.
+    """
+    b, flag = _column(thickness_m, is_aquitard, "is_aquitard")
+    if crust_depth_m < 0:
+        raise ValueError("crust_depth_m must be >= 0")
+    clay = np.where(flag > 0, b, 0.0)
+    above = np.cumsum(clay, axis=0) - clay
+    part = np.clip(crust_depth_m - above, 0.0, None)
+    return np.where(np.isnan(b), np.nan, np.minimum(part, clay))
+
+
+def diffusion_time_yr(thickness_m: npt.ArrayLike, effective_diffusion_m2_s: float
+                      ) -> FloatArray:
+    """Diffusive time scale across a layer, ``t = B² / De`` (years).
+
+    The characteristic time for a solute to diffuse across a thickness ``B`` with effective
+    diffusion coefficient ``De`` (e.g. Crank 1975, *The Mathematics of Diffusion*; DOMAIN
+    primer §4). An order-of-magnitude scale, not an arrival time.
+
+    Args:
+        thickness_m: thickness B (m), any shape, >= 0 or NaN.
+        effective_diffusion_m2_s: De (m²/s), > 0.
+
+    Returns:
+        Time scale (years), same shape.
+    """
+    if not effective_diffusion_m2_s > 0:
+        raise ValueError("effective_diffusion_m2_s must be > 0")
+    b = np.asarray(thickness_m, dtype=float)
+    if np.any(b < 0):
+        raise ValueError("thickness_m must be >= 0 (NaN marks no data)")
+    return b**2 / effective_diffusion_m2_s / SECONDS_PER_YEAR
+
+
+def peclet_number(diffusion_time_yr: npt.ArrayLike, advective_time_yr: npt.ArrayLike
+                  ) -> FloatArray:
+    """Péclet number of a layer, the ratio of its diffusive to its advective time scale.
+
+    For one layer of thickness B crossed at seepage velocity v this is
+    ``(B²/De) / (B/v) = v B / De``, the usual Péclet number (Bear 1972, *Dynamics of Fluids
+    in Porous Media*). Pe > 1: advection governs; Pe < 1: diffusion governs. Where the
+    layer has no thickness the number is undefined (NaN); where there is no downward
+    advection (infinite advective time) it is 0.
+
+    Args:
+        diffusion_time_yr: B²/De of the layer (years).
+        advective_time_yr: advective travel time across the same layer (years).
+
+    Returns:
+        Pe (-), broadcast shape of the inputs.
+    """
+    td = np.asarray(diffusion_time_yr, dtype=float)
+    ta = np.asarray(advective_time_yr, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        pe = td / ta
+    return np.where((td > 0) & (ta > 0), pe, np.nan)
+
+
+def gradient_from_heads(top_head_m: npt.ArrayLike, bottom_head_m: npt.ArrayLike,
+                        column_thickness_m: npt.ArrayLike) -> FloatArray:
+    """Downward vertical hydraulic gradient across the column, ``i = (h_top − h_bot) / B``.
+
+    Darcy's law in one dimension (Freeze & Cherry 1979): the head of the water table above
+    the column minus the head in the aquifer below it, over the column thickness. Positive
+    downward; zero or negative means no downward flow (advective travel time infinite).
+    Undefined (NaN) where the column has no thickness.
+
+    Args:
+        top_head_m: water-table elevation (m).
+        bottom_head_m: hydraulic head in the aquifer (potentiometric surface) (m).
+        column_thickness_m: thickness of the column between them (m).
+
+    Returns:
+        Gradient (-), broadcast shape.
+    """
+    dh = np.asarray(top_head_m, dtype=float) - np.asarray(bottom_head_m, dtype=float)
+    b = np.asarray(column_thickness_m, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(b > 0, dh / b, np.nan)

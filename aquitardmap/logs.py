@@ -52,6 +52,11 @@ TOTAL_DEPTH_TOLERANCE_M = 0.01
 #: Two depths closer than this (m) are the same depth; it only absorbs float rounding.
 SAME_DEPTH_M = 1e-6
 
+#: Largest credible hydraulic conductivity (m/s): the top of the range of clean gravel in
+#: Freeze & Cherry (1979), Table 2.2 (*from memory*). A larger lab value is refused with a
+#: hint about units.
+MAX_K_M_S = 1.0
+
 COLLAR_COLUMNS = ("borehole_id", "x", "y", "ground_elev_m", "total_depth_m")
 INTERVAL_COLUMNS = ("borehole_id", "from_m", "to_m", "unit")
 SAMPLE_REQUIRED = ("borehole_id", "depth_m")
@@ -547,6 +552,13 @@ def _read_samples(raw: RawTable, collars: dict[str, _Collar] | None, named: set[
             if v is not None and not math.isnan(v) and v <= 0:
                 problems.add(path, line, cols[name], f"{name} must be > 0, got {v:g}")
                 ok = False
+        k_lab = vals["k_lab_m_s"]
+        if k_lab is not None and k_lab > MAX_K_M_S:
+            problems.add(path, line, cols["k_lab_m_s"],
+                         f"k_lab_m_s = {k_lab:g} is above {MAX_K_M_S:g} m/s, more than any "
+                         "natural material; is the column in cm/s or m/day? (1 cm/s = 0.01 "
+                         "m/s, 1 m/day = 1.157e-05 m/s)")
+            ok = False
         d10, d60 = vals["d10_mm"], vals["d60_mm"]
         if (d10 is not None and d60 is not None and d10 > 0 and d60 > 0 and d10 > d60):
             problems.add(path, line, cols["d10_mm"],
@@ -625,7 +637,7 @@ def read_boreholes(project: Project) -> Boreholes:
     overlapping intervals in one hole, ``to_m`` or a sample depth more than
     :data:`TOTAL_DEPTH_TOLERANCE_M` below ``total_depth_m``, unknown unit code, sample
     ``depth_m < 0``, porosity outside (0, 1), ``d10_mm``, ``d60_mm`` or ``k_lab_m_s`` <= 0,
-    ``d10_mm > d60_mm``.
+    ``k_lab_m_s`` above :data:`MAX_K_M_S` (with a hint about cm/s), ``d10_mm > d60_mm``.
 
     Warnings (returned in :attr:`Boreholes.warnings`): extra column, absent sample value
     column, a collar with no intervals, an undescribed depth range in a log (including a log
@@ -981,6 +993,32 @@ def column_table(boreholes: Boreholes, project: Project) -> pd.DataFrame:
     frame["excluded"] = frame["excluded"].astype(bool)
     frame["reached_aquifer"] = frame["reached_aquifer"].astype(bool)
     return frame[_column_names(project)]
+
+
+def read_point_values(path: str | Path, value_column: str, problems: ProblemList,
+                      warnings: ProblemList) -> pd.DataFrame:
+    """Read a CSV of points ``x, y, <value_column>`` (project CRS, m; value a number).
+
+    Same reading rules and messages as the borehole tables (UTF-8, header on line 1, every
+    problem with file, line and column added to ``problems``; extra columns warned about).
+
+    Returns:
+        Columns ``x``, ``y``, ``value_column`` and ``line``; only rows without problems.
+    """
+    path = Path(path)
+    cols = ("x", "y", value_column)
+    raw = read_csv_cells(path, problems)
+    table = _check_header(raw, cols, (), problems, warnings) if raw is not None else None
+    rows: list[tuple[float, float, float, int]] = []
+    if table is not None:
+        if not table.rows:
+            problems.add(path, 0, 0, "no rows below the header")
+        for line, fields in table.rows:
+            vals = [_number(table, problems, line, fields, c) for c in cols]
+            if None not in vals:
+                rows.append((*vals, line))
+    return pd.DataFrame(rows, columns=[*cols, "line"]).astype(
+        {"x": float, "y": float, value_column: float, "line": int})
 
 
 def _column_names(project: Project) -> list[str]:

@@ -19,6 +19,15 @@ BOREHOLES = "boreholes.gpkg"
 BOREHOLES_LAYER = "boreholes"
 MAP = "map.html"
 SUMMARY = "summary.json"
+AVI_CLASS = "avi_class.tif"
+DIFFUSION_TIME = "diffusion_time_yr.tif"
+PECLET = "peclet_number.tif"
+PIERCING_DENSITY = "piercing_density_per_km2.tif"
+PIERCING_BOREHOLES = "piercing_boreholes.csv"
+# Written only when the inputs call for them:
+VERTICAL_GRADIENT = "vertical_gradient.tif"               # head inputs given
+HAZARD_REMOVED = "hazard_removed_m.tif"                   # hazards.geojson given
+AQUITARD_THICKNESS_EFFECTIVE = "aquitard_thickness_effective_m.tif"  # hazards or crust cut
 
 
 def unit_thickness(code: str) -> str:

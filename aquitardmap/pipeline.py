@@ -29,17 +29,33 @@ from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
 from aquitardmap import __version__, outputs
-from aquitardmap.conductivity import unit_conductivity
+from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.grid import Grid, make_grid, write_raster
+from aquitardmap.hazards import (
+    annotate_zones,
+    hazard_table,
+    read_hazards,
+    removed_depth_grid_m,
+)
+from aquitardmap.heads import HEAD_KEYS, HeadSurface, read_head_surface
 from aquitardmap.hydraulics import (
+    AVI_CLASSES,
     SECONDS_PER_YEAR,
     advective_travel_time_yr,
+    avi_class,
+    avi_legend,
+    crust_thickness_m,
+    diffusion_time_yr,
     equivalent_kv_m_s,
+    gradient_from_heads,
     leakance_per_s,
+    peclet_number,
+    remove_from_top_m,
     series_resistance_s,
 )
 from aquitardmap.logs import Boreholes, column_table
+from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
 from aquitardmap.project import Project, read_project
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
@@ -69,6 +85,8 @@ class Inputs:
     area: object
     grid: Grid
     warnings: list[Problem] = field(default_factory=list)
+    hazards: gpd.GeoDataFrame | None = None
+    heads: dict[str, HeadSurface] = field(default_factory=dict)
 
 
 @dataclass
@@ -81,6 +99,18 @@ class Hydraulics:
     kv_m_s: np.ndarray
     leakance_per_s: np.ndarray
     travel_time_yr: np.ndarray
+    avi_class: np.ndarray | None = None
+    diffusion_time_yr: np.ndarray | None = None
+    peclet_number: np.ndarray | None = None
+    vertical_gradient: np.ndarray | None = None
+    gradient_source: str = "stated"
+    crust_m: np.ndarray | None = None
+    protective_thickness_m: np.ndarray | None = None
+    hazard_removed_m: np.ndarray | None = None
+    hazard_index: np.ndarray | None = None
+    hazards: list[dict] = field(default_factory=list)
+    piercing_density_per_km2: np.ndarray | None = None
+    piercing: pd.DataFrame | None = None
 
 
 @dataclass
@@ -210,7 +240,24 @@ def load_inputs(project_dir: str | Path) -> Inputs:
     if n_outside:
         notes.append(Problem(project.files["collars"].name, 0, 0, f"{n_outside} borehole(s) lie "
                              "outside the grid; they still inform the kriging near the edge"))
-    return Inputs(project, boreholes, columns, area, grid, notes)
+    samples_file = project.file("samples")
+    notes.extend(lab_k_magnitude_warnings(
+        boreholes.samples, project.units,
+        samples_file.name if samples_file is not None else "samples"))
+    hazards = read_hazards(project.file("hazards"), project.crs, problems, notes)
+    heads = {}
+    for key in HEAD_KEYS:
+        surface = read_head_surface(project.file(key), key, grid, project.kriging, problems,
+                                    notes)
+        if surface is not None:
+            heads[key] = surface
+    if len(heads) == 1:
+        only = next(iter(heads.values()))
+        notes.append(Problem(only.file, 0, 0, f"only the {only.key.replace('_', ' ')} is "
+                             "given; the gradient needs both heads, so the stated "
+                             "vertical_gradient is used"))
+    problems.raise_if_any()
+    return Inputs(project, boreholes, columns, area, grid, notes, hazards, heads)
 
 
 def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
@@ -224,25 +271,96 @@ def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
 
 
 def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:
-    """Stage 3: K per unit (lab, else grain size, else default), then per-cell series
-    resistance, equivalent vertical K, leakance and advective travel time through every unit
-    above the aquifer (cover included, as in the AVI)."""
+    """Stage 3: K per unit (lab, else grain size, else default; times the unit's anisotropy
+    and secondary-permeability multipliers), then per cell, through every unit above the
+    aquifer (cover included, as in the AVI):
+
+    1. the column cut down from the top by the hazards (excavations, pits, scars);
+    2. the weathered crust, the top ``crust_depth_m`` of the remaining clay, with its K
+       raised by ``crust_k_factor`` or left out (``crust_treatment``);
+    3. series resistance, equivalent Kv, leakance, AVI class;
+    4. the vertical gradient from the head inputs when both are given, else the stated one;
+       advective travel time (infinite where the gradient is not downward);
+    5. the diffusion time scale B²/De of the intact clay below the crust and its Péclet
+       number (diffusive over advective time of that clay);
+    6. the density of boreholes piercing the aquitard.
+    """
     p = inputs.project
+    h = p.hydraulics
+    g = inputs.grid
     units = p.column_units
-    unit_k = unit_conductivity(inputs.boreholes.samples, p.units, p.hydraulics)
-    thick = np.stack([surfaces[u.code].thickness_m for u in units])
+    unit_k = unit_conductivity(inputs.boreholes.samples, p.units, h)
+    thick0 = np.stack([surfaces[u.code].thickness_m for u in units])
     kv = np.array([unit_k.at[u.code, "kv_m_s"] for u in units], dtype=float)
     por = np.array([u.effective_porosity for u in units], dtype=float)
+    is_aq = np.array([u.role == "aquitard" for u in units])
+
+    hazards = inputs.hazards
+    removed = index = None
+    hazard_rows: list[dict] = []
+    thick = thick0
+    if hazards is not None and len(hazards):
+        removed, index = removed_depth_grid_m(hazards, g)
+        thick = remove_from_top_m(thick0, np.nan_to_num(removed, nan=0.0))
+        aq_removed = (thick0[is_aq] - thick[is_aq]).sum(axis=0)
+        hazard_rows = hazard_table(hazards, index, aq_removed, g.cell_area_m2)
+
+    crust = crust_thickness_m(thick, is_aq, h.crust_depth_m)
+    intact = thick - crust
+    if h.crust_treatment == "raise_k":
+        layers = np.concatenate([intact, crust])
+        kv_layers = np.concatenate([kv, kv * h.crust_k_factor])
+        por_layers = np.concatenate([por, por])
+        protective = thick[is_aq].sum(axis=0)
+    else:  # "not_protective": the crust is left out of the column
+        layers, kv_layers, por_layers = intact, kv, por
+        protective = intact[is_aq].sum(axis=0)
+
+    stated = h.vertical_gradient
+    gradient = np.where(g.mask, stated, np.nan)
+    source = "stated"
+    if set(HEAD_KEYS) <= set(inputs.heads):
+        from_heads = gradient_from_heads(inputs.heads["water_table"].head_m,
+                                         inputs.heads["aquifer_head"].head_m,
+                                         np.nansum(thick, axis=0))
+        gradient = np.where(np.isfinite(from_heads), from_heads, gradient)
+        source = "heads"
+    downward = gradient > 0
+    safe_i = np.where(downward, gradient, 1.0)
+
     with np.errstate(divide="ignore", invalid="ignore"):
-        c_s = series_resistance_s(thick, kv)
+        c_s = series_resistance_s(layers, kv_layers)
+        travel = advective_travel_time_yr(layers, kv_layers, por_layers, safe_i)
+        travel = np.where(downward | (travel == 0) | np.isnan(travel), travel, np.inf)
+        clay_b = intact[is_aq].sum(axis=0)
+        t_diff = diffusion_time_yr(clay_b, h.effective_diffusion_m2_s)
+        t_adv_clay = advective_travel_time_yr(intact[is_aq], kv[is_aq], por[is_aq], safe_i)
+        t_adv_clay = np.where(downward, t_adv_clay, np.inf)
+        resistance_yr = c_s / SECONDS_PER_YEAR
+        used = inputs.columns
+        density = point_density_per_km2(
+            used.loc[piercing_mask(used), "x"].to_numpy(float),
+            used.loc[piercing_mask(used), "y"].to_numpy(float), g,
+            p.screening.piercing_radius_m)
         return Hydraulics(
             unit_k=unit_k,
-            column_thickness_m={u.code: surfaces[u.code].thickness_m for u in units},
-            resistance_yr=c_s / SECONDS_PER_YEAR,
-            kv_m_s=equivalent_kv_m_s(thick, kv),
-            leakance_per_s=leakance_per_s(thick, kv),
-            travel_time_yr=advective_travel_time_yr(thick, kv, por,
-                                                    p.hydraulics.vertical_gradient),
+            column_thickness_m={u.code: thick[i] for i, u in enumerate(units)},
+            resistance_yr=resistance_yr,
+            kv_m_s=equivalent_kv_m_s(layers, kv_layers),
+            leakance_per_s=leakance_per_s(layers, kv_layers),
+            travel_time_yr=travel,
+            avi_class=avi_class(resistance_yr),
+            diffusion_time_yr=t_diff,
+            peclet_number=peclet_number(t_diff, t_adv_clay),
+            vertical_gradient=gradient,
+            gradient_source=source,
+            crust_m=crust[is_aq].sum(axis=0),
+            protective_thickness_m=protective,
+            hazard_removed_m=removed,
+            hazard_index=index,
+            hazards=hazard_rows,
+            piercing_density_per_km2=density,
+            piercing=piercing_table(used, density, g, p.screening.piercing_flag_per_km2),
         )
 
 
@@ -254,6 +372,7 @@ def borehole_table(inputs: Inputs) -> gpd.GeoDataFrame:
         c["aquitard_thickness_m"] < th.window_thickness_m)
     c["proves_thin"] = (c["status_aquitard"] == "full") & (
         c["aquitard_thickness_m"] < th.thin_thickness_m)
+    c["pierces_aquitard"] = piercing_mask(c)
     c = c.reset_index().rename(columns={"index": "borehole_id"})
     return gpd.GeoDataFrame(c, geometry=gpd.points_from_xy(c["x"], c["y"]),
                             crs=inputs.project.crs)
@@ -264,10 +383,21 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
     """Stage 4: approximate P(thin) grid and the window / thin / fast zones."""
     total = surfaces["aquitard"]
     th = inputs.project.screening
-    p_thin = probability_below(th.thin_thickness_m, total.thickness_m, total.sd_m)
+    thickness = total.thickness_m
+    if hyd.protective_thickness_m is not None:
+        # Cut by hazards (and without the crust when it is not protective); equal to the
+        # kriged total otherwise.
+        thickness = np.where(np.isfinite(total.thickness_m), hyd.protective_thickness_m,
+                             np.nan)
+    p_thin = probability_below(th.thin_thickness_m, thickness, total.sd_m)
     used = boreholes[~boreholes["excluded"]]
-    zones = zones_from_grids(total.thickness_m, total.sd_m, hyd.travel_time_yr, p_thin,
+    zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
                              inputs.grid, th, used)
+    if hyd.gradient_source == "heads" and len(zones):
+        zones["reason"] = zones["reason"].str.replace(
+            "(unit-gradient assumption)", "(gradient from the head inputs)", regex=False)
+    if inputs.hazards is not None and len(inputs.hazards):
+        zones = annotate_zones(zones, inputs.hazards)
     return p_thin, zones
 
 
@@ -286,7 +416,8 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
     for u in p.units:
         row = {"code": u.code, "name": u.name, "role": u.role,
                "effective_porosity": u.effective_porosity, "k_default_m_s": u.k_default_m_s,
-               "k_method": u.k_method, "anisotropy_kh_kv": u.anisotropy_kh_kv}
+               "k_method": u.k_method, "anisotropy_kh_kv": u.anisotropy_kh_kv,
+               "secondary_k_factor": u.secondary_k_factor}
         if u.code in hyd.unit_k.index:
             row.update({k: v for k, v in hyd.unit_k.loc[u.code].items()})
         units.append(row)
@@ -315,11 +446,10 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         "thresholds": {"window_thickness_m": p.screening.window_thickness_m,
                        "thin_thickness_m": p.screening.thin_thickness_m,
                        "fast_travel_time_yr": p.screening.fast_travel_time_yr},
-        "hydraulics": {"groundwater_temp_c": p.hydraulics.groundwater_temp_c,
-                       "vertical_gradient": p.hydraulics.vertical_gradient,
-                       "gradient_assumption": "uniform vertical gradient across the column"
-                       + (" (unit gradient)" if p.hydraulics.vertical_gradient == 1.0 else ""),
-                       "hazen_c": p.hydraulics.hazen_c},
+        "hydraulics": _hydraulics_summary(inputs, hyd),
+        "avi": _avi_summary(hyd, g),
+        "hazards": hyd.hazards,
+        "piercing": _piercing_summary(inputs, hyd),
         "kriging": {"variogram_model": p.kriging.variogram_model,
                     "n_lags": p.kriging.n_lags, "max_neighbours": p.kriging.max_neighbours},
         "surfaces": {
@@ -334,6 +464,101 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                   "count_by_kind": {k: int((zones["kind"] == k).sum())
                                     for k in ("window", "thin", "fast")}},
         "warnings": [str(w) for w in inputs.warnings],
+    }
+
+
+def _stats(values: np.ndarray) -> dict[str, float | None]:
+    """min / median / max of the finite values (None when there are none)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if not v.size:
+        return {"min": None, "median": None, "max": None}
+    return {"min": float(v.min()), "median": float(np.median(v)), "max": float(v.max())}
+
+
+def _hydraulics_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
+    h = inputs.project.hydraulics
+    inside = inputs.grid.mask
+    if hyd.gradient_source == "heads":
+        assumption = ("vertical gradient from the head inputs: (water table - aquifer head) "
+                      f"/ column thickness; the stated {h.vertical_gradient:g} where a head "
+                      "is missing")
+    else:
+        assumption = ("uniform vertical gradient across the column"
+                      + (" (unit gradient)" if h.vertical_gradient == 1.0 else ""))
+    grad = hyd.vertical_gradient if hyd.vertical_gradient is not None else np.array([])
+    with np.errstate(invalid="ignore"):
+        upward = int((inside & (grad <= 0)).sum()) if grad.size else 0
+    pe = hyd.peclet_number if hyd.peclet_number is not None else np.full(inside.shape, np.nan)
+    with np.errstate(invalid="ignore"):
+        diffusion_governs = int((inside & (pe < 1)).sum())
+        advection_governs = int((inside & (pe >= 1)).sum())
+    return {
+        "groundwater_temp_c": h.groundwater_temp_c,
+        "vertical_gradient": h.vertical_gradient,
+        "gradient_assumption": assumption,
+        "gradient_source": hyd.gradient_source,
+        "gradient": _stats(grad[inside]) if grad.size else None,
+        "cells_without_downward_gradient": upward,
+        "heads": {k: v.as_dict() for k, v in inputs.heads.items()},
+        "hazen_c": h.hazen_c,
+        "terzaghi_c": h.terzaghi_c,
+        "weathered_crust": {
+            "depth_m": h.crust_depth_m, "k_factor": h.crust_k_factor,
+            "treatment": h.crust_treatment,
+            "meaning": ("the top crust_depth_m of the clay counts with its vertical K "
+                        "multiplied by k_factor" if h.crust_treatment == "raise_k" else
+                        "the top crust_depth_m of the clay is left out of the column and of "
+                        "the thickness screened for thin zones"),
+            "mean_crust_thickness_m": float(np.nanmean(hyd.crust_m[inside]))
+            if hyd.crust_m is not None else None,
+        },
+        "effective_diffusion_m2_s": h.effective_diffusion_m2_s,
+        "diffusion_time_yr": _stats(hyd.diffusion_time_yr[inside])
+        if hyd.diffusion_time_yr is not None else None,
+        "peclet_number": {
+            **_stats(pe[inside]),
+            "cells_diffusion_governs": diffusion_governs,
+            "cells_advection_governs": advection_governs,
+            "meaning": "Pe = (B^2/De) / advective time through the intact clay; Pe < 1: "
+                       "diffusion governs, Pe > 1: advection governs; undefined (nodata) "
+                       "where no intact clay is left",
+        },
+        "travel_time_yr": _stats(hyd.travel_time_yr[inside]),
+    }
+
+
+def _avi_summary(hyd: Hydraulics, g: Grid) -> dict:
+    """AVI legend with the area of each class."""
+    legend = avi_legend()
+    cls = hyd.avi_class if hyd.avi_class is not None else np.zeros(g.mask.shape, np.int8)
+    for row in legend:
+        n = int((g.mask & (cls == row["class"])).sum())
+        row["cells"] = n
+        row["area_km2"] = n * g.cell_area_m2 / 1e6
+    return {"source": "Van Stempvoort, Ewert & Wassenaar (1993), Canadian Water Resources "
+                      "Journal 18(1): classes of log10 of the hydraulic resistance c in years "
+                      "(bounds from memory)",
+            "file": outputs.AVI_CLASS, "classes": legend, "n_classes": len(AVI_CLASSES)}
+
+
+def _piercing_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
+    sc = inputs.project.screening
+    g = inputs.grid
+    dens = hyd.piercing_density_per_km2
+    table = hyd.piercing if hyd.piercing is not None else pd.DataFrame()
+    flagged = int((g.mask & (np.nan_to_num(dens, nan=-1.0) >= sc.piercing_flag_per_km2)
+                   ).sum()) if dens is not None else 0
+    return {
+        "definition": "holes whose log reaches the aquifer through some clay "
+                      "(status_aquitard full, aquitard thickness > 0), excluded holes not "
+                      "counted",
+        "radius_m": sc.piercing_radius_m, "flag_per_km2": sc.piercing_flag_per_km2,
+        "count": int(len(table)),
+        "max_density_per_km2": float(np.nanmax(dens)) if dens is not None else None,
+        "flagged_cells": flagged, "flagged_area_km2": flagged * g.cell_area_m2 / 1e6,
+        "holes_in_flagged_cells": int(table["in_flagged_cell"].sum()) if len(table) else 0,
+        "borehole_ids": list(table["borehole_id"]) if len(table) else [],
     }
 
 
@@ -389,15 +614,45 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     for u in p.aquitard_units:
         grids[outputs.unit_thickness(u.code)] = (surfaces[u.code].thickness_m,
                                                  f"thickness of {u.name}", "m")
+    optional = {
+        outputs.DIFFUSION_TIME: (hyd.diffusion_time_yr, "diffusion time scale B^2/De of the "
+                                 "intact clay", "years"),
+        outputs.PECLET: (hyd.peclet_number, "Peclet number of the intact clay (diffusive / "
+                         "advective time)", "1"),
+        outputs.PIERCING_DENSITY: (hyd.piercing_density_per_km2, "density of boreholes "
+                                   "piercing the aquitard", "holes/km2"),
+    }
+    if hyd.gradient_source == "heads":
+        optional[outputs.VERTICAL_GRADIENT] = (hyd.vertical_gradient, "downward vertical "
+                                               "hydraulic gradient from heads", "1")
+    if hyd.hazard_removed_m is not None:
+        optional[outputs.HAZARD_REMOVED] = (hyd.hazard_removed_m, "depth removed by "
+                                            "excavations, pits and scars", "m")
+    if hyd.hazard_removed_m is not None or (p.hydraulics.crust_treatment == "not_protective"
+                                            and p.hydraulics.crust_depth_m > 0):
+        optional[outputs.AQUITARD_THICKNESS_EFFECTIVE] = (
+            hyd.protective_thickness_m, "aquitard thickness counted as protective", "m")
+    grids.update({k: v for k, v in optional.items() if v[0] is not None})
+    extra: list[str] = []
     for name, (arr, desc, units) in grids.items():
         write_raster(folder / name, arr, g, description=desc, units=units)
+    if hyd.avi_class is not None:
+        cls = np.where(hyd.avi_class > 0, hyd.avi_class, np.nan).astype(float)
+        write_raster(folder / outputs.AVI_CLASS, cls, g, dtype="uint8", nodata=0,
+                     description="Aquifer Vulnerability Index class (1 extremely high to 5 "
+                     "extremely low vulnerability)", units="class")
+        extra.append(outputs.AVI_CLASS)
+    if hyd.piercing is not None:
+        hyd.piercing.to_csv(folder / outputs.PIERCING_BOREHOLES, index=False,
+                            float_format="%.6g")
+        extra.append(outputs.PIERCING_BOREHOLES)
     zones.to_file(folder / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
     bh = boreholes.copy()
     for col in bh.columns:
         if bh[col].dtype == object and col != "geometry":
             bh[col] = bh[col].astype(str)
     bh.to_file(folder / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
-    names = sorted([*grids, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP])
+    names = sorted([*grids, *extra, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP])
     summary["outputs"] = names
     write_summary(folder / outputs.SUMMARY, summary)
     write_map(folder)

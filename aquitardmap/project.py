@@ -40,7 +40,8 @@ from aquitardmap.materials import MaterialRule
 
 PROJECT_FILE = "project.toml"
 ROLES = ("cover", "aquitard", "aquifer")
-K_METHODS = ("hazen", "kozeny_carman", "none")
+K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
+CRUST_TREATMENTS = ("raise_k", "not_protective")
 VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
 
 #: Default input file names inside a project folder (``[files]`` may override them).
@@ -51,6 +52,9 @@ DEFAULT_FILES = {
     "dem": "dem.tif",
     "boundary": "boundary.geojson",
     "store": "boreholes_store.gpkg",
+    "hazards": "hazards.geojson",
+    "water_table": "water_table.csv",
+    "aquifer_head": "aquifer_head.csv",
 }
 REQUIRED_FILES = ("collars", "intervals")
 
@@ -67,9 +71,13 @@ class Unit:
         k_default_m_s: hydraulic conductivity used when the unit has no lab or grain-size
             value (m/s).
         k_method: grain-size method used for samples of this unit (``"hazen"``,
-            ``"kozeny_carman"`` or ``"none"``); lab values always come first.
+            ``"kozeny_carman"``, ``"slichter"``, ``"terzaghi"``, ``"beyer"`` or ``"none"``);
+            lab values always come first.
         anisotropy_kh_kv: ratio of horizontal to vertical conductivity; vertical K is the
             unit's K divided by this ratio (-).
+        secondary_k_factor: multiplier (>= 1) on vertical K for secondary permeability
+            (fissures, burrows, root holes, silt partings) that samples do not capture (-);
+            1 = none.
     """
 
     code: str
@@ -79,6 +87,7 @@ class Unit:
     k_default_m_s: float = 1e-9
     k_method: str = "none"
     anisotropy_kh_kv: float = 1.0
+    secondary_k_factor: float = 1.0
 
 
 @dataclass(frozen=True)
@@ -100,11 +109,25 @@ class HydraulicSettings:
         vertical_gradient: downward hydraulic gradient across the column (-); 1.0 is the
             unit-gradient screening assumption.
         hazen_c: Hazen's empirical coefficient C in ``K[cm/s] = C * D10[cm]^2``.
+        terzaghi_c: Terzaghi's coefficient C (-), 6.1e-3 (coarse grains) to 10.7e-3
+            (smooth grains).
+        crust_depth_m: thickness of the weathered crust, measured down from the top of the
+            clay (m); 0 turns it off.
+        crust_k_factor: the crust's vertical K is the unit's times this factor (-).
+        crust_treatment: ``"raise_k"`` (the crust counts with the raised K) or
+            ``"not_protective"`` (the crust is left out of the column).
+        effective_diffusion_m2_s: effective diffusion coefficient of a conservative solute
+            in the clay, for the diffusion time scale B²/De (m²/s).
     """
 
     groundwater_temp_c: float = 10.0
     vertical_gradient: float = 1.0
     hazen_c: float = 100.0
+    terzaghi_c: float = 10.7e-3
+    crust_depth_m: float = 3.0
+    crust_k_factor: float = 100.0
+    crust_treatment: str = "raise_k"
+    effective_diffusion_m2_s: float = 5e-10
 
 
 @dataclass(frozen=True)
@@ -115,11 +138,16 @@ class ScreeningThresholds:
         window_thickness_m: total aquitard thickness below which the clay is taken as absent.
         thin_thickness_m: total aquitard thickness below which the clay is flagged as thin.
         fast_travel_time_yr: advective travel time below which a cell is a fast path.
+        piercing_radius_m: search radius of the piercing-borehole density (m).
+        piercing_flag_per_km2: piercing-borehole density at or above which a cell is
+            flagged (holes per km²).
     """
 
     window_thickness_m: float = 1.0
     thin_thickness_m: float = 5.0
     fast_travel_time_yr: float = 50.0
+    piercing_radius_m: float = 500.0
+    piercing_flag_per_km2: float = 10.0
 
 
 @dataclass(frozen=True)
@@ -405,7 +433,9 @@ def read_project(folder: str | Path) -> Project:
                        low_open=True, high=1.0)
         aniso = _number(problems, path, text, u, "anisotropy_kh_kv", 1.0, "units", i,
                         low=0, low_open=True)
-        units.append(Unit(code, str(uname), role, por, kdef, k_method, aniso))
+        secondary = _number(problems, path, text, u, "secondary_k_factor", 1.0, "units", i,
+                            low=1.0)
+        units.append(Unit(code, str(uname), role, por, kdef, k_method, aniso, secondary))
     roles = [u.role for u in units]
     if units and "aquifer" not in roles:
         problems.add(path, 0, 0, "the stack needs a unit with role = \"aquifer\" (the "
@@ -438,7 +468,21 @@ def read_project(folder: str | Path) -> Project:
                                   "hydraulics", low=0, low_open=True, high=100.0),
         hazen_c=_number(problems, path, text, hy, "hazen_c", 100.0, "hydraulics", low=0,
                         low_open=True, high=1000.0),
+        terzaghi_c=_number(problems, path, text, hy, "terzaghi_c", 10.7e-3, "hydraulics",
+                           low=6.1e-3, high=10.7e-3),
+        crust_depth_m=_number(problems, path, text, hy, "crust_depth_m", 3.0, "hydraulics",
+                              low=0.0, high=50.0),
+        crust_k_factor=_number(problems, path, text, hy, "crust_k_factor", 100.0,
+                               "hydraulics", low=1.0, high=1e6),
+        crust_treatment=str(hy.get("crust_treatment", "raise_k")),
+        effective_diffusion_m2_s=_number(problems, path, text, hy,
+                                         "effective_diffusion_m2_s", 5e-10, "hydraulics",
+                                         low=0, low_open=True, high=1e-8),
     )
+    if hydraulics.crust_treatment not in CRUST_TREATMENTS:
+        problems.add(path, *_locate(text, "crust_treatment", "hydraulics"),
+                     f"[hydraulics] crust_treatment must be one of "
+                     f"{', '.join(CRUST_TREATMENTS)}, got {hy.get('crust_treatment')!r}")
     sc = cfg.get("screening", {})
     screening = ScreeningThresholds(
         window_thickness_m=_number(problems, path, text, sc, "window_thickness_m", 1.0,
@@ -447,6 +491,10 @@ def read_project(folder: str | Path) -> Project:
                                  "screening", low=0),
         fast_travel_time_yr=_number(problems, path, text, sc, "fast_travel_time_yr", 50.0,
                                     "screening", low=0, low_open=True),
+        piercing_radius_m=_number(problems, path, text, sc, "piercing_radius_m", 500.0,
+                                  "screening", low=0, low_open=True),
+        piercing_flag_per_km2=_number(problems, path, text, sc, "piercing_flag_per_km2", 10.0,
+                                      "screening", low=0, low_open=True),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),

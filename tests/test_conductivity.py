@@ -301,3 +301,129 @@ def test_samples_table_missing_columns_is_refused():
                                           "d10_mm": [0.1], "d60_mm": [0.2],
                                           "porosity": [0.3], "unit": ["SAND"]}),
                             STACK, SETTINGS)
+
+
+# --- Slichter, Terzaghi, Beyer (general form of Vukovic & Soro 1992) --------------------
+# K = (g/ν) · β · D10², ν = μ/ρ of water. Reference sample: D10 = 0.2 mm, D60 = 0.5 mm
+# (Cu = 2.5), n = 0.35, 10 °C. IAPWS water (iapws package): ν = 1.30629e-6 m²/s, so
+# g/ν = 9.80665 / 1.30629e-6 = 7.50726e6 1/(m·s); D10² = 4e-8 m².
+
+def _g_over_nu(temp_c: float) -> float:
+    rho, mu = _iapws_water(temp_c)
+    return 9.80665 / (mu / rho)
+
+
+def test_kinematic_viscosity_matches_iapws():
+    from aquitardmap.conductivity import kinematic_viscosity_m2_s
+    for t in (5.0, 10.0, 20.0):
+        rho, mu = _iapws_water(t)
+        assert kinematic_viscosity_m2_s(t) == pytest.approx(mu / rho, rel=2e-3)
+
+
+def test_slichter_matches_hand_computation():
+    from aquitardmap.conductivity import slichter_k_m_s
+    # Slichter (1899) in Vukovic & Soro (1992), coefficients from memory:
+    # β = 1e-2 · n^3.287 = 1e-2 · 0.35^3.287 = 3.1721e-4 -> K = 7.50726e6 · 3.1721e-4 · 4e-8
+    # = 9.5256e-5 m/s.
+    assert 1e-2 * 0.35**3.287 == pytest.approx(3.1721e-4, rel=1e-4)
+    k = float(slichter_k_m_s(0.2, 0.35, 10.0))
+    assert k == pytest.approx(9.5256e-5, rel=2e-3)
+    assert k == pytest.approx(_g_over_nu(10.0) * 1e-2 * 0.35**3.287 * 4e-8, rel=2e-3)
+
+
+def test_terzaghi_matches_hand_computation():
+    from aquitardmap.conductivity import terzaghi_k_m_s
+    # Terzaghi (1925) in Vukovic & Soro (1992), coefficients from memory: smooth grains
+    # C = 10.7e-3, φ(n) = ((n − 0.13)/(1 − n)^(1/3))² = (0.22/0.86624)² = 0.064501
+    # -> K = 7.50726e6 · 10.7e-3 · 0.064501 · 4e-8 = 2.0725e-4 m/s; coarse grains
+    # (C = 6.1e-3) scale it by 6.1/10.7.
+    assert ((0.35 - 0.13) / 0.65 ** (1 / 3)) ** 2 == pytest.approx(0.064501, rel=1e-4)
+    assert float(terzaghi_k_m_s(0.2, 0.35, 10.0)) == pytest.approx(2.0725e-4, rel=2e-3)
+    assert float(terzaghi_k_m_s(0.2, 0.35, 10.0, c=6.1e-3)) == pytest.approx(
+        2.0725e-4 * 6.1 / 10.7, rel=2e-3)
+    # φ(n) vanishes at n = 0.13: no value below it.
+    assert np.isnan(terzaghi_k_m_s(0.2, 0.12, 10.0))
+
+
+def test_beyer_matches_hand_computation_and_hazen_for_uniform_sand():
+    from aquitardmap.conductivity import beyer_k_m_s
+    # Beyer (1964) in Vukovic & Soro (1992) / Rosas et al. (2014), coefficient from memory:
+    # β = 5.2e-4 · log10(500/Cu) = 5.2e-4 · log10(200) = 1.19654e-3
+    # -> K = 7.50726e6 · 1.19654e-3 · 4e-8 = 3.5931e-4 m/s.
+    k = float(beyer_k_m_s(0.2, 0.5, 10.0))
+    assert k == pytest.approx(3.5931e-4, rel=2e-3)
+    # For a uniform sand Beyer and Hazen (C = 100: 4e-4 m/s) agree within a factor of 1.5
+    # (common practice: both are read against the same sands).
+    assert 1 / 1.5 < k / float(hazen_k_m_s(0.2)) < 1.5
+    # A wider grading (larger Cu) lowers Beyer's K.
+    assert float(beyer_k_m_s(0.2, 2.0, 10.0)) < k
+
+
+def test_grain_size_methods_scale_with_d10_squared():
+    from aquitardmap.conductivity import beyer_k_m_s, slichter_k_m_s, terzaghi_k_m_s
+    # General form K ∝ D10² at fixed n and Cu (Vukovic & Soro 1992).
+    for f in (lambda d: slichter_k_m_s(d, 0.35, 10.0), lambda d: terzaghi_k_m_s(d, 0.35, 10.0),
+              lambda d: beyer_k_m_s(d, 2.5 * d, 10.0)):
+        assert float(f(0.4)) / float(f(0.2)) == pytest.approx(4.0, rel=1e-12)
+
+
+def test_validity_ranges_of_slichter_terzaghi_beyer():
+    from aquitardmap.conductivity import beyer_validity, slichter_validity, terzaghi_validity
+    # Slichter 0.01–5 mm (from memory); porosity needed.
+    r = slichter_validity([0.01, 0.009, 5.0, 5.1, 0.2], [0.05, 0.05, 6.0, 6.0, 0.5],
+                          [0.3, 0.3, 0.3, 0.3, np.nan])
+    assert list(r[[0, 2]]) == ["", ""]
+    assert "below 0.01 mm" in r[1] and "above 5 mm" in r[3] and "porosity missing" in r[4]
+    # Terzaghi: sand-sized D10 0.063–2 mm, n > 0.13.
+    r = terzaghi_validity([0.063, 0.05, 2.0, 2.5, 0.2], [0.2, 0.2, 4.0, 4.0, 0.5],
+                          [0.3, 0.3, 0.3, 0.3, 0.13])
+    assert list(r[[0, 2]]) == ["", ""]
+    assert "below 0.063 mm" in r[1] and "above 2 mm" in r[3] and "0.13" in r[4]
+    # Beyer: 0.06–0.6 mm, Cu up to 20, D60 required.
+    r = beyer_validity([0.06, 0.05, 0.6, 0.7, 0.1, 0.1, 0.1], [0.1, 0.1, 1.0, 1.0, 2.0, 2.1,
+                                                             np.nan])
+    assert list(r[[0, 2, 4]]) == ["", "", ""]                 # Cu = 20 exactly is inside
+    assert "below 0.06 mm" in r[1] and "above 0.6 mm" in r[3]
+    assert "above 20" in r[5] and "D60 missing" in r[6]
+
+
+def test_unit_using_beyer_and_per_method_comparison_columns():
+    stack = (Unit("SAND", "Sand", "cover", 0.30, 1e-4, "beyer", 1.0),
+             Unit("CLAY", "Clay", "aquitard", 0.40, 1e-9, "none", 2.0, 10.0),
+             Unit("GRAV", "Gravel", "aquifer", 0.25, 1e-3, "hazen", 1.0))
+    s = _samples([("A", 1.0, 0.2, 0.5, 0.35, np.nan, "SAND"),
+                  ("B", 1.0, 0.3, 0.6, 0.35, np.nan, "SAND"),
+                  ("C", 1.0, 0.03, 0.6, 0.35, np.nan, "SAND")])   # below Beyer's range
+    t = unit_conductivity(s, stack, SETTINGS)
+    row = t.loc["SAND"]
+    from aquitardmap.conductivity import beyer_k_m_s
+    ks = [float(beyer_k_m_s(0.2, 0.5, 10.0)), float(beyer_k_m_s(0.3, 0.6, 10.0))]
+    assert row["k_source"] == "beyer" and row["n_used"] == 2 and row["n_out_of_range"] == 1
+    assert row["k_m_s"] == pytest.approx(gmean(ks), rel=1e-12)        # scipy reference
+    assert row["k_geomean_m_s"] == row["k_m_s"]
+    assert row["log10_k_min"] == pytest.approx(math.log10(min(ks)), rel=1e-12)
+    assert row["log10_k_max"] == pytest.approx(math.log10(max(ks)), rel=1e-12)
+    # Comparison columns: Hazen over the same unit's samples in Hazen's range (A and B).
+    assert row["n_hazen_in_range"] == 2
+    assert row["k_hazen_geomean_m_s"] == pytest.approx(
+        gmean([float(hazen_k_m_s(0.2)), float(hazen_k_m_s(0.3))]), rel=1e-12)
+    # Anisotropy and secondary permeability multiply vertical K: 1e-9 / 2 · 10 = 5e-9.
+    clay = t.loc["CLAY"]
+    assert clay["k_source"] == "default" and np.isnan(clay["k_geomean_m_s"])
+    assert clay["kv_m_s"] == pytest.approx(5e-9, rel=1e-12)
+    assert clay["secondary_k_factor"] == 10.0 and clay["anisotropy_kh_kv"] == 2.0
+
+
+def test_lab_k_that_looks_like_cm_s_in_an_aquitard_gets_a_hint_and_is_used_as_given():
+    from aquitardmap.conductivity import lab_k_magnitude_warnings
+    s = _samples([("A", 5.0, np.nan, np.nan, np.nan, 3e-7, "CLAY"),    # 3e-9 m/s in cm/s
+                  ("B", 5.0, np.nan, np.nan, np.nan, 3e-9, "CLAY"),
+                  ("C", 1.0, np.nan, np.nan, np.nan, 3e-4, "SAND")])   # cover: plausible
+    s["line"] = [2, 3, 4]
+    w = lab_k_magnitude_warnings(s, STACK, "samples.csv", column=6)
+    assert len(w) == 1
+    assert (w[0].file, w[0].line, w[0].column) == ("samples.csv", 2, 6)
+    assert "cm/s" in w[0].message and "3e-09" in w[0].message
+    # Nothing is rescaled: the unit K is the value given.
+    row = unit_conductivity(s.iloc[[0]], STACK, SETTINGS).loc["CLAY"]
+    assert row["k_m_s"] == pytest.approx(3e-7, rel=1e-12)

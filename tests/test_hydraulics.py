@@ -140,3 +140,80 @@ def test_avi_class_boundaries():
     c_yr = np.array([0.0, 1e-3, 9.99, 10.0, 99.9, 100.0, 999.0, 1000.0, 9999.0, 10000.0,
                      1e7, np.nan])
     assert avi_class(c_yr).tolist() == [1, 1, 1, 2, 2, 3, 3, 4, 4, 5, 5, AVI_NO_DATA]
+
+
+# --- hazards, crust, diffusion, Péclet, heads --------------------------------------------
+
+def test_removal_from_the_top_takes_cover_first_then_clay():
+    from aquitardmap.hydraulics import remove_from_top_m
+    # Column 2 m sand / 10 m clay / 5 m silty clay (B3). A 6 m pit removes the sand and
+    # 4 m of clay; a 20 m cut removes everything; 0 m changes nothing (hand computation).
+    out = remove_from_top_m(np.stack([B3, B3, B3], axis=1), np.array([6.0, 20.0, 0.0]))
+    assert out[:, 0].tolist() == [0.0, 6.0, 5.0]
+    assert out[:, 1].tolist() == [0.0, 0.0, 0.0]
+    assert out[:, 2].tolist() == B3.tolist()
+    with pytest.raises(ValueError):
+        remove_from_top_m(B3, -1.0)
+
+
+def test_crust_is_the_top_of_the_clay_across_units():
+    from aquitardmap.hydraulics import crust_thickness_m
+    # 3 m crust from the top of the clay: sand (cover) is not crust; 3 m of the 10 m clay;
+    # with only 1 m of the first clay, 1 m there and 2 m in the next (hand computation).
+    is_aq = np.array([False, True, True])
+    assert crust_thickness_m(B3, is_aq, 3.0).tolist() == [0.0, 3.0, 0.0]
+    assert crust_thickness_m(np.array([2.0, 1.0, 5.0]), is_aq, 3.0).tolist() == [0.0, 1.0, 2.0]
+    assert crust_thickness_m(np.array([2.0, 1.0, 0.5]), is_aq, 3.0).tolist() == [0.0, 1.0, 0.5]
+    assert crust_thickness_m(B3, is_aq, 0.0).tolist() == [0.0, 0.0, 0.0]
+
+
+def test_crust_with_raised_k_as_two_layers_in_series():
+    # Hand computation: the 10 m clay (K 5e-10) with a 3 m crust at 100 K: 7/5e-10 +
+    # 3/5e-8 = 1.4e10 + 6e7 = 1.406e10 s; the column c = 2e4 + 1.406e10 + 5e9 = 1.906002e10 s.
+    b = np.array([2.0, 7.0, 5.0, 0.0, 3.0, 0.0])
+    k = np.concatenate([K3, K3 * 100.0])
+    assert series_resistance_s(b, k) == pytest.approx(1.906002e10, rel=1e-12)
+
+
+def test_diffusion_time_scale_hand_computation():
+    from aquitardmap.hydraulics import diffusion_time_yr
+    # B = 20 m, De = 5e-10 m²/s: B²/De = 400 / 5e-10 = 8e11 s = 8e11 / 31 557 600 yr
+    # = 25 350.47 yr.
+    assert float(diffusion_time_yr(20.0, 5e-10)) == pytest.approx(25350.47, rel=1e-6)
+    assert float(diffusion_time_yr(0.0, 5e-10)) == 0.0
+    with pytest.raises(ValueError):
+        diffusion_time_yr(1.0, 0.0)
+
+
+def test_peclet_number_of_one_layer_is_v_b_over_de():
+    from aquitardmap.hydraulics import diffusion_time_yr, peclet_number
+    # One layer: Pe = (B²/De) / (nₑ B / (K i)) = v B / De with seepage velocity v = K i / nₑ
+    # (Bear 1972). B = 10 m, K = 5e-10, i = 1, nₑ = 0.4: v = 1.25e-9 m/s; De = 5e-10
+    # -> Pe = 1.25e-9 · 10 / 5e-10 = 25.
+    td = diffusion_time_yr(10.0, 5e-10)
+    ta = advective_travel_time_yr(np.array([10.0]), np.array([5e-10]), np.array([0.4]), 1.0)
+    assert float(peclet_number(td, ta)) == pytest.approx(25.0, rel=1e-12)
+    assert float(peclet_number(td, np.inf)) == 0.0       # no downward advection
+    assert np.isnan(peclet_number(0.0, 0.0))              # no clay: undefined
+
+
+def test_gradient_from_heads():
+    from aquitardmap.hydraulics import gradient_from_heads
+    # Darcy: i = (h_top − h_bottom) / B. Water table 52 m, aquifer head 47 m, 20 m column
+    # -> 0.25 downward; an upward case is negative; no column -> undefined.
+    i = gradient_from_heads(np.array([52.0, 45.0, 50.0]), np.array([47.0, 47.0, 40.0]),
+                            np.array([20.0, 10.0, 0.0]))
+    assert i[0] == pytest.approx(0.25, rel=1e-12)
+    assert i[1] == pytest.approx(-0.2, rel=1e-12)
+    assert np.isnan(i[2])
+
+
+def test_avi_legend_uses_the_published_class_names():
+    from aquitardmap.hydraulics import avi_legend
+    rows = avi_legend()
+    # Van Stempvoort, Ewert & Wassenaar (1993), class names from memory.
+    assert [r["vulnerability"] for r in rows] == [
+        "extremely high vulnerability", "high vulnerability", "moderate vulnerability",
+        "low vulnerability", "extremely low vulnerability"]
+    assert [r["resistance_yr"] for r in rows] == [
+        "< 10", "10 to < 100", "100 to < 1000", "1000 to < 10000", ">= 10000"]

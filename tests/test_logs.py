@@ -515,3 +515,12 @@ def test_column_table_columns_cover_every_column_unit(tmp_path):
     assert set(table["status_aquitard"]) <= {FULL, LOWER_BOUND, UNKNOWN}
     assert table.loc["BH-B", "status_LMC"] == LOWER_BOUND
     assert table.loc["BH-B", "status_LAM"] == UNKNOWN
+
+
+def test_lab_k_above_one_metre_per_second_is_refused_with_a_unit_hint(tmp_path):
+    # 1 m/s is the top of the clean-gravel range (Freeze & Cherry 1979, Table 2.2, from
+    # memory); a larger value means another unit (cm/s, m/day) was written in the m/s column.
+    samples = "borehole_id,depth_m,d10_mm,d60_mm,porosity,k_lab_m_s\nBH-A,1.0,,,,5\n"
+    p = find(problems_of(make_project(tmp_path, samples=samples)), "samples.csv", 2, 6,
+             "k_lab_m_s = 5 is above 1 m/s")
+    assert "cm/s" in p.message

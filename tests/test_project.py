@@ -89,3 +89,28 @@ def test_configuration_is_never_evaluated(tmp_path):
     # A value that would run code if evaluated is just an unknown string here.
     probs = _problems(tmp_path, MINIMAL.replace("EPSG:32632", "__import__('os').getcwd()"))
     assert any("not a known CRS" in p.message for p in probs)
+
+
+def test_hydraulic_extensions_have_documented_defaults(tmp_path):
+    p = read_project(_project(tmp_path, MINIMAL))
+    h = p.hydraulics
+    assert (h.crust_depth_m, h.crust_k_factor, h.crust_treatment) == (3.0, 100.0, "raise_k")
+    assert h.effective_diffusion_m2_s == 5e-10 and h.terzaghi_c == 10.7e-3
+    assert p.unit("CLAY").secondary_k_factor == 1.0
+    assert (p.screening.piercing_radius_m, p.screening.piercing_flag_per_km2) == (500.0, 10.0)
+
+
+def test_hydraulic_extensions_are_checked(tmp_path):
+    text = MINIMAL.replace('role = "aquitard"', 'role = "aquitard"\nsecondary_k_factor = 0.5\n'
+                           'k_method = "beyer"') + (
+        '\n[hydraulics]\ncrust_treatment = "ignore"\ncrust_depth_m = -1\n'
+        'effective_diffusion_m2_s = 0\nterzaghi_c = 0.02\n'
+        '\n[screening]\npiercing_radius_m = 0\n')
+    msgs = [p.message for p in _problems(tmp_path, text)]
+    assert any("secondary_k_factor must be >= 1.0" in m for m in msgs)
+    assert any("crust_treatment must be one of raise_k, not_protective" in m for m in msgs)
+    assert any("crust_depth_m must be >= 0" in m for m in msgs)
+    assert any("effective_diffusion_m2_s must be > 0" in m for m in msgs)
+    assert any("terzaghi_c must be <= 0.0107" in m for m in msgs)
+    assert any("piercing_radius_m must be > 0" in m for m in msgs)
+    assert not any("k_method" in m for m in msgs)       # "beyer" is a known method
