@@ -28,6 +28,10 @@ PIERCING_BOREHOLES = "piercing_boreholes.csv"
 VERTICAL_GRADIENT = "vertical_gradient.tif"               # head inputs given
 HAZARD_REMOVED = "hazard_removed_m.tif"                   # hazards.geojson given
 AQUITARD_THICKNESS_EFFECTIVE = "aquitard_thickness_effective_m.tif"  # hazards or crust cut
+#: Written by ``aquitardmap suggest`` (where to drill next).
+SUGGESTED_HOLES = "suggested_holes.gpkg"
+SUGGESTED_HOLES_LAYER = "suggested_holes"
+SUGGESTED_HOLES_CSV = "suggested_holes.csv"
 
 
 def unit_thickness(code: str) -> str:

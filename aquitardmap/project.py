@@ -43,6 +43,7 @@ ROLES = ("cover", "aquitard", "aquifer")
 K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
 CRUST_TREATMENTS = ("raise_k", "not_protective")
 VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
+DRILLING_TARGETS = ("thin", "window", "both")
 
 #: Default input file names inside a project folder (``[files]`` may override them).
 DEFAULT_FILES = {
@@ -165,6 +166,30 @@ class QASettings:
 
 
 @dataclass(frozen=True)
+class DrillingSettings:
+    """Choices of ``aquitardmap suggest`` (where to drill next).
+
+    Attributes:
+        holes: number of holes to suggest when the command line does not say.
+        p_low, p_high: a cell is *uncertain* while its probability of a thin aquitard lies
+            between these bounds (inclusive).
+        target: which probability defines the uncertain area: ``"thin"`` (below
+            ``thin_thickness_m``), ``"window"`` (below ``window_thickness_m``) or ``"both"``
+            (the two uncertain areas added).
+        min_spacing_m: smallest distance between two suggested holes (m).
+        priority_grid: optional GeoTIFF inside the project folder weighting each cell's
+            area (e.g. higher in wellhead protection areas); empty = every cell weighs 1.
+    """
+
+    holes: int = 5
+    p_low: float = 0.1
+    p_high: float = 0.9
+    target: str = "thin"
+    min_spacing_m: float = 250.0
+    priority_grid: Path | None = None
+
+
+@dataclass(frozen=True)
 class Project:
     """A validated project: where its files are and every setting of the run."""
 
@@ -181,6 +206,7 @@ class Project:
     files: dict[str, Path] = field(default_factory=dict)
     config_sha256: str = ""
     materials: tuple[MaterialRule, ...] = ()
+    drilling: DrillingSettings = field(default_factory=DrillingSettings)
 
     @property
     def unit_codes(self) -> tuple[str, ...]:
@@ -326,6 +352,58 @@ def _read_materials(problems: ProblemList, path: Path, text: str, cfg: Any,
     return tuple(rules)
 
 
+def _read_drilling(problems: ProblemList, path: Path, text: str, root: Path,
+                   dr: Any) -> DrillingSettings:
+    """The ``[drilling]`` table (see :class:`DrillingSettings`; every key has a default)."""
+    if not isinstance(dr, dict):
+        problems.add(path, *_locate(text, "drilling"), "drilling must be a table")
+        return DrillingSettings()
+    for key in dr:
+        if key not in ("holes", "p_low", "p_high", "target", "min_spacing_m",
+                       "priority_grid"):
+            problems.add(path, *_locate(text, key, "drilling"), f"[drilling] unknown key "
+                         f"{key!r}; expected holes, p_low, p_high, target, min_spacing_m, "
+                         "priority_grid")
+    holes = _number(problems, path, text, dr, "holes", 5, "drilling", low=1, high=1000)
+    if holes != int(holes):
+        problems.add(path, *_locate(text, "holes", "drilling"),
+                     f"[drilling] holes must be a whole number, got {holes:g}")
+    p_low = _number(problems, path, text, dr, "p_low", 0.1, "drilling", low=0, low_open=True,
+                    high=1.0)
+    p_high = _number(problems, path, text, dr, "p_high", 0.9, "drilling", low=0,
+                     low_open=True, high=1.0)
+    if not p_low < p_high < 1.0:
+        problems.add(path, *_locate(text, "p_high", "drilling"), "[drilling] p_high must "
+                     f"lie between p_low and 1 (exclusive), got p_low = {p_low:g}, "
+                     f"p_high = {p_high:g}")
+    target = dr.get("target", "thin")
+    if target not in DRILLING_TARGETS:
+        problems.add(path, *_locate(text, "target", "drilling"), "[drilling] target must be "
+                     f"one of {', '.join(DRILLING_TARGETS)}, got {target!r}")
+        target = "thin"
+    spacing = _number(problems, path, text, dr, "min_spacing_m", 250.0, "drilling", low=0)
+    priority = dr.get("priority_grid", "")
+    priority_path = None
+    if not isinstance(priority, str):
+        problems.add(path, *_locate(text, "priority_grid", "drilling"),
+                     "[drilling] priority_grid must be a file name (a string)")
+    elif priority.strip():
+        priority_path = (root / priority).resolve()
+        try:
+            priority_path.relative_to(root.resolve())
+        except ValueError:
+            problems.add(path, *_locate(text, "priority_grid", "drilling"),
+                         f"[drilling] priority_grid = {priority!r} points outside the "
+                         "project folder; refused")
+            priority_path = None
+        else:
+            if not priority_path.is_file():
+                problems.add(path, *_locate(text, "priority_grid", "drilling"),
+                             f"[drilling] priority_grid {priority!r} not found in the "
+                             "project folder")
+    return DrillingSettings(int(holes), p_low, p_high, target, spacing, priority_path)
+
+
 def read_project(folder: str | Path) -> Project:
     """Read ``folder/project.toml`` and return a validated :class:`Project`.
 
@@ -357,7 +435,7 @@ def read_project(folder: str | Path) -> Project:
         problems.raise_if_any()
 
     known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files",
-             "materials"}
+             "materials", "drilling"}
     for key in cfg:
         if key not in known:
             line, col = _locate(text, "", key)
@@ -511,6 +589,8 @@ def read_project(folder: str | Path) -> Project:
         exclude_boreholes=tuple(str(e) for e in excl),
     )
 
+    drilling = _read_drilling(problems, path, text, root, cfg.get("drilling", {}))
+
     files_cfg = cfg.get("files", {})
     files: dict[str, Path] = {}
     for key, default in DEFAULT_FILES.items():
@@ -540,4 +620,5 @@ def read_project(folder: str | Path) -> Project:
         units=tuple(units), kriging=kriging, hydraulics=hydraulics, screening=screening,
         qa=qa, files=files, config_sha256=hashlib.sha256(raw).hexdigest(),
         materials=materials,
+        drilling=drilling,
     )

@@ -19,7 +19,7 @@ can raise a surface but can never pull it down into a false thin zone.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -56,6 +56,8 @@ class Surface:
         n_bounds_active: lower bounds the unconstrained estimate violated, added as data.
         cv: leave-one-out cross-validation statistics on the full holes (see
             :func:`cross_validate`).
+        data_x_m, data_y_m: locations of the data the final kriging used (full holes and
+            active lower bounds, coincident ones merged), m; empty when not recorded.
     """
 
     name: str
@@ -67,6 +69,8 @@ class Surface:
     n_lower_bounds: int
     n_bounds_active: int
     cv: dict[str, float]
+    data_x_m: np.ndarray = field(default_factory=lambda: np.empty(0))
+    data_y_m: np.ndarray = field(default_factory=lambda: np.empty(0))
 
 
 def cross_validate(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
@@ -160,7 +164,7 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         name=name, thickness_m=np.where(grid.mask, np.maximum(res.estimate, 0.0), np.nan),
         sd_m=np.sqrt(res.variance), variogram=model, experimental=exp,
         n_full=int(full.sum()), n_lower_bounds=int(lower.sum()),
-        n_bounds_active=int(active.sum()), cv=cv,
+        n_bounds_active=int(active.sum()), cv=cv, data_x_m=dx, data_y_m=dy,
     )
 
 
@@ -201,5 +205,5 @@ def krige_column(columns: pd.DataFrame, unit_codes: list[str], aquitard_codes: l
     for c, arr in scaled.items():
         s = out[c]
         out[c] = Surface(s.name, arr, s.sd_m, s.variogram, s.experimental, s.n_full,
-                         s.n_lower_bounds, s.n_bounds_active, s.cv)
+                         s.n_lower_bounds, s.n_bounds_active, s.cv, s.data_x_m, s.data_y_m)
     return out

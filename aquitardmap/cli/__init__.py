@@ -1,4 +1,4 @@
-"""Command line: ``aquitardmap run`` and ``aquitardmap check`` (one file per command).
+"""Command line: ``aquitardmap run``, ``check`` and ``suggest`` (one file per command).
 
 Exit status: 0 success, 2 bad input (every problem listed, nothing written), 1 internal
 error.
@@ -13,6 +13,7 @@ from aquitardmap.cli.add import add_command
 from aquitardmap.cli.check import check_command
 from aquitardmap.cli.history import history_command
 from aquitardmap.cli.run import run_command
+from aquitardmap.cli.suggest import suggest_command
 from aquitardmap.cli.undo import undo_command
 
 
@@ -31,6 +32,7 @@ cli.add_command(check_command)
 cli.add_command(add_command)
 cli.add_command(history_command)
 cli.add_command(undo_command)
+cli.add_command(suggest_command)
 
 
 def main() -> None:
