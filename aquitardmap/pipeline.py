@@ -61,7 +61,7 @@ from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
 from aquitardmap.store import project_boreholes
 from aquitardmap.surfaces import Surface, krige_column
-from aquitardmap.webmap import write_map
+from aquitardmap.webmap import find_web_assets, write_map
 
 #: Called with (stage description, stage number from 1, number of stages).
 ProgressFn = Callable[[str, int, int], None]
@@ -593,8 +593,12 @@ def staged_output_dir(out_dir: str | Path) -> Iterator[Path]:
 
 def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
                   hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
-                  boreholes: gpd.GeoDataFrame, summary: dict) -> list[str]:
-    """Stage 5: write every output file into ``folder``; returns the file names."""
+                  boreholes: gpd.GeoDataFrame, summary: dict, *,
+                  self_contained_map: bool = False) -> list[str]:
+    """Stage 5: write every output file into ``folder``; returns the file names.
+
+    ``self_contained_map`` writes a map that needs no network (see
+    :func:`aquitardmap.webmap.write_map`)."""
     g = inputs.grid
     p = inputs.project
     total = surfaces["aquitard"]
@@ -655,23 +659,29 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     names = sorted([*grids, *extra, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP])
     summary["outputs"] = names
     write_summary(folder / outputs.SUMMARY, summary)
-    write_map(folder)
+    write_map(folder, self_contained=self_contained_map)
     return names
 
 
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
-        progress: ProgressFn | None = None) -> RunResult:
+        progress: ProgressFn | None = None, self_contained_map: bool = False) -> RunResult:
     """Run the whole screening on a project folder and write every output to ``out_dir``.
 
     With ``out_dir=None`` nothing is written (the result is returned in memory only).
+    ``self_contained_map=True`` writes a ``map.html`` that opens without network (Leaflet
+    inlined from a local copy, no background tiles); the local copy is looked for before
+    any work is done.
 
     Raises:
         InputError: when inputs are unusable (nothing is written).
+        WebAssetsNotFound: ``self_contained_map`` and no local Leaflet (nothing is written).
     """
     def step(i: int) -> None:
         if progress is not None:
             progress(STAGES[i], i + 1, len(STAGES))
 
+    if self_contained_map and out_dir is not None:
+        find_web_assets()
     started = datetime.now(UTC)
     t0 = time.perf_counter()
     step(0)
@@ -688,6 +698,7 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     if out_dir is not None:
         step(4)
         with staged_output_dir(out_dir) as tmp:
-            write_outputs(tmp, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)
+            write_outputs(tmp, inputs, surfaces, hyd, p_thin, zones, boreholes, summary,
+                          self_contained_map=self_contained_map)
         written = Path(out_dir).resolve()
     return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)

@@ -1,9 +1,10 @@
 """Tests of the planners' map (aquitardmap.webmap) on a tiny synthetic run folder.
 
-The run folder is invented test data (a 20 x 15 grid of 50 m cells in EPSG:32632). The
-map is checked against outside references: pyproj (PROJ) for where the overlays must sit,
-Python's json/html modules for what a browser would decode, and the PNG decoder of
-matplotlib for what the overlays hold. No browser is driven here.
+The run folder is invented test data (tests/mapdata.py: a 20 x 15 grid of 50 m cells in
+EPSG:32632). The map is checked against outside references: pyproj (PROJ) for where the
+overlays must sit, rasterio for the grid values the page carries, Python's json/html
+modules for what a browser would decode, and the PNG decoder of matplotlib for what the
+overlays hold. No browser is driven here (see test_webmap_browser.py).
 """
 
 from __future__ import annotations
@@ -13,112 +14,36 @@ import html
 import io
 import json
 import re
+import shutil
 from pathlib import Path
 
 import geopandas as gpd
 import matplotlib.image
 import numpy as np
 import pytest
+import rasterio
+from mapdata import (
+    CRS_UTM32,
+    EVIL_ID,
+    EVIL_UNIT,
+    X0,
+    Y0,
+    build_run_folder,
+)
 from pyproj import CRS, Transformer
-from shapely.geometry import Point, Polygon, box
 
 from aquitardmap import outputs
-from aquitardmap.grid import make_grid, write_raster
-from aquitardmap.webmap import (
-    WebAssetsNotFound,
-    _lonlat_to_xy_fit,
-    find_web_assets,
-    write_map,
-)
-
-CRS_UTM32 = CRS.from_epsg(32632)
-X0, Y0, CELL_M = 500_000.0, 6_100_000.0, 50.0  # 20 x 15 cells
-EVIL_ID = "<img src=x onerror=alert(1)>"
-EVIL_UNIT = "Lower clay <script>alert(2)</script>"
-TEMPLATE_TRAP = "{{ 7*7 }}"  # folium re-reads layer code as a Jinja template
+from aquitardmap.presentation import unit_colours
+from aquitardmap.webmap import WebAssetsNotFound, find_web_assets, write_map
+from aquitardmap.webmap.page import lonlat_to_xy_fit
+from aquitardmap.webmap.striplog import parse_log, strip_log_svg
 
 OVERLAY = re.compile(
     r'L\.imageOverlay\(\s*"(data:image/png;base64,[A-Za-z0-9+/=]+)",\s*'
     r"(\[\[[^\]]*\],\s*\[[^\]]*\]\])"
 )
-
-
-def _study_area() -> Polygon:
-    # The NE corner (a 6 x 5 cell notch) is outside the study area.
-    return Polygon([(X0, Y0), (X0 + 1000, Y0), (X0 + 1000, Y0 + 500), (X0 + 700, Y0 + 500),
-                    (X0 + 700, Y0 + 750), (X0, Y0 + 750)])
-
-
-def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True) -> None:
-    """Write a tiny run folder: 9 grids (no cover grid), 3 zones, 3 boreholes, summary."""
-    run_dir.mkdir(parents=True, exist_ok=True)
-    grid = make_grid(_study_area(), CELL_M, CRS_UTM32)
-    assert (grid.width, grid.height) == (20, 15)
-    xs, ys = grid.cell_centres()
-    xx, yy = np.meshgrid(xs - X0, ys - Y0)
-    thickness_m = 30.0 * xx / 1000.0  # 0.75 m in the west column, 29.25 m in the east
-    if grids:
-        travel_yr = np.where(thickness_m < 2, 0.0, 10.0 ** (thickness_m / 10.0))
-        for name, values in {
-            outputs.AQUITARD_THICKNESS: thickness_m,
-            outputs.AQUITARD_THICKNESS_SD: 1.0 + yy / 750.0,
-            outputs.unit_thickness("UMC"): 0.6 * thickness_m,
-            outputs.unit_thickness("LMC"): 0.4 * thickness_m,
-            outputs.KV: np.full_like(xx, 3e-10),
-            outputs.LEAKANCE: 3e-10 / np.maximum(thickness_m, 0.5),
-            outputs.RESISTANCE: np.maximum(thickness_m, 0.5) / 3e-10 / 3.156e7,
-            outputs.TRAVEL_TIME: travel_yr,
-            outputs.P_THIN: np.clip(1.0 - thickness_m / 10.0, 0.0, 1.0),
-        }.items():
-            write_raster(run_dir / name, values, grid)
-    zones = gpd.GeoDataFrame(
-        {
-            "kind": ["window", "thin", "fast"],
-            "area_m2": [25_000.0, 1_250_000.0, 7_500.0],
-            "reason": ["Clay absent & aquifer <b>exposed</b>", f"Thin clay {TEMPLATE_TRAP}",
-                       "Short travel time"],
-            "mean_thickness_m": [0.4, 3.2, 6.0],
-            "min_thickness_m": [0.0, 2.0, 5.5],
-            "mean_sd_m": [1.1, 1.4, 2.0],
-            "mean_p_thin": [0.93, 0.61, 0.2],
-            "n_boreholes": [1, 0, 0],
-        },
-        geometry=[box(X0, Y0, X0 + 100, Y0 + 250), box(X0 + 100, Y0, X0 + 300, Y0 + 750),
-                  box(X0 + 300, Y0, X0 + 350, Y0 + 150)],
-        crs=CRS_UTM32,
-    )
-    zones.to_file(run_dir / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
-    holes = gpd.GeoDataFrame(
-        {
-            "borehole_id": ["OV-101", "OV-102", EVIL_ID],
-            "ground_elev_m": [42.0, 40.5, 39.0],
-            "total_depth_m": [31.0, 12.0, 8.0],
-            "reached_aquifer": [True, False, False],
-            "bottom_unit": ["GRAV", "UMC", "UMC"],
-            "aquitard_thickness_m": [21.2, 9.5, 5.0],
-            "status_aquitard": ["full", "lower_bound", "lower_bound"],
-            "proves_window": [False, False, False],
-            "qa_flags": ["", "", "collar 6 m off the DEM"],
-            "excluded": [False, False, True],
-            "log": ["0.0–2.1 SAND; 2.1–23.3 UMC; 23.3–31.0 GRAV", "0.0–2.5 SAND; 2.5–12.0 UMC",
-                    "0.0–3.0 FILL <b>x</b>; 3.0–8.0 UMC"],
-            "dem_misfit_m": [0.3, -0.8, 6.1],
-        },
-        geometry=[Point(X0 + 725, Y0 + 125), Point(X0 + 325, Y0 + 425),
-                  Point(X0 + 60, Y0 + 60)],
-        crs=CRS_UTM32,
-    )
-    holes.to_file(run_dir / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
-    if summary:
-        (run_dir / outputs.SUMMARY).write_text(json.dumps({
-            "project": {"name": "Ostrel Valley & <test>", "crs": "EPSG:32632"},
-            "run": {"started_utc": "2025-03-04T08:15:00Z", "package_version": "0.1.0"},
-            "units": [{"code": "UMC", "name": "Upper marine clay", "role": "aquitard"},
-                      {"code": "LMC", "name": EVIL_UNIT, "role": "aquitard"}],
-            "thresholds": {"window_thickness_m": 0.5, "thin_thickness_m": 5.0,
-                           "fast_travel_time_yr": 100.0},
-            "caution": outputs.CAUTION,
-        }), encoding="utf-8")
+RADIO = re.compile(r'<label title="([^"]*)"><input type="radio" name="aqm-grid" '
+                   r'value="(\d+)"( checked)?>([^<]*)</label>')
 
 
 @pytest.fixture(scope="module")
@@ -130,15 +55,19 @@ def tiny_run(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, str]:
     return run_dir, path.read_text(encoding="utf-8")
 
 
-def _overlay_names(page: str) -> list[str]:
-    """Overlay names as a person reads them in the layer control.
+def _grid_titles(page: str) -> list[str]:
+    """Full layer titles as a person reads them (the tooltip of each panel entry)."""
+    return [html.unescape(m.group(1)) for m in RADIO.finditer(page)]
 
-    Leaflet puts each name into the page as HTML, so the text shown is the JSON-decoded
-    name with HTML character references resolved (html.unescape).
-    """
-    block = re.search(r"overlays\s*:\s*\{(.*?)\}", page, re.S).group(1)
-    keys = re.findall(r'("(?:[^"\\]|\\.)*")\s*:', block)
-    return [html.unescape(json.loads(k)) for k in keys]
+
+def _toggles(page: str) -> list[str]:
+    return re.findall(r'<input type="checkbox" data-aqm-layer="([^"]+)"', page)
+
+
+def _config_value(page: str, key: str):
+    """A JSON value of the page script's config (``fit``, ``readout``)."""
+    start = page.index(f",{key}:", page.index("aqmStart(map_")) + len(key) + 2
+    return json.JSONDecoder().raw_decode(page, start)[0]
 
 
 def _geojson_payloads(page: str) -> list[dict]:
@@ -148,6 +77,10 @@ def _geojson_payloads(page: str) -> list[dict]:
 def _decode_png(data_url: str) -> np.ndarray:
     raw = base64.b64decode(data_url.split(",", 1)[1])
     return matplotlib.image.imread(io.BytesIO(raw), format="png")
+
+
+def _decode_f32(b64: str, shape: tuple[int, int]) -> np.ndarray:
+    return np.frombuffer(base64.b64decode(b64), dtype="<f4").reshape(shape)
 
 
 def test_map_file_is_written_atomically(tiny_run: tuple[Path, str]) -> None:
@@ -161,37 +94,42 @@ def test_map_file_is_written_atomically(tiny_run: tuple[Path, str]) -> None:
 def test_every_present_grid_is_a_layer_and_missing_ones_are_not(
         tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
-    names = _overlay_names(page)
-    expected = [
-        "Total aquitard thickness (m)",
-        "Aquitard thickness uncertainty, one standard deviation (m)",
-        "Probability the clay is thinner than 5 m (approximate, 0–1)",
-        "Thickness of Upper marine clay [UMC] (m)",
-        f"Thickness of {EVIL_UNIT} [LMC] (m)",
-        "Vertical hydraulic conductivity of the aquitard, Kv (m/s, log scale)",
-        "Leakance (1/s, log scale)",
-        "Hydraulic resistance of the aquitard (years, log scale)",
-        "Travel time, advective, unit gradient (years, log scale)",
+    assert _grid_titles(page) == [
+        "Total clay (aquitard) thickness (m)",
+        "Chance the clay is thinner than 5 m (approximate) (%)",
+        "Travel time down to the aquifer (years, log scale)",
+        "Aquifer vulnerability class (AVI)",
+        "Uncertainty of the clay thickness (one standard deviation) (m)",
+        "Upper marine clay [UMC] thickness (m)",
+        f"{EVIL_UNIT} [LMC] thickness (m)",
+        "Vertical hydraulic conductivity of the column, Kv (m/s, log scale)",
+        "Leakance of the column (1/s, log scale)",
+        "Hydraulic resistance of the column (years, log scale)",
     ]
-    assert names[: len(expected)] == expected
-    assert names[len(expected):] == ["Flagged zones (window, thin, fast)", "Boreholes"]
-    assert len(OVERLAY.findall(page)) == 9  # nine grid files were written
-    assert not any("Cover" in n for n in names)  # cover_thickness_m.tif is absent
+    # Nine grid files plus the vulnerability class derived from the resistance grid.
+    assert len(OVERLAY.findall(page)) == 10
+    assert not any("Cover" in t for t in _grid_titles(page))  # no cover grid was written
+    assert _toggles(page) == ["basemap", "outline", "zones", "holes"]
 
 
-def test_only_the_main_grid_is_shown_at_start(tiny_run: tuple[Path, str]) -> None:
+def test_only_the_main_grid_is_chosen_at_start(tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
+    checked = [m.group(2) for m in RADIO.finditer(page) if m.group(3)]
+    assert checked == ["0"]
+    # folium adds no overlay by itself: the page script shows the chosen one.
     overlay_vars = re.findall(r"var (image_overlay_\w+) = L\.imageOverlay", page)
-    added = [v for v in overlay_vars if re.search(rf"\b{v}\.addTo\(", page)]
-    assert added == overlay_vars[:1]
+    assert len(overlay_vars) == 10
+    assert not [v for v in overlay_vars if re.search(rf"\b{v}\.addTo\(", page)]
+    assert "aqmStart(map_" in page and 'name="aqm-grid" value="-1"' in page
 
 
-def test_caution_and_title_are_on_the_page(tiny_run: tuple[Path, str]) -> None:
+def test_caution_title_and_input_hashes_are_on_the_page(tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
     assert html.escape(outputs.CAUTION) in page
-    assert 'id="aqm-caution"' in page and "position: fixed" in page
+    assert '<footer id="aqm-caution" role="note">' in page
     assert "Ostrel Valley &amp; &lt;test&gt;" in page
-    assert "Run 2025-03-04 08:15 UTC" in page and "aquitardmap 0.1.0" in page
+    assert "run 2025-03-04 08:15 UTC" in page and "aquitardmap 0.1.0" in page
+    assert f'<td>collars.csv</td><td class="aqm-hash">{"ab" * 32}</td>' in page
     assert "L.control.scale()" in page
 
 
@@ -214,30 +152,47 @@ def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:
     assert "Thin clay 49" not in page
 
 
+def _hole_props(page: str) -> dict[str, dict]:
+    out = {}
+    for g in _geojson_payloads(page):
+        for f in g["features"]:
+            p = f["properties"]
+            if "popup_html" in p:
+                hole = re.search(r'<div class="aqm-popup-title">(.*?)</div>', p["popup_html"])
+                out[html.unescape(hole.group(1))] = p
+    return out
+
+
 def test_partial_hole_shows_a_lower_bound_not_a_thickness(tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
-    features = {f["properties"]["popup_html"].split("</div>")[0]: f["properties"]
-                for g in _geojson_payloads(page) for f in g["features"]
-                if "popup_html" in f["properties"]}
-    partial = next(p for k, p in features.items() if "OV-102" in k)
-    full = next(p for k, p in features.items() if "OV-101" in k)
-    evil = next(p for k, p in features.items() if "&lt;img" in k)
+    holes = _hole_props(page)
+    partial, full, evil = holes["OV-102"], holes["OV-101"], holes[EVIL_ID]
     assert "≥ 9.5 m (hole stopped in clay)" in partial["popup_html"]
-    assert partial["category"] == "lower_bound"
-    assert "21.2 m" in full["popup_html"] and "≥" not in full["popup_html"]
+    assert partial["category"] == "lower_bound" and "hole ends" in partial["popup_html"]
+    assert "<b>21.2 m</b>" in full["popup_html"] and "≥" not in full["popup_html"]
+    assert "yes, at 23.3 m" in full["popup_html"] and "hole ends" not in full["popup_html"]
     assert full["category"] == "full"
-    assert evil["category"] == "flagged" and "collar 6 m off the DEM" in evil["popup_html"]
+    assert evil["category"] == "suspicious"
+    assert "collar 6 m off the DEM" in evil["popup_html"]
+    assert "Not used in the estimates." in evil["popup_html"]
 
 
-def test_zone_tooltip_gives_area_probability_and_reason(tiny_run: tuple[Path, str]) -> None:
+def test_zone_tooltip_gives_kind_area_probability_and_reason(
+        tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
-    tips = [f["properties"]["tooltip_html"] for g in _geojson_payloads(page)
-            for f in g["features"] if "kind" in f["properties"]]
+    tips = {f["properties"]["kind"]: f["properties"]["tooltip_html"]
+            for g in _geojson_payloads(page) for f in g["features"]
+            if "kind" in f["properties"]}
     # 25 000 m2 = 2.5 ha; 1 250 000 m2 = 1.25 km2 (1 ha = 1e4 m2, 1 km2 = 1e6 m2: SI).
-    assert "Area: 2.5 ha" in tips[0] and "Mean P(thin) (approx.): 0.93" in tips[0]
-    assert tips[0].startswith("<b>Window: clay absent (under 0.5 m)</b>")
-    assert "Area: 1.25 km²" in tips[1]
-    assert "Fast path: travel time under 100 years" in tips[2]
+    assert tips["window"].startswith("<b>Window: clay absent (under 0.5 m)</b>")
+    assert "Area: 2.5 ha" in tips["window"]
+    assert "Chance the clay is thin (mean over the zone): 93 %" in tips["window"]
+    assert "Area: 1.25 km²" in tips["thin"] and "Travel time to the aquifer (mean): 2.5 " \
+        "years" in tips["thin"]
+    assert tips["fast"].startswith("<b>Fast path: travel time under 100 years</b>")
+    assert "<i>Why: Short travel time</i>" in tips["fast"]
+    # A zero travel time is "under 1 day", not "0 years".
+    assert "(mean): under 1 day" in tips["window"]
 
 
 def test_overlay_bounds_match_pyproj(tiny_run: tuple[Path, str]) -> None:
@@ -265,16 +220,28 @@ def test_overlay_is_transparent_outside_the_study_area(tiny_run: tuple[Path, str
     assert alpha.mean() == pytest.approx(270 / 300, abs=0.03)
 
 
+def _legends(page: str) -> dict[str, str]:
+    found = re.findall(r'<div class="aqm-legend" id="aqm-legend-\d+" hidden>'
+                       r'<div class="aqm-legend-title">([^<]*)</div>(.*?)</div></div>', page, re.S)
+    return {html.unescape(title): body for title, body in found}
+
+
 def test_log_layer_legend_uses_decades(tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
-    legends = re.findall(r'<div class="aqm-legend" id="aqm-legend-\d+">(.*?)</div></div>',
-                         page, re.S)
-    travel = next(lg for lg in legends if lg.startswith(
-        '<div class="aqm-legend-title">Travel time, advective, unit gradient'))
+    travel = _legends(page)["Travel time down to the aquifer (years, log scale)"]
     ticks = re.findall(r'<span style="left:[\d.]+%">([^<]*)</span>', travel)
     # Travel times span 10**0.225 .. 10**2.925 years (thickness / 10 m as exponent).
     assert ticks == ["10", "100"]
     assert "Values of zero are drawn in the lowest colour." in travel
+    assert "Advective; uniform vertical gradient (unit gradient)." in travel
+
+
+def test_probability_legend_is_in_per_cent(tiny_run: tuple[Path, str]) -> None:
+    _, page = tiny_run
+    body = _legends(page)["Chance the clay is thinner than 5 m (approximate) (%)"]
+    ticks = re.findall(r'<span style="left:([\d.]+)%">([^<]*)</span>', body)
+    assert [label for _, label in ticks] == ["0", "25", "50", "75", "100"]
+    assert [float(pos) for pos, _ in ticks] == [0.0, 25.0, 50.0, 75.0, 100.0]
 
 
 def test_overlays_respect_the_cell_budget(tmp_path: Path) -> None:
@@ -288,8 +255,64 @@ def test_overlays_respect_the_cell_budget(tmp_path: Path) -> None:
 def test_missing_summary_and_grids_still_give_a_map(tmp_path: Path) -> None:
     build_run_folder(tmp_path, grids=False, summary=False)
     page = write_map(tmp_path).read_text(encoding="utf-8")
-    assert _overlay_names(page) == ["Flagged zones (window, thin, fast)", "Boreholes"]
+    assert _grid_titles(page) == [] and _toggles(page) == ["basemap", "zones", "holes"]
     assert "Aquitard screening map" in page and html.escape(outputs.CAUTION) in page
+
+
+def test_readout_values_are_the_geotiff_cells(tiny_run: tuple[Path, str]) -> None:
+    run_dir, page = tiny_run
+    readout = _config_value(page, "readout")
+    # Reference: rasterio reading the GeoTIFFs the pipeline wrote.
+    with rasterio.open(run_dir / outputs.AQUITARD_THICKNESS) as src:
+        thick = src.read(1, masked=True).filled(np.nan)
+        t = src.transform
+    with rasterio.open(run_dir / outputs.AQUITARD_THICKNESS_SD) as src:
+        sd = src.read(1, masked=True).filled(np.nan)
+    assert (readout["x0"], readout["y0"], readout["dx"], readout["dy"]) == (t.c, t.f, t.a, -t.e)
+    assert (readout["ny"], readout["nx"]) == thick.shape
+    items = {it["label"]: it for it in readout["items"]}
+    assert list(items) == ["Total clay (aquitard) thickness",
+                           "Chance the clay is thinner than 5 m (approximate)",
+                           "Travel time down to the aquifer", "Aquifer vulnerability class (AVI)"]
+    got = _decode_f32(items["Total clay (aquitard) thickness"]["b64"], thick.shape)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(thick))
+    np.testing.assert_allclose(got[~np.isnan(got)], thick[~np.isnan(thick)], rtol=1e-7)
+    got_sd = _decode_f32(items["Total clay (aquitard) thickness"]["sd_b64"], sd.shape)
+    np.testing.assert_allclose(got_sd[~np.isnan(sd)], sd[~np.isnan(sd)], rtol=1e-7)
+    assert items["Chance the clay is thinner than 5 m (approximate)"]["percent"] is True
+    assert items["Travel time down to the aquifer"]["years"] is True
+
+
+def test_vulnerability_class_is_derived_at_the_published_breaks(
+        tiny_run: tuple[Path, str]) -> None:
+    run_dir, page = tiny_run
+    readout = _config_value(page, "readout")
+    item = next(it for it in readout["items"] if it["label"].startswith("Aquifer vuln"))
+    with rasterio.open(run_dir / outputs.RESISTANCE) as src:
+        c_yr = src.read(1, masked=True).filled(np.nan)
+    got = _decode_f32(item["b64"], c_yr.shape)
+    # Van Stempvoort, Ewert & Wassenaar (1993): log10(c / 1 yr) < 1, 1-2, 2-3, 3-4, >= 4
+    # give classes 1 (extremely high vulnerability) to 5 (extremely low); by hand here.
+    inside = np.isfinite(c_yr)
+    expected = np.select([c_yr < 10, c_yr < 100, c_yr < 1000, c_yr < 10_000], [1, 2, 3, 4], 5)
+    np.testing.assert_array_equal(got[inside], expected[inside])
+    assert np.all(np.isnan(got[~inside]))
+    # The tiny run's resistance spans 79 to 3090 years: classes 2, 3 and 4 occur.
+    assert set(np.unique(got[inside])) == {2.0, 3.0, 4.0}
+    assert item["classes"]["2"] == "High vulnerability (resistance 10–100 years)"
+
+
+def test_p_thin_grid_is_preferred_and_unknown_grids_are_listed(tmp_path: Path) -> None:
+    build_run_folder(tmp_path)
+    shutil.copy(tmp_path / outputs.P_THIN, tmp_path / "p_thin.tif")
+    shutil.copy(tmp_path / outputs.TRAVEL_TIME, tmp_path / "diffusion_time_yr.tif")
+    with rasterio.open(tmp_path / "diffusion_time_yr.tif", "r+") as dst:
+        dst.set_band_description(1, "diffusive time scale B²/De")
+        dst.update_tags(1, units="years")
+    titles = _grid_titles(write_map(tmp_path).read_text(encoding="utf-8"))
+    assert "Chance the clay is thinner than 5 m (%)" in titles
+    assert not any("approximate" in t for t in titles)
+    assert titles[-1] == "Diffusive time scale B²/De (years)"
 
 
 def test_self_contained_inlines_local_leaflet(tmp_path: Path,
@@ -309,6 +332,7 @@ def test_self_contained_inlines_local_leaflet(tmp_path: Path,
     assert base64.b64encode(b"\x89PNG-fake").decode() in page
     assert not re.search(r"<(script|link)\b[^>]*\b(src|href)=", page)
     assert "tile.openstreetmap" not in page and "L.tileLayer" not in page
+    assert "basemap" not in _toggles(page)
 
 
 def test_missing_local_leaflet_is_a_clear_error(tmp_path: Path) -> None:
@@ -349,7 +373,7 @@ def _check_fit(fit: dict, bounds: tuple[float, float, float, float], tol_m: floa
 def test_clicked_point_shows_project_coordinates_as_pyproj_gives(
         tiny_run: tuple[Path, str]) -> None:
     _, page = tiny_run
-    fit = json.loads(re.search(r"var fit = (\{.*?\});", page).group(1))
+    fit = _config_value(page, "fit")
     assert fit["crs"] == "EPSG:32632"
     to_lonlat = Transformer.from_crs(CRS_UTM32, 4326, always_xy=True)
     bounds = to_lonlat.transform_bounds(X0, Y0, X0 + 1000, Y0 + 750)
@@ -358,10 +382,10 @@ def test_clicked_point_shows_project_coordinates_as_pyproj_gives(
 
 def test_coordinate_fit_holds_over_a_40_km_project() -> None:
     bounds = (8.7, 54.9, 9.35, 55.25)  # about 41 km x 39 km
-    fit = _lonlat_to_xy_fit(CRS_UTM32, bounds)
+    fit = lonlat_to_xy_fit(CRS_UTM32, bounds)
     assert fit is not None and fit["max_miss_m"] < 0.5
     _check_fit(fit, bounds, tol_m=0.5)
-    assert _lonlat_to_xy_fit(CRS.from_epsg(4326), bounds) is None  # lon/lat project: no fit
+    assert lonlat_to_xy_fit(CRS.from_epsg(4326), bounds) is None  # lon/lat project: no fit
 
 
 def test_self_contained_with_system_leaflet(tmp_path: Path) -> None:
@@ -371,7 +395,7 @@ def test_self_contained_with_system_leaflet(tmp_path: Path) -> None:
         pytest.skip("no local Leaflet (Debian package libjs-leaflet) on this machine")
     build_run_folder(tmp_path)
     page = write_map(tmp_path, self_contained=True).read_text(encoding="utf-8")
-    assert "L.imageOverlay" in page and "L.control.layers" in page
+    assert "L.imageOverlay" in page and "aqmStart(" in page
     assert assets.leaflet_js.read_text(encoding="utf-8")[:200] in page
     assert "images/layers.png" not in page and "data:image/png;base64," in page
     assert not re.search(r"<(script|link)\b[^>]*\b(src|href)=", page)
@@ -385,7 +409,7 @@ def test_empty_zone_and_borehole_layers_say_so(tmp_path: Path) -> None:
         (tmp_path / name).unlink()
         empty.to_file(tmp_path / name, layer=layer, driver="GPKG")
     page = write_map(tmp_path).read_text(encoding="utf-8")
-    assert _overlay_names(page)[-2:] == ["Flagged zones (window, thin, fast)", "Boreholes"]
+    assert _toggles(page)[-2:] == ["zones", "holes"]
     assert "No zones were flagged in this run" in page and "No boreholes" in page
 
 
@@ -396,9 +420,38 @@ def test_hole_through_no_clay_is_drawn_as_a_window(tmp_path: Path) -> None:
     (tmp_path / outputs.BOREHOLES).unlink()
     holes.to_file(tmp_path / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
     page = write_map(tmp_path).read_text(encoding="utf-8")
-    props = [f["properties"] for g in _geojson_payloads(page) for f in g["features"]
-             if "OV-101" in f["properties"].get("popup_html", "")]
-    assert [p["category"] for p in props] == ["window"]
+    props = _hole_props(page)["OV-101"]
+    assert props["category"] == "window"
     assert "none (the hole reached the aquifer without passing through clay)" in \
-        props[0]["popup_html"]
+        props["popup_html"]
     assert "Reached the aquifer through no clay (proves a window) (1)" in page
+
+
+def test_strip_log_is_drawn_to_depth_scale() -> None:
+    ivs = parse_log("0.0–2.1 SAND; 2.1–23.3 UMC; junk; 23.3–31.0 GRAV")
+    assert [(i.top_m, i.bottom_m, i.unit) for i in ivs] == [
+        (0.0, 2.1, "SAND"), (2.1, 23.3, "UMC"), (23.3, 31.0, "GRAV")]
+    colours = unit_colours([{"code": "SAND", "role": "cover"},
+                            {"code": "UMC", "role": "aquitard"},
+                            {"code": "GRAV", "role": "aquifer"}])
+    svg = strip_log_svg(ivs, colours, total_depth_m=31.0, reached_aquifer=True,
+                        title="Log <x>", height_px=160)
+    rects = re.findall(r'<rect x="34.0" y="([\d.]+)" width="26.0" height="([\d.]+)" '
+                       r'fill="(#[0-9a-f]{6})"', svg)
+    # 134 px of column for 31 m of hole: each interval's height is its length x 134/31.
+    heights = [float(h) for _, h, _ in rects[1:]]
+    assert heights == pytest.approx([2.1 * 134 / 31, 21.2 * 134 / 31, 7.7 * 134 / 31],
+                                    abs=0.06)
+    assert [c for _, _, c in rects[1:]] == [colours["SAND"], colours["UMC"], colours["GRAV"]]
+    assert "<title>Log &lt;x&gt;</title>" in svg and "hole ends" not in svg
+    stopped = strip_log_svg(ivs[:2], colours, total_depth_m=25.0, reached_aquifer=False)
+    assert "hole ends" in stopped
+    assert strip_log_svg([], colours, total_depth_m=5.0, reached_aquifer=False) == ""
+
+
+def test_unit_colours_follow_roles() -> None:
+    colours = unit_colours([{"code": "S", "role": "cover"}, {"code": "C1", "role": "aquitard"},
+                            {"code": "C2", "role": "aquitard"}, {"code": "G", "role": "aquifer"},
+                            {"code": "X", "role": "bedrock"}])
+    assert len({colours["C1"], colours["C2"], colours["S"], colours["G"]}) == 4
+    assert colours["X"] == "#bdbdbd"

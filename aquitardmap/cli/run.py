@@ -10,16 +10,26 @@ from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeEl
 from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
 from aquitardmap.pipeline import run
+from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
 
 
 @click.command("run")
 @click.argument("project", type=click.Path(path_type=Path))
 @click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
               help="Folder for the outputs; replaced as a whole only when the run succeeds.")
+@click.option("--offline-map", "offline_map", is_flag=True,
+              help="Write a map.html that opens without network: Leaflet inlined from a local "
+                   "copy (Debian's libjs-leaflet, a global npm leaflet, or the folder in "
+                   "AQUITARDMAP_WEB_ASSETS) and no background map tiles.")
 @click.option("--debug", is_flag=True, help="Show the traceback of an internal error.")
-def run_command(project: Path, out_dir: Path, debug: bool) -> None:
+def run_command(project: Path, out_dir: Path, offline_map: bool, debug: bool) -> None:
     """Run every stage on the PROJECT folder and write grids, zones, boreholes, summary and
     the planners' map to --out."""
+    if offline_map:
+        try:
+            find_web_assets()
+        except WebAssetsNotFound as exc:
+            raise click.UsageError(str(exc)) from None
     with Progress(SpinnerColumn(), TextColumn("{task.description}"), BarColumn(),
                   TextColumn("{task.completed}/{task.total}"), TimeElapsedColumn(),
                   console=console, transient=False) as bar:
@@ -28,7 +38,8 @@ def run_command(project: Path, out_dir: Path, debug: bool) -> None:
         def progress(stage: str, i: int, n: int) -> None:
             bar.update(task, description=stage, completed=i - 1, total=n)
 
-        result = guarded(lambda: run(project, out_dir, progress=progress), debug)
+        result = guarded(lambda: run(project, out_dir, progress=progress,
+                                     self_contained_map=offline_map), debug)
         bar.update(task, description="Done", completed=5)
     s = result.summary
     areas = s["zones"]["area_m2_by_kind"]

@@ -1,0 +1,401 @@
+"""How the outputs of a run are shown to people: layer titles, units, colours and words.
+
+The web map (:mod:`aquitardmap.webmap`) and the printable report
+(:mod:`aquitardmap.pdfreport`) take every drawing decision from here, so a grid, a zone or
+a borehole looks and reads the same in both.
+
+Continuous grids use perceptually uniform colour maps (viridis, magma, cividis; van der
+Walt & Smith 2015, the matplotlib defaults designed for uniform lightness steps), oriented
+so that *darker means less protection* on every protection layer. Classes (zone kinds,
+borehole categories, vulnerability classes) use our own palette and plain words.
+
+All text here is plain (not HTML-escaped); each writer escapes for its own medium.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+from aquitardmap import outputs
+from aquitardmap.hydraulics import AVI_CLASSES
+
+#: Optional grids that other stages may write; shown when present.
+P_THIN_FILE = "p_thin.tif"
+P_WINDOW_FILE = "p_window.tif"
+AVI_CLASS_FILE = "avi_class.tif"
+
+PROTECTION = "Protection"
+UNCERTAINTY = "Uncertainty"
+UNITS = "Clay units and cover"
+HYDRAULICS = "Hydraulics"
+OTHER = "Other grids"
+GROUPS = (PROTECTION, UNCERTAINTY, UNITS, HYDRAULICS, OTHER)
+
+
+@dataclass(frozen=True)
+class ClassStyle:
+    """One class of a class grid: its integer code, colour and words."""
+
+    code: int
+    colour: str
+    label: str
+
+
+@dataclass(frozen=True)
+class GridStyle:
+    """How one grid file is drawn and named.
+
+    ``factor`` scales stored values for display (100 turns a probability into per cent).
+    ``classes`` is non-empty for class grids (then ``cmap`` is unused).
+    """
+
+    file: str
+    group: str
+    title: str
+    units: str
+    cmap: str = "viridis"
+    log: bool = False
+    fixed_range: tuple[float, float] | None = None
+    factor: float = 1.0
+    note: str = ""
+    classes: tuple[ClassStyle, ...] = field(default_factory=tuple)
+    derived_from: str = ""  # a class grid computed from another file, when its own is absent
+    short: str = ""  # name in a layer list, when shorter than the title
+
+    @property
+    def label(self) -> str:
+        """Title with units, as a layer list shows it."""
+        if self.classes or not self.units:
+            return self.title
+        return f"{self.title} ({self.units}{', log scale' if self.log else ''})"
+
+
+# Our own palette for the Aquifer Vulnerability Index classes, darkest = most vulnerable,
+# in step with "darker means less protection" on the continuous layers.
+_AVI_COLOURS = {1: "#4a1248", 2: "#9c2f5e", 3: "#d9704a", 4: "#efc15a", 5: "#f6f0cf"}
+
+
+def avi_classes() -> tuple[ClassStyle, ...]:
+    """The AVI classes (Van Stempvoort, Ewert & Wassenaar 1993) with colours and words.
+
+    Labels say the vulnerability and the resistance range, e.g. ``"High vulnerability
+    (resistance 10–100 years)"``; bounds come from :data:`aquitardmap.hydraulics.AVI_CLASSES`.
+    """
+    out = []
+    for code, lower, upper, words in AVI_CLASSES:
+        if math.isinf(lower):
+            rng = f"under {10 ** upper:g} years"
+        elif math.isinf(upper):
+            rng = f"{10 ** lower:g} years or more"
+        else:
+            rng = f"{10 ** lower:g}–{10 ** upper:g} years"
+        out.append(ClassStyle(code, _AVI_COLOURS.get(code, "#888888"),
+                              f"{words.capitalize()} vulnerability (resistance {rng})"))
+    return tuple(out)
+
+
+def fmt_threshold(value: float) -> str:
+    """A threshold as a person wrote it: 5 -> '5', 0.5 -> '0.5'."""
+    return f"{value:g}"
+
+
+def _float(value: Any) -> float | None:
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return out if math.isfinite(out) else None
+
+
+def thresholds(summary: dict[str, Any]) -> dict[str, float | None]:
+    """Screening thresholds from the summary (None where missing)."""
+    t = summary.get("thresholds") if isinstance(summary.get("thresholds"), dict) else {}
+    return {k: _float(t.get(k)) for k in ("window_thickness_m", "thin_thickness_m",
+                                         "fast_travel_time_yr")}
+
+
+def gradient_words(summary: dict[str, Any]) -> str:
+    """How the vertical gradient was set, from the summary ("unit gradient" by default)."""
+    hyd = summary.get("hydraulics") if isinstance(summary.get("hydraulics"), dict) else {}
+    text = str(hyd.get("gradient_assumption") or "").strip()
+    return text or "stated uniform vertical gradient"
+
+
+def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
+                descriptions: dict[str, tuple[str, str]] | None = None) -> list[GridStyle]:
+    """The grids of a run folder to draw, in display order, each with its style.
+
+    Args:
+        files: names of the files in the run folder.
+        summary: the run's ``summary.json`` (``{}`` when missing).
+        descriptions: ``{file: (description, units)}`` from the GeoTIFF metadata, used for
+            grids this module does not know (they are listed last, under "Other grids").
+
+    The better of two probability grids is shown: ``p_thin.tif`` (from the geostatistics
+    stage) over ``p_thin_approx.tif``. Without ``avi_class.tif`` the vulnerability class is
+    derived from ``resistance_yr.tif`` (``derived_from`` says so).
+    """
+    files = set(files)
+    t = thresholds(summary)
+    thin = t["thin_thickness_m"]
+    window = t["window_thickness_m"]
+    thin_words = f"thinner than {fmt_threshold(thin)} m" if thin is not None else "thin"
+    styles: list[GridStyle] = [
+        GridStyle(outputs.AQUITARD_THICKNESS, PROTECTION, "Total clay (aquitard) thickness",
+                  "m", "viridis", note="Darker = thinner clay, less protection.",
+                  short="Clay thickness"),
+    ]
+    if P_THIN_FILE in files:
+        styles.append(GridStyle(P_THIN_FILE, PROTECTION, f"Chance the clay is {thin_words}",
+                                "%", "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
+                                note="Darker = more likely thin.",
+                                short=f"Chance of clay {thin_words}"))
+    elif outputs.P_THIN in files:
+        styles.append(GridStyle(outputs.P_THIN, PROTECTION,
+                                f"Chance the clay is {thin_words} (approximate)", "%",
+                                "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
+                                note="Darker = more likely thin. Approximate: assumes a "
+                                "Gaussian error of the kriged thickness.",
+                                short=f"Chance of clay {thin_words}"))
+    if P_WINDOW_FILE in files:
+        words = (f"absent (under {fmt_threshold(window)} m)" if window is not None
+                 else "absent")
+        styles.append(GridStyle(P_WINDOW_FILE, PROTECTION, f"Chance the clay is {words}", "%",
+                                "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
+                                note="Darker = more likely a window.",
+                                short="Chance of no clay (window)"))
+    styles.append(GridStyle(outputs.TRAVEL_TIME, PROTECTION, "Travel time down to the aquifer",
+                            "years", "viridis", log=True,
+                            note=f"Darker = faster. Advective; {gradient_words(summary)}.",
+                            short="Travel time to the aquifer"))
+    if AVI_CLASS_FILE in files:
+        styles.append(GridStyle(AVI_CLASS_FILE, PROTECTION, "Aquifer vulnerability class (AVI)",
+                                "", classes=avi_classes(), short="Vulnerability class (AVI)",
+                                note="Van Stempvoort, Ewert & Wassenaar (1993)."))
+    elif outputs.RESISTANCE in files:
+        styles.append(GridStyle(AVI_CLASS_FILE, PROTECTION, "Aquifer vulnerability class (AVI)",
+                                "", classes=avi_classes(), derived_from=outputs.RESISTANCE,
+                                short="Vulnerability class (AVI)",
+                                note="Van Stempvoort, Ewert & Wassenaar (1993); from the "
+                                "hydraulic resistance grid."))
+    styles.append(GridStyle(outputs.AQUITARD_THICKNESS_SD, UNCERTAINTY,
+                            "Uncertainty of the clay thickness (one standard deviation)", "m",
+                            "cividis_r", note="Darker = less certain; largest far from "
+                            "boreholes.", short="Thickness uncertainty (± 1 SD)"))
+    listed: set[str] = set()
+    for unit in summary.get("units") or []:
+        if not isinstance(unit, dict):
+            continue
+        code = str(unit.get("code") or "").strip()
+        name = str(unit.get("name") or code).strip()
+        if not code or code in listed or "/" in code or "\\" in code:
+            continue
+        f = outputs.unit_thickness(code)
+        if f in files:
+            listed.add(code)
+            styles.append(GridStyle(f, UNITS, f"{name} [{code}] thickness", "m", "viridis",
+                                    short=f"{name} [{code}]"))
+    prefix, suffix = outputs.unit_thickness("*").split("*")
+    for f in sorted(files):
+        if f.startswith(prefix) and f.endswith(suffix):
+            code = f[len(prefix):-len(suffix)]
+            if code and code not in listed:
+                listed.add(code)
+                styles.append(GridStyle(f, UNITS, f"Unit {code} thickness", "m", "viridis",
+                                        short=f"Unit {code}"))
+    styles += [
+        GridStyle(outputs.COVER_THICKNESS, UNITS, "Cover above the clay, thickness", "m",
+                  "cividis", short="Cover above the clay"),
+        GridStyle(outputs.KV, HYDRAULICS, "Vertical hydraulic conductivity of the column, Kv",
+                  "m/s", "magma_r", log=True, note="Darker = more permeable.",
+                  short="Vertical conductivity Kv"),
+        GridStyle(outputs.LEAKANCE, HYDRAULICS, "Leakance of the column", "1/s", "magma_r",
+                  log=True, note="Darker = leakier.", short="Leakance"),
+        GridStyle(outputs.RESISTANCE, HYDRAULICS, "Hydraulic resistance of the column",
+                  "years", "viridis", log=True, note="Darker = less resistance.",
+                  short="Hydraulic resistance"),
+    ]
+    styles = [s for s in styles if s.file in files or s.derived_from in files]
+    known = {s.file for s in styles} | {outputs.P_THIN, P_THIN_FILE}
+    for f in sorted(files):
+        if f.endswith(".tif") and f not in known:
+            desc, units = (descriptions or {}).get(f, ("", ""))
+            title = desc.strip() or f[:-4].replace("_", " ")
+            styles.append(GridStyle(f, OTHER, title[:1].upper() + title[1:], units.strip(),
+                                    "viridis"))
+    return styles
+
+
+# --------------------------------------------------------------------------- zones
+
+ZONE_COLOURS = {"window": "#d7191c", "thin": "#f59b1a", "fast": "#1f9fd9"}
+ZONE_OTHER_COLOUR = "#6d6d6d"
+
+
+def zone_labels(summary: dict[str, Any]) -> dict[str, str]:
+    """Plain-language name of each zone kind, with its threshold when the summary has it."""
+    t = thresholds(summary)
+    labels = {"window": "Window: clay absent", "thin": "Thin clay", "fast": "Fast path"}
+    if t["window_thickness_m"] is not None:
+        labels["window"] += f" (under {fmt_threshold(t['window_thickness_m'])} m)"
+    if t["thin_thickness_m"] is not None:
+        labels["thin"] += f" (under {fmt_threshold(t['thin_thickness_m'])} m)"
+    if t["fast_travel_time_yr"] is not None:
+        labels["fast"] += (f": travel time under {fmt_threshold(t['fast_travel_time_yr'])}"
+                           " years")
+    return labels
+
+
+# --------------------------------------------------------------------------- boreholes
+
+
+@dataclass(frozen=True)
+class HoleStyle:
+    fill: str
+    edge: str
+    label: str
+
+
+#: What a borehole proves, in legend order.
+HOLE_STYLES: dict[str, HoleStyle] = {
+    "window": HoleStyle("#d7191c", "#222222", "Reached the aquifer through no clay (proves a "
+                        "window)"),
+    "thin": HoleStyle("#f59b1a", "#222222", "Reached the aquifer through thin clay"),
+    "full": HoleStyle("#2c7bb6", "#222222", "Reached the aquifer: full clay thickness"),
+    "lower_bound": HoleStyle("#ffffff", "#222222", "Stopped in the clay: thickness is a lower "
+                             "bound"),
+    "unknown": HoleStyle("#a0a0a0", "#222222", "Stopped above the clay: says nothing about it"),
+    "suspicious": HoleStyle("#000000", "#ffffff", "Suspicious (QA-flagged) or excluded"),
+}
+
+
+def truthy(value: Any) -> bool:
+    """Booleans as GeoPackages deliver them: bool, 0/1, 'true'/'yes'; missing is False."""
+    if value is None:
+        return False
+    if isinstance(value, str):
+        return value.strip().lower() in {"1", "true", "yes", "y", "t"}
+    try:
+        if math.isnan(value):
+            return False
+    except TypeError:
+        pass
+    return bool(value)
+
+
+def hole_category(*, reached_aquifer: bool, status: str, proves_window: bool,
+                  proves_thin: bool, suspicious: bool) -> str:
+    """Key of :data:`HOLE_STYLES` for one borehole.
+
+    Suspicious (QA-flagged or excluded) holes are their own category: what they seem to
+    prove is in doubt. ``status`` is the aquitard status (``full``, ``lower_bound``,
+    ``unknown``).
+    """
+    if suspicious:
+        return "suspicious"
+    if proves_window:
+        return "window"
+    if status == "full" or (reached_aquifer and status not in {"lower_bound", "unknown"}):
+        return "thin" if proves_thin else "full"
+    if status == "lower_bound":
+        return "lower_bound"
+    return "unknown"
+
+
+# --------------------------------------------------------------------------- units in logs
+
+_ROLE_PALETTES = {
+    "cover": ("#e9d48f", "#d8bd70", "#f1e3b4"),
+    "aquitard": ("#8d6e52", "#b09275", "#6c5643", "#c8b197", "#9a8060"),
+    "aquifer": ("#7db5dc", "#5b97c4", "#a6cde8"),
+}
+_OTHER_UNIT_COLOUR = "#bdbdbd"
+
+
+def unit_colours(units: list[dict[str, Any]]) -> dict[str, str]:
+    """Colour of each unit code for strip logs: sandy for cover, browns for clays, blues
+    for aquifers, grey otherwise; units of one role take its colours in stack order."""
+    out: dict[str, str] = {}
+    seen: dict[str, int] = {}
+    for unit in units:
+        if not isinstance(unit, dict):
+            continue
+        code = str(unit.get("code") or "")
+        role = str(unit.get("role") or "")
+        palette = _ROLE_PALETTES.get(role)
+        if not code or code in out:
+            continue
+        if palette is None:
+            out[code] = _OTHER_UNIT_COLOUR
+            continue
+        i = seen.get(role, 0)
+        seen[role] = i + 1
+        out[code] = palette[i % len(palette)]
+    return out
+
+
+def unit_colour(colours: dict[str, str], code: str) -> str:
+    return colours.get(code, _OTHER_UNIT_COLOUR)
+
+
+# --------------------------------------------------------------------------- numbers
+
+
+def fmt_sig(value: float | None, digits: int = 3) -> str:
+    """A number with ``digits`` significant figures, no exponent for everyday magnitudes."""
+    if value is None:
+        return "n/a"
+    if value == 0:
+        return "0"
+    if 1e-3 <= abs(value) < 1e6:
+        decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(value)))))
+        return f"{value:.{decimals}f}"
+    return f"{value:.{digits - 1}e}"
+
+
+def fmt_m(value: float | None) -> str:
+    return "n/a" if value is None else f"{value:.1f} m"
+
+
+def fmt_area(area_m2: float | None) -> str:
+    """An area in hectares below 1 km², else in km² (1 ha = 10⁴ m², 1 km² = 10⁶ m²)."""
+    if area_m2 is None:
+        return "n/a"
+    if area_m2 < 1e6:
+        return f"{area_m2 / 1e4:.1f} ha"
+    return f"{area_m2 / 1e6:.2f} km²"
+
+
+def fmt_percent(p: float | None) -> str:
+    """A probability 0..1 as a whole per cent; below 1 % and above 99 % say so."""
+    if p is None:
+        return "n/a"
+    pct = 100.0 * p
+    if 0 < pct < 1:
+        return "under 1 %"
+    if 99 < pct < 100:
+        return "over 99 %"
+    return f"{pct:.0f} %"
+
+
+def fmt_years(value: float | None) -> str:
+    """A duration in years; under a year in days (a year of 365.25 days)."""
+    if value is None:
+        return "n/a"
+    days = value * 365.25
+    if days < 1:
+        return "under 1 day"
+    if value < 1:
+        return f"{days:.0f} days"
+    return f"{fmt_sig(value, 2)} years"
+
+
+__all__ = [
+    "AVI_CLASS_FILE", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
+    "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "avi_classes", "fmt_area",
+    "fmt_m", "fmt_percent", "fmt_sig", "fmt_threshold", "fmt_years", "gradient_words",
+    "grid_styles", "hole_category", "thresholds", "truthy", "unit_colour", "unit_colours",
+    "zone_labels",
+]

@@ -1,0 +1,284 @@
+"""Vector layers of the map: flagged zones, boreholes (with strip-log popups), the study
+area outline. Every property handed to the page is escaped HTML built here."""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import folium
+import geopandas as gpd
+import numpy as np
+import shapely
+from affine import Affine
+from pyproj import CRS
+from rasterio.features import shapes
+from shapely.geometry import shape
+from shapely.ops import unary_union
+
+from aquitardmap.presentation import (
+    HOLE_STYLES,
+    ZONE_COLOURS,
+    ZONE_OTHER_COLOUR,
+    fmt_area,
+    fmt_m,
+    fmt_percent,
+    fmt_years,
+    hole_category,
+    truthy,
+)
+from aquitardmap.webmap.markup import esc
+from aquitardmap.webmap.overlays import LONLAT
+from aquitardmap.webmap.striplog import parse_log, strip_log_svg
+
+
+def _missing(value: Any) -> bool:
+    if value is None:
+        return True
+    try:
+        return bool(np.isnan(value))
+    except (TypeError, ValueError):
+        return False
+
+
+def _text(value: Any) -> str:
+    """A column value as plain (unescaped) text; missing is ''."""
+    return "" if _missing(value) else str(value).strip()
+
+
+def _float(value: Any) -> float | None:
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return out if math.isfinite(out) else None
+
+
+def _column(gdf: gpd.GeoDataFrame, name: str) -> list[Any]:
+    return list(gdf[name]) if name in gdf.columns else [None] * len(gdf)
+
+
+def feature_collection(gdf: gpd.GeoDataFrame, properties: list[dict[str, Any]]
+                       ) -> dict[str, Any]:
+    """GeoJSON with our own (already escaped) properties; coordinates rounded to ~1 cm."""
+    geoms = shapely.transform(gdf.geometry.values, lambda xy: np.round(xy, 7))
+    return {
+        "type": "FeatureCollection",
+        "features": [
+            {"type": "Feature", "id": str(i), "properties": props,
+             "geometry": json.loads(shapely.to_geojson(geom))}
+            for i, (geom, props) in enumerate(zip(geoms, properties, strict=True))
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- zones
+
+
+def zone_tooltip(row: dict[str, Any], labels: dict[str, str]) -> str:
+    """Tooltip HTML of one zone: kind, area, probability, thickness, reason."""
+    kind = _text(row.get("kind")).lower()
+    label = esc(labels.get(kind, f"Zone ({_text(row.get('kind')) or 'unspecified'})"))
+    lines = [f"<b>{label}</b>", f"Area: {fmt_area(_float(row.get('area_m2')))}"]
+    p_thin = _float(row.get("mean_p_thin"))
+    if p_thin is not None:
+        lines.append(f"Chance the clay is thin (mean over the zone): {fmt_percent(p_thin)}")
+    p_window = _float(row.get("mean_p_window"))
+    if p_window is not None:
+        lines.append(f"Chance the clay is absent (mean over the zone): "
+                     f"{fmt_percent(p_window)}")
+    lines.append(f"Clay thickness: mean {fmt_m(_float(row.get('mean_thickness_m')))}, least "
+                 f"{fmt_m(_float(row.get('min_thickness_m')))}, uncertainty ± "
+                 f"{fmt_m(_float(row.get('mean_sd_m')))}")
+    travel = _float(row.get("mean_travel_time_yr"))
+    if travel is not None:
+        lines.append(f"Travel time to the aquifer (mean): {fmt_years(travel)}")
+    n = _float(row.get("n_boreholes"))
+    lines.append(f"Boreholes inside: {'n/a' if n is None else int(n)}")
+    reason = _text(row.get("reason"))
+    if reason:
+        lines.append(f"<i>Why: {esc(reason)}</i>")
+    return "<br>".join(lines)
+
+
+def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
+                ) -> tuple[folium.GeoJson, list[tuple[str, str, str]]]:
+    """Zones (lon/lat) as a GeoJson layer with tooltips, and its legend rows
+    (fill, edge, label html) with the count and area of each kind."""
+    # Drawn in this order: thin, window, then fast paths on top (their outline is open).
+    order = {"thin": 0, "window": 1, "fast": 2}
+    gdf = gdf.iloc[sorted(range(len(gdf)), key=lambda i: order.get(
+        _text(gdf["kind"].iloc[i]).lower() if "kind" in gdf.columns else "", -1))]
+    rows = gdf.drop(columns="geometry").to_dict("records")
+    props = [{"kind": _text(r.get("kind")).lower(), "tooltip_html": zone_tooltip(r, labels)}
+             for r in rows]
+    data = feature_collection(gdf, props)
+
+    def style(feature: dict[str, Any]) -> dict[str, Any]:
+        kind = feature["properties"]["kind"]
+        colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
+        if kind == "fast":  # may coincide with a window: an open dashed outline on top
+            return {"color": colour, "weight": 3, "dashArray": "7 5", "fillColor": colour,
+                    "fillOpacity": 0.08}
+        return {"color": colour, "weight": 2.5, "fillColor": colour, "fillOpacity": 0.2}
+
+    def highlight(feature: dict[str, Any]) -> dict[str, Any]:
+        return {"weight": 4, "fillOpacity": 0.4}
+
+    has = bool(data["features"])
+    layer = folium.GeoJson(
+        data, name="Flagged zones", style_function=style,
+        highlight_function=highlight if has else None,
+        tooltip=(folium.GeoJsonTooltip(fields=["tooltip_html"], labels=False,
+                                       class_name="aqm-tip", sticky=True) if has else None),
+        control=False,
+    )
+    legend = []
+    kinds = [p["kind"] for p in props]
+    areas = [_float(r.get("area_m2")) or 0.0 for r in rows]
+    for k, colour in ZONE_COLOURS.items():
+        n = kinds.count(k)
+        area = sum(a for kk, a in zip(kinds, areas, strict=True) if kk == k)
+        extra = f" — {n} zone{'s' if n != 1 else ''}, {fmt_area(area)}" if n else " — none"
+        legend.append((colour, colour, esc(labels.get(k, k)) + extra))
+    if set(kinds) - set(ZONE_COLOURS):
+        legend.append((ZONE_OTHER_COLOUR, ZONE_OTHER_COLOUR, "Other zone"))
+    if not has:
+        legend = [("transparent", "#999999", "No zones were flagged in this run")]
+    return layer, legend
+
+
+# --------------------------------------------------------------------------- boreholes
+
+_HOLE_COLUMNS = ["borehole_id", "ground_elev_m", "total_depth_m", "reached_aquifer",
+                 "bottom_unit", "aquitard_thickness_m", "status_aquitard", "proves_window",
+                 "proves_thin", "qa_flags", "excluded", "log", "dem_misfit_m",
+                 "depth_to_aquifer_m"]
+
+
+def _thickness_text(status: str, thickness_m: float | None, category: str) -> str:
+    if category == "window" and (thickness_m is None or thickness_m == 0):
+        return "none (the hole reached the aquifer without passing through clay)"
+    if thickness_m is None:
+        return "not known"
+    if status == "lower_bound":
+        return f"≥ {thickness_m:.1f} m (hole stopped in clay)"
+    if status == "unknown":
+        return f"{thickness_m:.1f} m (not confirmed: the hole stopped above the clay)"
+    return f"{thickness_m:.1f} m"
+
+
+def _interval_table(log_text: str, names: dict[str, str]) -> str:
+    ivs = parse_log(log_text)
+    if not ivs:
+        return (f'<div class="aqm-log">{esc(log_text)}</div>' if log_text else "")
+    rows = "".join(
+        f"<tr><td>{iv.top_m:g}–{iv.bottom_m:g} m</td><td>{esc(names.get(iv.unit, iv.unit))}"
+        f" [{esc(iv.unit)}]</td><td>{iv.bottom_m - iv.top_m:.1f} m</td></tr>" for iv in ivs)
+    return ('<table class="aqm-ivs"><tr><th>Depth</th><th>Unit</th><th>Thickness</th></tr>'
+            f"{rows}</table>")
+
+
+def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
+                   names: dict[str, str]) -> str:
+    """Popup HTML of one borehole: what it proves, its values, its log as a strip."""
+    hole_id = _text(row.get("borehole_id")) or "(no id)"
+    status = _text(row.get("status_aquitard")).lower()
+    reached = truthy(row.get("reached_aquifer"))
+    what = HOLE_STYLES[category].label
+    if category == "suspicious":
+        what = ("Excluded from the estimates" if truthy(row.get("excluded"))
+                else "Suspicious: QA-flagged")
+    facts = [
+        f"Clay (aquitard) thickness: <b>{_thickness_text(status, _float(row.get('aquitard_thickness_m')), category)}</b>",  # noqa: E501
+    ]
+    depth_aq = _float(row.get("depth_to_aquifer_m"))
+    facts.append("Reached the aquifer: " + (
+        f"yes, at {depth_aq:.1f} m" if reached and depth_aq is not None
+        else "yes" if reached else "no"))
+    facts.append(f"Ground elevation: {fmt_m(_float(row.get('ground_elev_m')))}")
+    facts.append(f"Drilled depth: {fmt_m(_float(row.get('total_depth_m')))}")
+    misfit = _float(row.get("dem_misfit_m"))
+    if misfit is not None:
+        facts.append(f"Collar minus DEM: {misfit:+.1f} m")
+    flags = _text(row.get("qa_flags"))
+    if flags:
+        facts.append(f'<span class="aqm-flag">QA: {esc(flags)}</span>')
+    if truthy(row.get("excluded")):
+        facts.append('<span class="aqm-flag">Not used in the estimates.</span>')
+    log_text = _text(row.get("log"))
+    svg = strip_log_svg(parse_log(log_text), colours,
+                        total_depth_m=_float(row.get("total_depth_m")),
+                        reached_aquifer=reached, title=f"Log of borehole {hole_id}")
+    return (f'<div class="aqm-popup"><div class="aqm-popup-title">{esc(hole_id)}</div>'
+            f'<div class="aqm-popup-what">{esc(what)}</div>'
+            f'<div class="aqm-popup-body">{svg}<div class="aqm-facts">{"<br>".join(facts)}'
+            f"</div></div>{_interval_table(log_text, names)}</div>")
+
+
+def _is_suspicious(row: dict[str, Any]) -> bool:
+    return (bool(_text(row.get("qa_flags"))) or truthy(row.get("excluded"))
+            or truthy(row.get("suspicious")))
+
+
+def boreholes_layer(gdf: gpd.GeoDataFrame, colours: dict[str, str], names: dict[str, str]
+                    ) -> tuple[folium.GeoJson, dict[str, int]]:
+    """Boreholes (lon/lat) as circle markers with popups, and the count per category."""
+    props = []
+    counts = dict.fromkeys(HOLE_STYLES, 0)
+    for row in gdf.drop(columns="geometry").to_dict("records"):
+        category = hole_category(
+            reached_aquifer=truthy(row.get("reached_aquifer")),
+            status=_text(row.get("status_aquitard")).lower(),
+            proves_window=truthy(row.get("proves_window")),
+            proves_thin=truthy(row.get("proves_thin")), suspicious=_is_suspicious(row))
+        counts[category] += 1
+        hole_id = esc(_text(row.get("borehole_id")) or "(no id)")
+        label = HOLE_STYLES[category].label
+        props.append({"category": category,
+                      "popup_html": borehole_popup(row, category, colours, names),
+                      "tooltip_html": f"<b>{hole_id}</b>: {esc(label)}"})
+    data = feature_collection(gdf, props)
+
+    def style(feature: dict[str, Any]) -> dict[str, Any]:
+        s = HOLE_STYLES[feature["properties"]["category"]]
+        return {"fillColor": s.fill, "color": s.edge}
+
+    marker = folium.CircleMarker(radius=5.5, weight=1.5, fill=True, fill_opacity=0.95,
+                                 bubbling_mouse_events=False)
+    has = bool(data["features"])
+    layer = folium.GeoJson(
+        data, name="Boreholes", marker=marker, style_function=style if has else None,
+        popup=(folium.GeoJsonPopup(fields=["popup_html"], labels=False, class_name="aqm-pop",
+                                   style="",
+                                   max_width=380) if has else None),
+        tooltip=(folium.GeoJsonTooltip(fields=["tooltip_html"], labels=False,
+                                       class_name="aqm-tip") if has else None),
+        control=False,
+    )
+    return layer, counts
+
+
+# --------------------------------------------------------------------------- outline
+
+
+def study_area_outline(values: np.ndarray, transform: Affine, crs: CRS
+                       ) -> gpd.GeoDataFrame | None:
+    """The outline of the cells with data (the study area), in lon/lat."""
+    mask = np.isfinite(values)
+    if not mask.any():
+        return None
+    polys = [shape(geom) for geom, val in shapes(mask.astype(np.uint8), mask=mask,
+                                                 transform=transform) if val == 1]
+    area = unary_union(polys)
+    return gpd.GeoDataFrame(geometry=[area.boundary], crs=crs).to_crs(LONLAT)
+
+
+def outline_layer(outline: gpd.GeoDataFrame) -> folium.GeoJson:
+    data = feature_collection(outline, [{}] * len(outline))
+    return folium.GeoJson(
+        data, name="Study area", control=False, interactive=False,
+        style_function=lambda f: {"color": "#333333", "weight": 1.5, "dashArray": "6 4",
+                                  "fill": False},
+    )

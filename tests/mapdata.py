@@ -1,0 +1,121 @@
+"""A tiny invented run folder for the map and report tests (not a test module).
+
+A 20 x 15 grid of 50 m cells in EPSG:32632 whose NE corner (6 x 5 cells) lies outside the
+study area; total clay thickness rises linearly from 0.75 m in the west column to
+29.25 m in the east; 3 zones; 3 boreholes, one of them with a hostile id.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+from pyproj import CRS
+from shapely.geometry import Point, Polygon, box
+
+from aquitardmap import outputs
+from aquitardmap.grid import make_grid, write_raster
+
+CRS_UTM32 = CRS.from_epsg(32632)
+X0, Y0, CELL_M = 500_000.0, 6_100_000.0, 50.0  # 20 x 15 cells
+EVIL_ID = "<img src=x onerror=alert(1)>"
+EVIL_UNIT = "Lower clay <script>alert(2)</script>"
+TEMPLATE_TRAP = "{{ 7*7 }}"  # folium re-reads layer code as a Jinja template
+KV_M_S = 3e-10
+SECONDS_PER_YEAR = 3.15576e7  # Julian year (365.25 d x 86 400 s)
+
+#: The boreholes: id -> (x, y) in EPSG:32632.
+HOLE_XY = {"OV-101": (X0 + 725, Y0 + 125), "OV-102": (X0 + 325, Y0 + 425),
+           EVIL_ID: (X0 + 60, Y0 + 60)}
+
+
+def study_area() -> Polygon:
+    # The NE corner (a 6 x 5 cell notch) is outside the study area.
+    return Polygon([(X0, Y0), (X0 + 1000, Y0), (X0 + 1000, Y0 + 500), (X0 + 700, Y0 + 500),
+                    (X0 + 700, Y0 + 750), (X0, Y0 + 750)])
+
+
+def thickness_at(x: float) -> float:
+    """Total clay thickness (m) of the cell whose centre has easting ``x``."""
+    return 30.0 * (x - X0) / 1000.0
+
+
+def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True) -> None:
+    """Write a tiny run folder: 9 grids (no cover grid), 3 zones, 3 boreholes, summary."""
+    run_dir.mkdir(parents=True, exist_ok=True)
+    grid = make_grid(study_area(), CELL_M, CRS_UTM32)
+    assert (grid.width, grid.height) == (20, 15)
+    xs, ys = grid.cell_centres()
+    xx, yy = np.meshgrid(xs - X0, ys - Y0)
+    thickness_m = 30.0 * xx / 1000.0  # 0.75 m in the west column, 29.25 m in the east
+    if grids:
+        travel_yr = np.where(thickness_m < 2, 0.0, 10.0 ** (thickness_m / 10.0))
+        for name, values in {
+            outputs.AQUITARD_THICKNESS: thickness_m,
+            outputs.AQUITARD_THICKNESS_SD: 1.0 + yy / 750.0,
+            outputs.unit_thickness("UMC"): 0.6 * thickness_m,
+            outputs.unit_thickness("LMC"): 0.4 * thickness_m,
+            outputs.KV: np.full_like(xx, KV_M_S),
+            outputs.LEAKANCE: KV_M_S / np.maximum(thickness_m, 0.5),
+            outputs.RESISTANCE: np.maximum(thickness_m, 0.5) / KV_M_S / SECONDS_PER_YEAR,
+            outputs.TRAVEL_TIME: travel_yr,
+            outputs.P_THIN: np.clip(1.0 - thickness_m / 10.0, 0.0, 1.0),
+        }.items():
+            write_raster(run_dir / name, values, grid)
+    zones = gpd.GeoDataFrame(
+        {
+            "kind": ["window", "thin", "fast"],
+            "area_m2": [25_000.0, 1_250_000.0, 7_500.0],
+            "reason": ["Clay absent & aquifer <b>exposed</b>", f"Thin clay {TEMPLATE_TRAP}",
+                       "Short travel time"],
+            "mean_thickness_m": [0.4, 3.2, 6.0],
+            "min_thickness_m": [0.0, 2.0, 5.5],
+            "mean_sd_m": [1.1, 1.4, 2.0],
+            "mean_p_thin": [0.93, 0.61, 0.2],
+            "mean_travel_time_yr": [0.0, 2.5, 30.0],
+            "n_boreholes": [1, 0, 0],
+        },
+        geometry=[box(X0, Y0, X0 + 100, Y0 + 250), box(X0 + 100, Y0, X0 + 300, Y0 + 750),
+                  box(X0 + 300, Y0, X0 + 350, Y0 + 150)],
+        crs=CRS_UTM32,
+    )
+    zones.to_file(run_dir / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
+    holes = gpd.GeoDataFrame(
+        {
+            "borehole_id": list(HOLE_XY),
+            "ground_elev_m": [42.0, 40.5, 39.0],
+            "total_depth_m": [31.0, 12.0, 8.0],
+            "reached_aquifer": [True, False, False],
+            "bottom_unit": ["GRAV", "UMC", "UMC"],
+            "aquitard_thickness_m": [21.2, 9.5, 5.0],
+            "status_aquitard": ["full", "lower_bound", "lower_bound"],
+            "depth_to_aquifer_m": [23.3, np.nan, np.nan],
+            "proves_window": [False, False, False],
+            "proves_thin": [False, False, False],
+            "qa_flags": ["", "", "collar 6 m off the DEM"],
+            "excluded": [False, False, True],
+            "log": ["0.0–2.1 SAND; 2.1–23.3 UMC; 23.3–31.0 GRAV", "0.0–2.5 SAND; 2.5–12.0 UMC",
+                    "0.0–3.0 FILL <b>x</b>; 3.0–8.0 UMC"],
+            "dem_misfit_m": [0.3, -0.8, 6.1],
+        },
+        geometry=[Point(*xy) for xy in HOLE_XY.values()],
+        crs=CRS_UTM32,
+    )
+    holes.to_file(run_dir / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
+    if summary:
+        (run_dir / outputs.SUMMARY).write_text(json.dumps({
+            "project": {"name": "Ostrel Valley & <test>", "crs": "EPSG:32632"},
+            "run": {"started_utc": "2025-03-04T08:15:00Z", "package_version": "0.1.0"},
+            "inputs": {"collars.csv": {"sha256": "ab" * 32},
+                       "intervals.csv": {"sha256": "cd" * 32}},
+            "units": [{"code": "SAND", "name": "Surficial sand", "role": "cover"},
+                      {"code": "UMC", "name": "Upper marine clay", "role": "aquitard"},
+                      {"code": "LMC", "name": EVIL_UNIT, "role": "aquitard"},
+                      {"code": "GRAV", "name": "Gravel aquifer", "role": "aquifer"}],
+            "thresholds": {"window_thickness_m": 0.5, "thin_thickness_m": 5.0,
+                           "fast_travel_time_yr": 100.0},
+            "hydraulics": {"gradient_assumption": "uniform vertical gradient (unit gradient)"},
+            "caution": outputs.CAUTION,
+        }), encoding="utf-8")
