@@ -24,14 +24,15 @@ from aquitardmap.hydraulics import AVI_CLASSES
 #: Optional grids that other stages may write; shown when present.
 P_THIN_FILE = "p_thin.tif"
 P_WINDOW_FILE = "p_window.tif"
-AVI_CLASS_FILE = "avi_class.tif"
+AVI_CLASS_FILE = outputs.AVI_CLASS
 
 PROTECTION = "Protection"
 UNCERTAINTY = "Uncertainty"
 UNITS = "Clay units and cover"
 HYDRAULICS = "Hydraulics"
+HAZARDS = "Integrity hazards"
 OTHER = "Other grids"
-GROUPS = (PROTECTION, UNCERTAINTY, UNITS, HYDRAULICS, OTHER)
+GROUPS = (PROTECTION, UNCERTAINTY, UNITS, HYDRAULICS, HAZARDS, OTHER)
 
 
 @dataclass(frozen=True)
@@ -66,10 +67,11 @@ class GridStyle:
 
     @property
     def label(self) -> str:
-        """Title with units, as a layer list shows it."""
-        if self.classes or not self.units:
-            return self.title
-        return f"{self.title} ({self.units}{', log scale' if self.log else ''})"
+        """Title with units (and "log scale"), as a layer list shows it."""
+        extra = [] if self.classes else [u for u in (self.units,) if u]
+        if self.log and not self.classes:
+            extra.append("log scale")
+        return f"{self.title} ({', '.join(extra)})" if extra else self.title
 
 
 # Our own palette for the Aquifer Vulnerability Index classes, darkest = most vulnerable,
@@ -147,6 +149,12 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
                   "m", "viridis", note="Darker = thinner clay, less protection.",
                   short="Clay thickness"),
     ]
+    if outputs.AQUITARD_THICKNESS_EFFECTIVE in files:
+        styles.append(GridStyle(outputs.AQUITARD_THICKNESS_EFFECTIVE, PROTECTION,
+                                "Effective clay thickness (after hazards and weathered crust)",
+                                "m", "viridis", short="Effective clay thickness",
+                                note="The clay the hydraulics count as protective. Darker = "
+                                "less protection."))
     if P_THIN_FILE in files:
         styles.append(GridStyle(P_THIN_FILE, PROTECTION, f"Chance the clay is {thin_words}",
                                 "%", "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
@@ -216,6 +224,22 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
         GridStyle(outputs.RESISTANCE, HYDRAULICS, "Hydraulic resistance of the column",
                   "years", "viridis", log=True, note="Darker = less resistance.",
                   short="Hydraulic resistance"),
+        GridStyle(outputs.DIFFUSION_TIME, HYDRAULICS,
+                  "Diffusion time scale through the clay, B²/De", "years", "viridis", log=True,
+                  note="Darker = faster diffusion.", short="Diffusion time scale"),
+        GridStyle(outputs.PECLET, HYDRAULICS, "Péclet number (diffusion time / advective time)",
+                  "", "cividis", log=True, short="Péclet number",
+                  note="Above 1 advection governs, below 1 diffusion governs."),
+        GridStyle(outputs.VERTICAL_GRADIENT, HYDRAULICS,
+                  "Vertical hydraulic gradient (downward positive)", "m/m", "viridis",
+                  short="Vertical gradient"),
+        GridStyle(outputs.PIERCING_DENSITY, HAZARDS,
+                  "Boreholes piercing the clay into the aquifer, density", "holes/km²",
+                  "magma_r", short="Piercing boreholes (density)",
+                  note="Darker = more holes through the clay (possible vertical conduits)."),
+        GridStyle(outputs.HAZARD_REMOVED, HAZARDS,
+                  "Clay removed by excavations, pits and slides", "m", "magma_r",
+                  short="Clay removed by hazards", note="Darker = more clay removed."),
     ]
     styles = [s for s in styles if s.file in files or s.derived_from in files]
     known = {s.file for s in styles} | {outputs.P_THIN, P_THIN_FILE}

@@ -305,14 +305,14 @@ def test_vulnerability_class_is_derived_at_the_published_breaks(
 def test_p_thin_grid_is_preferred_and_unknown_grids_are_listed(tmp_path: Path) -> None:
     build_run_folder(tmp_path)
     shutil.copy(tmp_path / outputs.P_THIN, tmp_path / "p_thin.tif")
-    shutil.copy(tmp_path / outputs.TRAVEL_TIME, tmp_path / "diffusion_time_yr.tif")
-    with rasterio.open(tmp_path / "diffusion_time_yr.tif", "r+") as dst:
-        dst.set_band_description(1, "diffusive time scale B²/De")
-        dst.update_tags(1, units="years")
+    shutil.copy(tmp_path / outputs.TRAVEL_TIME, tmp_path / "recharge_index_mm.tif")
+    with rasterio.open(tmp_path / "recharge_index_mm.tif", "r+") as dst:
+        dst.set_band_description(1, "recharge index")
+        dst.update_tags(1, units="mm/yr")
     titles = _grid_titles(write_map(tmp_path).read_text(encoding="utf-8"))
     assert "Chance the clay is thinner than 5 m (%)" in titles
     assert not any("approximate" in t for t in titles)
-    assert titles[-1] == "Diffusive time scale B²/De (years)"
+    assert titles[-1] == "Recharge index (mm/yr)"  # a grid of a later stage: listed last
 
 
 def test_self_contained_inlines_local_leaflet(tmp_path: Path,

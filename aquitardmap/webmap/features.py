@@ -202,6 +202,9 @@ def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
     misfit = _float(row.get("dem_misfit_m"))
     if misfit is not None:
         facts.append(f"Collar minus DEM: {misfit:+.1f} m")
+    if truthy(row.get("pierces_aquitard")):
+        facts.append('<span class="aqm-flag">Pierces the clay into the aquifer: a possible '
+                     "vertical conduit unless sealed.</span>")
     flags = _text(row.get("qa_flags"))
     if flags:
         facts.append(f'<span class="aqm-flag">QA: {esc(flags)}</span>')

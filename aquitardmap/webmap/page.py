@@ -133,7 +133,7 @@ def panel_html(grids: list[tuple[GridStyle, str]], toggles: list[tuple[str, str,
             if group not in MAIN_GROUPS and not more_open:
                 opened = " open" if any(i == shown for i, _ in members) else ""
                 parts.append(f'<details class="aqm-more"{opened}><summary>More grids: units, '
-                             "hydraulics</summary>")
+                             "hydraulics, hazards</summary>")
                 more_open = True
             parts.append(f'<div class="aqm-group">{esc(group)}</div>')
             for i, s in members:
