@@ -108,6 +108,7 @@ class Hydraulics:
     protective_thickness_m: np.ndarray | None = None
     hazard_removed_m: np.ndarray | None = None
     hazard_index: np.ndarray | None = None
+    hazard_removed_aquitard_m: np.ndarray | None = None
     hazards: list[dict] = field(default_factory=list)
     piercing_density_per_km2: np.ndarray | None = None
     piercing: pd.DataFrame | None = None
@@ -302,8 +303,9 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
     if hazards is not None and len(hazards):
         removed, index = removed_depth_grid_m(hazards, g)
         thick = remove_from_top_m(thick0, np.nan_to_num(removed, nan=0.0))
-        aq_removed = (thick0[is_aq] - thick[is_aq]).sum(axis=0)
-        hazard_rows = hazard_table(hazards, index, aq_removed, g.cell_area_m2)
+        hazard_rows = hazard_table(hazards, index, (thick0[is_aq] - thick[is_aq]).sum(axis=0),
+                                   g.cell_area_m2)
+    aq_removed = (thick0[is_aq] - thick[is_aq]).sum(axis=0)
 
     crust = crust_thickness_m(thick, is_aq, h.crust_depth_m)
     intact = thick - crust
@@ -358,6 +360,7 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
             protective_thickness_m=protective,
             hazard_removed_m=removed,
             hazard_index=index,
+            hazard_removed_aquitard_m=aq_removed,
             hazards=hazard_rows,
             piercing_density_per_km2=density,
             piercing=piercing_table(used, density, g, p.screening.piercing_flag_per_km2),

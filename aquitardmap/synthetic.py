@@ -954,6 +954,65 @@ def _write_boundary(path: Path, polygon: Polygon, crs: CRS) -> Path:
     return path
 
 
+def _lobe(rng: np.random.Generator, cx: float, cy: float, a_m: float, b_m: float,
+          angle: float, wobble: float = 0.15, n: int = 36) -> Polygon:
+    """An irregular elliptical polygon (semi-axes a, b; rotated by ``angle`` radians)."""
+    t = np.linspace(0.0, 2.0 * np.pi, n, endpoint=False)
+    r = 1.0 + wobble * _smooth_noise_1d(rng, n, 2.0)
+    x, y = a_m * r * np.cos(t), b_m * r * np.sin(t)
+    ca, sa = math.cos(angle), math.sin(angle)
+    ring = np.round(np.column_stack([cx + ca * x - sa * y, cy + sa * x + ca * y]), 2)
+    return Polygon(ring)
+
+
+def _write_hazards(path: Path, seed: int, truth: _Truth, polygon: Polygon,
+                   places: dict[str, tuple[float, float]], crs: CRS) -> list[dict]:
+    """Invented man-made and slope hazards, written to ``hazards.geojson``.
+
+    A clay pit by the town, a road cutting by the village and a landslide scar on a valley
+    side where the clay is moderately thick. Drawn from their own random stream (seeded by
+    ``seed``), so the borehole files do not depend on them. They are not in the truth
+    grids (the geology) nor in any log. Returns their descriptions for ``truth.json``.
+    """
+    rng = np.random.default_rng([seed, 4])
+    valley = truth.valley
+
+    def clay(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        return truth.column(x, y).clay_m
+
+    specs = []
+    px, py = _points_in(rng, polygon, 1, lambda x, y: (clay(x, y) >= 14.0)
+                        & (clay(x, y) <= 18.0), centre=places["Marrowdene"], sd_m=1500.0)
+    if px.size:
+        specs.append(("Marrowdene brickworks clay pit", "pit", 16.0,
+                      _lobe(rng, px[0], py[0], 110.0, 70.0, rng.uniform(0, np.pi), 0.08)))
+    ex, ey = _points_in(rng, polygon, 1, lambda x, y: clay(x, y) >= 3.0,
+                        centre=places["Lidderholt"], sd_m=500.0)
+    if ex.size:
+        ang = rng.uniform(0, np.pi)
+        ca, sa = math.cos(ang), math.sin(ang)
+        hw, hl = 20.0, 180.0
+        corners = [(-hl, -hw), (hl, -hw), (hl, hw), (-hl, hw)]
+        specs.append(("Lidderholt road cutting", "excavation", 6.0, Polygon(
+            [(round(ex[0] + ca * u - sa * v, 2), round(ey[0] + sa * u + ca * v, 2))
+             for u, v in corners])))
+    sx, sy = _points_in(rng, polygon, 1, lambda x, y: (valley.across(x, y) > 0.6)
+                        & (valley.across(x, y) < 0.8) & (clay(x, y) >= 8.0)
+                        & (clay(x, y) <= 12.0))
+    if sx.size:
+        specs.append(("Old slide scar on the valley side", "landslide_scar", 11.0,
+                      _lobe(rng, sx[0], sy[0], 260.0, 150.0, rng.uniform(0, np.pi))))
+    if path.exists():
+        path.unlink()
+    gdf = gpd.GeoDataFrame({"name": [n for n, _, _, _ in specs],
+                            "kind": [k for _, k, _, _ in specs],
+                            "removed_depth_m": [d for _, _, d, _ in specs]},
+                           geometry=[g for _, _, _, g in specs], crs=crs)
+    gdf.to_file(path, driver="GeoJSON")
+    return [{"name": n, "kind": k, "removed_depth_m": d, "area_m2": round(g.area, 1)}
+            for n, k, d, g in specs]
+
+
 # ------------------------------------------------------------------------------ main API
 
 
@@ -974,6 +1033,7 @@ def make_synthetic_region(
     crs: str = "EPSG:32632",
     write_project_toml: bool = False,
     project_name: str | None = None,
+    hazards: bool = True,
 ) -> SyntheticRegion:
     """Generate a synthetic project folder from a known truth and write the truth beside it.
 
@@ -996,6 +1056,8 @@ def make_synthetic_region(
         crs: projected CRS of every coordinate (metres).
         write_project_toml: also write ``project.toml`` with the demo stack.
         project_name: name written in ``project.toml``.
+        hazards: also write ``hazards.geojson`` (a clay pit, a road cutting, a landslide
+            scar; from their own random stream, so the other files do not change).
 
     Returns:
         A :class:`SyntheticRegion` describing the files and the truth.
@@ -1070,6 +1132,10 @@ def make_synthetic_region(
     _record_holes(rng, holes, n_elevation_blunders)
     files.update(_write_csvs(root, holes))
     truth_files["boreholes"] = _write_truth_holes(tdir / "boreholes.csv", holes)
+    hazard_meta: list[dict] = []
+    if hazards:
+        files["hazards"] = root / "hazards.geojson"
+        hazard_meta = _write_hazards(files["hazards"], seed, truth, polygon, places, crs_obj)
 
     if write_project_toml:
         name = project_name or f"Synthetic {character} region (seed {seed})"
@@ -1128,6 +1194,7 @@ def make_synthetic_region(
             "min_logged_thickness_m": MIN_LOGGED_THICKNESS_M,
         },
         "places": {k: [round(v[0], 1), round(v[1], 1)] for k, v in places.items()},
+        "hazards": hazard_meta,
         "files": {k: p.name for k, p in sorted(files.items()) if k != "project"},
         "truth_files": {k: f"truth/{p.name}" for k, p in sorted(truth_files.items())},
     }

@@ -48,8 +48,9 @@ def test_diffusion_time_and_peclet_grids(demo_run):
     h = demo_run.inputs.project.hydraulics
     td, *_ = read_raster(out / outputs.DIFFUSION_TIME)
     mask = demo_run.inputs.grid.mask
-    # B²/De of the intact clay below the crust, from the thicknesses (hand formula).
-    total = demo_run.surfaces["aquitard"].thickness_m
+    # B²/De of the intact clay below the crust, from the thicknesses (hand formula); the
+    # clay is the kriged total cut by the demo's hazards.
+    total = demo_run.surfaces["aquitard"].thickness_m - hyd.hazard_removed_aquitard_m
     intact = total - hyd.crust_m
     expected = intact**2 / h.effective_diffusion_m2_s / SECONDS_PER_YEAR
     assert np.allclose(td[mask], expected[mask], rtol=1e-6)
@@ -153,7 +154,8 @@ def test_head_grids_set_the_gradient_and_scale_the_travel_time(hazard_run, demo_
     grad, *_ = read_raster(out / outputs.VERTICAL_GRADIENT)
     hyd = run.hydraulics
     column = sum(hyd.column_thickness_m.values())
-    mask = run.inputs.grid.mask & (column > 0) & (hyd.hazard_removed_m == 0)
+    mask = (run.inputs.grid.mask & (column > 0) & (hyd.hazard_removed_m == 0)
+            & (demo_run.hydraulics.hazard_removed_m == 0))
     # Darcy: i = (60 − 55) / B of the column (hand formula).
     assert np.allclose(grad[mask], 5.0 / column[mask], rtol=1e-5)
     # Advective time ∝ 1/i: away from hazards, t_heads · i = t_unit-gradient · 1.
@@ -164,3 +166,25 @@ def test_head_grids_set_the_gradient_and_scale_the_travel_time(hazard_run, demo_
     zones = run.zones
     fast = zones[zones["kind"] == "fast"]
     assert not fast["reason"].str.contains("unit-gradient").any()
+
+
+def test_demo_hazards_thin_the_clay_and_name_themselves_in_zones(demo_run):
+    # demo_region/hazards.geojson (invented, from the generator): a clay pit, a road
+    # cutting and a slide scar. Each cuts cover first, then clay (hand rule: clay removed
+    # <= removed depth), and the pit and the scar leave thin clay that the zones name.
+    s = json.loads((demo_run.out_dir / outputs.SUMMARY).read_text())
+    by_name = {h["name"]: h for h in s["hazards"]}
+    assert set(by_name) == {"Marrowdene brickworks clay pit", "Lidderholt road cutting",
+                            "Old slide scar on the valley side"}
+    for h in by_name.values():
+        assert h["n_cells"] > 0
+        assert 0 < h["max_aquitard_removed_m"] <= h["removed_depth_m"]
+    zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    named = zones[zones["hazards"] != ""]
+    assert {"Marrowdene brickworks clay pit", "Old slide scar on the valley side"} <= set(
+        "; ".join(named["hazards"]).split("; "))
+    assert named["reason"].str.contains("removed)", regex=False).all()
+    assert (demo_run.out_dir / outputs.HAZARD_REMOVED).is_file()
+    print("demo hazards:", {k: round(v["max_aquitard_removed_m"], 1)
+                            for k, v in by_name.items()},
+          "zones named:", named.groupby("kind").size().to_dict())

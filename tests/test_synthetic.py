@@ -31,7 +31,8 @@ from aquitardmap.synthetic import (
 )
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_region"
-COMPARED_FILES = ("collars.csv", "intervals.csv", "samples.csv", "truth/boreholes.csv",
+COMPARED_FILES = ("collars.csv", "intervals.csv", "samples.csv", "hazards.geojson",
+                  "truth/boreholes.csv",
                   "truth/truth.json")
 
 
