@@ -22,7 +22,8 @@ from aquitardmap.units import SECONDS_PER_YEAR
 __all__ = ["SECONDS_PER_YEAR", "AVI_CLASSES", "AVI_NO_DATA", "avi_class", "avi_legend",
            "series_resistance_s", "equivalent_kv_m_s", "leakance_per_s",
            "advective_travel_time_yr", "remove_from_top_m", "crust_thickness_m",
-           "diffusion_time_yr", "peclet_number", "gradient_from_heads"]
+           "diffusion_time_yr", "peclet_number", "gradient_from_heads",
+           "downward_travel_time_yr"]
 
 #: Aquifer Vulnerability Index classes: ``(code, lower, upper, label)`` where ``lower`` and
 #: ``upper`` bound log10 of the hydraulic resistance in years (lower bound inclusive) and
@@ -312,3 +313,28 @@ def gradient_from_heads(top_head_m: npt.ArrayLike, bottom_head_m: npt.ArrayLike,
     b = np.asarray(column_thickness_m, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(b > 0, dh / b, np.nan)
+
+
+def downward_travel_time_yr(thickness_m: npt.ArrayLike, kv_m_s: npt.ArrayLike,
+                            effective_porosity: npt.ArrayLike,
+                            gradient: npt.ArrayLike) -> FloatArray:
+    """Advective travel time down the column for a gradient of any sign (years).
+
+    As :func:`advective_travel_time_yr` where the gradient is downward (> 0); ``+inf``
+    where it is zero or upward (no downward advection), except where the column has no
+    thickness (0 years: nothing to cross). NaN thickness stays NaN.
+
+    Args:
+        thickness_m: unit thicknesses (m), shape ``(n_units, ...)``.
+        kv_m_s: vertical conductivity of each unit (m/s), shape ``(n_units,)``.
+        effective_porosity: effective porosity of each unit (-), shape ``(n_units,)``.
+        gradient: vertical gradient (-), positive downward, broadcastable to ``(...)``.
+
+    Returns:
+        Travel time (years), shape ``(...)``.
+    """
+    i = np.asarray(gradient, dtype=float)
+    downward = i > 0
+    t = advective_travel_time_yr(thickness_m, kv_m_s, effective_porosity,
+                                 np.where(downward, i, 1.0))
+    return np.where(downward | (t == 0) | np.isnan(t), t, np.inf)

@@ -47,6 +47,7 @@ from aquitardmap.hydraulics import (
     avi_legend,
     crust_thickness_m,
     diffusion_time_yr,
+    downward_travel_time_yr,
     equivalent_kv_m_s,
     gradient_from_heads,
     leakance_per_s,
@@ -332,8 +333,7 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
 
     with np.errstate(divide="ignore", invalid="ignore"):
         c_s = series_resistance_s(layers, kv_layers)
-        travel = advective_travel_time_yr(layers, kv_layers, por_layers, safe_i)
-        travel = np.where(downward | (travel == 0) | np.isnan(travel), travel, np.inf)
+        travel = downward_travel_time_yr(layers, kv_layers, por_layers, gradient)
         clay_b = intact[is_aq].sum(axis=0)
         t_diff = diffusion_time_yr(clay_b, h.effective_diffusion_m2_s)
         t_adv_clay = advective_travel_time_yr(intact[is_aq], kv[is_aq], por[is_aq], safe_i)

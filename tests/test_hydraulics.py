@@ -217,3 +217,15 @@ def test_avi_legend_uses_the_published_class_names():
         "low vulnerability", "extremely low vulnerability"]
     assert [r["resistance_yr"] for r in rows] == [
         "< 10", "10 to < 100", "100 to < 1000", "1000 to < 10000", ">= 10000"]
+
+
+def test_travel_time_is_infinite_where_the_gradient_is_not_downward():
+    from aquitardmap.hydraulics import downward_travel_time_yr
+    # Cells: the three-layer column at i = 0.5 (617.918 yr, hand computation above), the
+    # same column at i = 0 and i = −0.2 (no downward advection: +inf), and an empty column
+    # with an upward gradient (nothing to cross: 0).
+    b = np.zeros((3, 4))
+    b[:, :3] = B3[:, None]
+    t = downward_travel_time_yr(b, K3, N3, np.array([0.5, 0.0, -0.2, -1.0]))
+    assert t[0] == pytest.approx(617.91809, rel=1e-7)
+    assert np.isposinf(t[1]) and np.isposinf(t[2]) and t[3] == 0.0
