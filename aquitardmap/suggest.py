@@ -1,11 +1,12 @@
 """The "where to drill next" stage: from a project folder to ranked new borehole sites.
 
-Reads the project, kriges the total aquitard thickness as :func:`aquitardmap.run` does,
-ranks candidate sites (every grid cell, or the user's candidate file) with
-:func:`aquitardmap.drilling.plan_holes`, and writes ``suggested_holes.gpkg`` and
-``suggested_holes.csv`` (each to a temporary name first, then moved into place, so a reader
-never sees half a file). When the output folder holds a run's ``map.html``, the map is
-redrawn so it shows the suggestions.
+Reads the project, kriges the total aquitard thickness as :func:`aquitardmap.run` does
+(and, when hazards cut the column or the crust is not protective, screens the same
+protective thickness the run screens), ranks candidate sites (every grid cell, or the
+user's candidate file) with :func:`aquitardmap.drilling.plan_holes`, and writes
+``suggested_holes.gpkg`` and ``suggested_holes.csv`` (each to a temporary name first, then
+moved into place, so a reader never sees half a file). When the output folder holds a
+run's ``map.html``, the map is redrawn so it shows the suggestions.
 """
 
 from __future__ import annotations
@@ -29,7 +30,7 @@ from aquitardmap.candidates import CandidateSites, grid_sites, read_candidates
 from aquitardmap.drilling import DrillingPlan, plan_holes
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import resample_to_grid
-from aquitardmap.pipeline import Inputs, load_inputs
+from aquitardmap.pipeline import Inputs, build_surfaces, compute_hydraulics, load_inputs
 from aquitardmap.project import DrillingSettings
 from aquitardmap.screening import probability_below
 from aquitardmap.surfaces import Surface, krige_thickness
@@ -124,7 +125,8 @@ def _ha(m2: float) -> str:
 def suggest_holes(inputs: Inputs, surface: Surface, n_holes: int | None = None, *,
                   candidates: CandidateSites | None = None,
                   priority: np.ndarray | None = None,
-                  settings: DrillingSettings | None = None) -> Suggestions:
+                  settings: DrillingSettings | None = None,
+                  protective_m: np.ndarray | None = None) -> Suggestions:
     """Rank candidate sites for new holes and choose ``n_holes`` of them greedily.
 
     Args:
@@ -135,6 +137,9 @@ def suggest_holes(inputs: Inputs, surface: Surface, n_holes: int | None = None, 
         candidates: candidate sites (default: every cell of the study area).
         priority: per-cell weight on the grid (default 1 everywhere).
         settings: drilling settings (default the project's ``[drilling]``).
+        protective_m: thickness counted as protective when it differs from the kriged
+            total (hazards cut it, or the crust is not protective), as the run screens it;
+            a new hole is assumed to shift it as much as the total.
     """
     st = settings or inputs.project.drilling
     n = int(st.holes if n_holes is None else n_holes)
@@ -145,7 +150,10 @@ def suggest_holes(inputs: Inputs, surface: Surface, n_holes: int | None = None, 
     xx, yy = np.meshgrid(xs, ys)
     inside = g.mask
     weight = g.cell_area_m2 * (np.ones(g.mask.shape) if priority is None else priority)
-    est, sd = surface.thickness_m, surface.sd_m
+    sd = surface.sd_m
+    est = surface.thickness_m if protective_m is None else np.where(
+        np.isfinite(surface.thickness_m), protective_m, np.nan)
+    label = "kriged total aquitard" if protective_m is None else "protective aquitard"
     plan = plan_holes(surface.variogram, surface.data_x_m, surface.data_y_m, xx[inside],
                       yy[inside], est[inside], sd[inside], weight[inside], sites.x_m,
                       sites.y_m, n, thresholds_m=thresholds, p_low=st.p_low, p_high=st.p_high,
@@ -174,7 +182,7 @@ def suggest_holes(inputs: Inputs, surface: Surface, n_holes: int | None = None, 
         if math.isfinite(t):
             probs = ", ".join(f"P(thinner than {th:g} m) about "
                               f"{float(probability_below(th, t, s)):.2f}" for th in thresholds)
-            parts.append(f"kriged total aquitard {t:.1f} m, kriging SD {s:.1f} m, {probs}")
+            parts.append(f"{label} {t:.1f} m, kriging SD {s:.1f} m, {probs}")
         parts.append(f"nearest borehole {d_all:.0f} m away, nearest one reaching the aquifer "
                      f"{d_full:.0f} m")
         after = " after the holes ranked above" if k else ""
@@ -247,8 +255,17 @@ def suggest(project_dir: str | Path, out_dir: str | Path, n_holes: int | None = 
         sites = read_candidates(candidates_path, inputs.project.crs, inputs.area, inputs.grid)
     priority_file = priority_path or inputs.project.drilling.priority_grid
     priority = read_priority(priority_file, inputs) if priority_file else None
-    surface = total_thickness_surface(inputs)
-    result = suggest_holes(inputs, surface, n_holes, candidates=sites, priority=priority)
+    p = inputs.project
+    if (inputs.hazards is not None and len(inputs.hazards)) or \
+            p.hydraulics.crust_treatment == "not_protective":
+        # the run screens the thickness cut by hazards / without the crust: do the same
+        surfaces = build_surfaces(inputs)
+        surface = surfaces["aquitard"]
+        protective = compute_hydraulics(inputs, surfaces).protective_thickness_m
+    else:
+        surface, protective = total_thickness_surface(inputs), None
+    result = suggest_holes(inputs, surface, n_holes, candidates=sites, priority=priority,
+                           protective_m=protective)
     written = write_suggestions(out_dir, result)
     if (Path(out_dir) / outputs.MAP).exists():
         from aquitardmap.webmap import write_map

@@ -201,3 +201,31 @@ def test_suggested_holes_beat_random_and_regular_holes_against_the_truth(skill_t
     assert mean["suggested_reduction_km2"] > 0
     assert mean["suggested_reduction_km2"] > 1.5 * mean["random_reduction_km2"]
     assert mean["suggested_reduction_km2"] > 1.5 * mean["regular_reduction_km2"]
+
+
+def _band_area_m2(p_thin, grid):
+    inside = grid.mask & np.isfinite(p_thin)
+    return float(np.sum(inside & (p_thin >= 0.1) & (p_thin <= 0.9)) * grid.cell_area_m2)
+
+
+@pytest.mark.parametrize("with_hazard", [False, True])
+def test_uncertain_area_is_the_one_the_run_screens(region, tmp_path, with_hazard):
+    # The uncertain area today is exactly the area where the run's P(thin) lies in the band,
+    # also when a hazard cuts the column (then the protective thickness is screened).
+    import shutil
+
+    import aquitardmap
+
+    root = tmp_path / "proj"
+    shutil.copytree(region.root, root, ignore=shutil.ignore_patterns("truth"))
+    if with_hazard:
+        area = gpd.read_file(root / "boundary.geojson").geometry.iloc[0]
+        c = area.centroid
+        gpd.GeoDataFrame({"name": ["Pit P1"], "kind": ["pit"], "removed_depth_m": [12.0]},
+                         geometry=[c.buffer(700.0)], crs="EPSG:32632").to_file(
+            root / "hazards.geojson", driver="GeoJSON")
+    run = aquitardmap.run(root, None)
+    res, _ = suggest(root, tmp_path / "out", 2)
+    assert res.uncertain_now_m2 == pytest.approx(_band_area_m2(run.p_thin, run.inputs.grid))
+    word = "protective aquitard" if with_hazard else "kriged total aquitard"
+    assert res.holes["reason"].str.startswith(word.capitalize()).all()
