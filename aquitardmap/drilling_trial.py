@@ -5,8 +5,11 @@ the true total aquitard thickness at each site (full penetration, no noise), add
 holes to the region's data and kriging the total thickness again with the same variogram
 (held fixed, as :mod:`aquitardmap.drilling` assumes). The score is the area whose screening
 class (window / thin / neither, from the project thresholds) differs from the truth's,
-before and after drilling. :func:`compare_designs` pits the suggested holes of
-:func:`aquitardmap.suggest.suggest_holes` against random holes and holes on a regular grid.
+before and after drilling. Hazards (pits, cuttings) are not considered here: the kriged
+total thickness is compared with the truth's total (generate the region with
+``hazards=False`` for the suggestions to screen the same thickness).
+:func:`compare_designs` pits the suggested holes of :func:`aquitardmap.suggest.suggest_holes`
+against random holes and holes on a regular grid.
 """
 
 from __future__ import annotations

@@ -1,11 +1,11 @@
 """Suggested holes vs random and regular holes, scored against the truth of synthetic regions.
 
 For every character of synthetic region and seed: generate a small region (5 x 3.5 km,
-100 m cells, 60 boreholes), krige the total aquitard thickness, then drill N new holes
-(true thickness read from the truth, full penetration) placed (a) by ``aquitardmap
+100 m cells, 60 boreholes, no hazards), krige the total aquitard thickness, then drill N new
+holes (true thickness read from the truth, full penetration) placed (a) by ``aquitardmap
 suggest`` with its default settings, (b) at random (mean of 8 draws), (c) on a regular
 lattice; re-krige with the variogram held fixed and measure the area whose window / thin /
-neither class differs from the truth. Prints a Markdown table (the one in the README).
+neither class differs from the truth's. Prints a Markdown table (the one in the README).
 
     python benchmarks/drilling_designs.py [--holes 10] [--seeds 1 2 3 4 5] [--work DIR]
 """
@@ -38,7 +38,7 @@ def main() -> None:
                 reg = make_synthetic_region(work / f"{character}_{seed}", seed=seed,
                                             character=character, n_holes=60,
                                             extent_m=(5000.0, 3500.0), cell_size_m=100.0,
-                                            write_project_toml=True)
+                                            write_project_toml=True, hazards=False)
                 trials.append(compare_designs(reg.root, reg.truth["aquitard"], n,
                                               n_random=8, seed=seed))
             every.extend(trials)

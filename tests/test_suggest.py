@@ -27,7 +27,7 @@ from aquitardmap.suggest import COLUMNS, suggest, suggest_holes, total_thickness
 from aquitardmap.synthetic import make_synthetic_region
 
 SMALL = {"n_holes": 60, "extent_m": (5000.0, 3500.0), "cell_size_m": 100.0,
-         "write_project_toml": True}
+         "write_project_toml": True, "hazards": False}
 
 
 def _cli(*args):
@@ -229,3 +229,17 @@ def test_uncertain_area_is_the_one_the_run_screens(region, tmp_path, with_hazard
     assert res.uncertain_now_m2 == pytest.approx(_band_area_m2(run.p_thin, run.inputs.grid))
     word = "protective aquitard" if with_hazard else "kriged total aquitard"
     assert res.holes["reason"].str.startswith(word.capitalize()).all()
+
+
+def test_suggestions_appear_on_the_run_map(region, tmp_path):
+    import aquitardmap
+
+    out = tmp_path / "run"
+    aquitardmap.run(region.root, out)
+    assert "Suggested new holes" not in (out / outputs.MAP).read_text()
+    res, _ = suggest(region.root, out, 2)
+    page = (out / outputs.MAP).read_text()
+    assert "Suggested new holes" in page and "Where to drill next (2, ranked)" in page
+    assert "Suggested hole 1" in page and "expected to settle" in page
+    # the run folder still holds the run, plus the two suggestion files
+    assert (out / outputs.SUMMARY).exists() and (out / outputs.SUGGESTED_HOLES).exists()

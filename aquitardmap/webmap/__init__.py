@@ -57,9 +57,11 @@ from aquitardmap.webmap.assets import (
     inline_js,
 )
 from aquitardmap.webmap.features import (
+    SUGGESTED_STYLE,
     boreholes_layer,
     outline_layer,
     study_area_outline,
+    suggested_holes_layer,
     zones_layer,
 )
 from aquitardmap.webmap.markup import RawHtml, esc
@@ -211,6 +213,16 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
                         swatch_legend("aqm-legend-holes", rows, round_swatch=True)))
         if len(holes):
             boxes.append(tuple(holes.total_bounds))
+
+    suggested = read_layer(run_dir / outputs.SUGGESTED_HOLES, outputs.SUGGESTED_HOLES_LAYER,
+                           crs, LONLAT)
+    if suggested is not None and len(suggested):  # written by ``aquitardmap suggest``
+        layer = suggested_holes_layer(suggested)
+        layer.add_to(fmap)
+        layers["suggested"] = (layer.get_name(), "aqm-legend-suggested")
+        toggles.append(("suggested", "Suggested new holes", True, swatch_legend(
+            "aqm-legend-suggested", [(*SUGGESTED_STYLE, f"Where to drill next "
+                                      f"({len(suggested)}, ranked)")], round_swatch=True)))
 
     extent = _union_bounds(boxes)
     if extent is not None:

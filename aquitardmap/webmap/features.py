@@ -1,5 +1,6 @@
-"""Vector layers of the map: flagged zones, boreholes (with strip-log popups), the study
-area outline. Every property handed to the page is escaped HTML built here."""
+"""Vector layers of the map: flagged zones, boreholes (with strip-log popups), suggested
+new holes (written by ``aquitardmap suggest``), the study area outline. Every property
+handed to the page is escaped HTML built here."""
 
 from __future__ import annotations
 
@@ -261,6 +262,39 @@ def boreholes_layer(gdf: gpd.GeoDataFrame, colours: dict[str, str], names: dict[
         control=False,
     )
     return layer, counts
+
+
+# ------------------------------------------------------------------ suggested holes
+
+#: Fill and edge of a suggested new hole (purple, distinct from every borehole style).
+SUGGESTED_STYLE = ("#ba68c8", "#4a148c")
+
+
+def suggested_holes_layer(gdf: gpd.GeoDataFrame) -> folium.GeoJson:
+    """Suggested new holes (lon/lat) as large purple circles: tooltip with rank and expected
+    reduction of the uncertain area, popup with the reason."""
+    props = []
+    for row in gdf.drop(columns="geometry").to_dict("records"):
+        rank = esc(_text(row.get("rank")))
+        red = _float(row.get("expected_reduction_m2"))
+        gain = f": expected to settle {esc(fmt_area(red))}" if red is not None else ""
+        props.append({"tooltip_html": f"<b>Suggested hole {rank}</b>{gain}",
+                      "popup_html": f"<b>Suggested hole {rank}</b><br>"
+                                    f"{esc(_text(row.get('reason')))}"})
+    data = feature_collection(gdf, props)
+    has = bool(data["features"])
+    fill, edge = SUGGESTED_STYLE
+    return folium.GeoJson(
+        data, name="Suggested holes",
+        marker=folium.CircleMarker(radius=8, weight=3, fill=True, fill_opacity=0.9,
+                                   bubbling_mouse_events=False),
+        style_function=(lambda _f: {"fillColor": fill, "color": edge}) if has else None,
+        popup=(folium.GeoJsonPopup(fields=["popup_html"], labels=False, class_name="aqm-pop",
+                                   style="", max_width=380) if has else None),
+        tooltip=(folium.GeoJsonTooltip(fields=["tooltip_html"], labels=False,
+                                       class_name="aqm-tip") if has else None),
+        control=False,
+    )
 
 
 # --------------------------------------------------------------------------- outline
