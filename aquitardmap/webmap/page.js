@@ -165,5 +165,6 @@ function aqmStart(map, cfg) {
   });
 
   window.aqm = { map: map, cfg: cfg, showGrid: showGrid, setLayer: setLayer,
-                 current: function () { return current; } };
+                 current: function () { return current; },
+                 readyMs: (window.performance && performance.now) ? performance.now() : null };
 }
