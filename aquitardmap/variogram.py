@@ -5,11 +5,17 @@ N(h) pairs in each lag class (Isaaks & Srivastava 1989, ch. 7). Models are the u
 transitive ones with a nugget; ``range_m`` is the *practical* range, the distance at which
 the model reaches about 95 % (exponential, Gaussian) or all (spherical) of its sill, which is
 also the convention of the pykrige package so parameters pass to it unchanged.
+
+Beyond the isotropic variogram this module gives directional variograms (pairs whose
+direction lies within a tolerance of an azimuth), geometric anisotropy fitted from them (an
+ellipse of ranges, Isaaks & Srivastava 1989, ch. 16), and nested models (nugget plus up to two
+structures, e.g. a short-range spherical plus a long-range exponential; Journel & Huijbregts
+1978, ch. II). Angles are degrees counter-clockwise from east, pykrige's convention.
 """
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 from scipy.optimize import least_squares
@@ -17,6 +23,8 @@ from scipy.spatial.distance import pdist
 
 #: Above this many points the experimental variogram uses a seeded random subset.
 MAX_POINTS_FOR_PAIRS = 3000
+#: Variogram structure families.
+MODELS = ("spherical", "exponential", "gaussian")
 
 
 @dataclass(frozen=True)
@@ -40,6 +48,12 @@ class VariogramModel:
         anisotropy_ratio: major range / minor range (≥ 1; 1 = isotropic).
         anisotropy_angle_deg: direction of the major axis, degrees counter-clockwise from
             east (the convention of pykrige's ``anisotropy_angle``).
+        model2: family of an optional second (nested) structure, ``""`` for none.
+        psill2: partial sill of the second structure (value units²).
+        range2_m: practical range of the second structure (m, along the major axis).
+
+    Both structures share the geometric anisotropy. The model is
+    ``γ(h) = nugget + psill·g₁(h/range_m) + psill2·g₂(h/range2_m)`` for h > 0, γ(0) = 0.
     """
 
     model: str
@@ -48,20 +62,56 @@ class VariogramModel:
     range_m: float
     anisotropy_ratio: float = 1.0
     anisotropy_angle_deg: float = 0.0
+    model2: str = ""
+    psill2: float = 0.0
+    range2_m: float = 0.0
 
     @property
     def sill(self) -> float:
-        return self.nugget + self.psill
+        return self.nugget + self.psill + (self.psill2 if self.model2 else 0.0)
+
+    @property
+    def is_nested(self) -> bool:
+        """True when the model has a second structure."""
+        return bool(self.model2)
 
     def gamma(self, h_m: np.ndarray) -> np.ndarray:
         """Model semivariance at (isotropic or already anisotropy-scaled) distances ``h_m``
         (m); γ(0) = 0 exactly."""
         h = np.asarray(h_m, dtype=float)
-        return np.where(h > 0, self.nugget + self.psill * _structure(self.model, h,
-                                                                     self.range_m), 0.0)
+        g = self.nugget + self.psill * _structure(self.model, h, self.range_m)
+        if self.model2:
+            g = g + self.psill2 * _structure(self.model2, h, self.range2_m)
+        return np.where(h > 0, g, 0.0)
+
+    def scaled_distance(self, dx_m: np.ndarray, dy_m: np.ndarray) -> np.ndarray:
+        """Distance along the major axis that is equivalent, under the geometric anisotropy,
+        to the separation (dx_m, dy_m): the separation is rotated so that the major axis is
+        along x and its minor component stretched by ``anisotropy_ratio`` (pykrige's
+        convention)."""
+        xr, yr = anisotropic_coordinates(dx_m, dy_m, self.anisotropy_ratio,
+                                         self.anisotropy_angle_deg)
+        return np.hypot(xr, yr)
+
+    def gamma_xy(self, dx_m: np.ndarray, dy_m: np.ndarray) -> np.ndarray:
+        """Model semivariance for separations (dx_m, dy_m) (m), anisotropy included."""
+        return self.gamma(self.scaled_distance(dx_m, dy_m))
 
     def as_dict(self) -> dict[str, float | str]:
         return asdict(self)
+
+
+def anisotropic_coordinates(x_m: np.ndarray, y_m: np.ndarray, ratio: float,
+                            angle_deg: float) -> tuple[np.ndarray, np.ndarray]:
+    """Coordinates in which a geometric anisotropy becomes isotropic: rotate by
+    ``-angle_deg`` (so the major axis lies along x) and multiply the minor coordinate by
+    ``ratio`` (pykrige's ``adjust_for_anisotropy``). Distances between transformed points are
+    the major-axis equivalent distances."""
+    a = np.deg2rad(angle_deg)
+    c, s = np.cos(a), np.sin(a)
+    x = np.asarray(x_m, dtype=float)
+    y = np.asarray(y_m, dtype=float)
+    return c * x + s * y, (-s * x + c * y) * ratio
 
 
 def _structure(model: str, h: np.ndarray, range_m: float) -> np.ndarray:
@@ -79,13 +129,16 @@ def _structure(model: str, h: np.ndarray, range_m: float) -> np.ndarray:
 
 def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, *,
                            n_lags: int = 12, max_lag_m: float | None = None,
-                           max_lag_fraction: float = 0.5, seed: int = 0
-                           ) -> ExperimentalVariogram:
-    """Isotropic experimental variogram in ``n_lags`` equal lag classes up to ``max_lag_m``.
+                           max_lag_fraction: float = 0.5, seed: int = 0,
+                           direction_deg: float | None = None,
+                           tolerance_deg: float = 22.5) -> ExperimentalVariogram:
+    """Experimental variogram in ``n_lags`` equal lag classes up to ``max_lag_m``.
 
     ``max_lag_m`` defaults to ``max_lag_fraction`` times the largest pair distance (half the
     field size is the usual rule, Journel & Huijbregts 1978). Classes without pairs are
-    dropped.
+    dropped. With ``direction_deg`` (degrees counter-clockwise from east) only pairs whose
+    separation direction lies within ``tolerance_deg`` of it (either way along the line) are
+    used: a directional variogram (Isaaks & Srivastava 1989, ch. 7).
     """
     x, y, z = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
     if x.size > MAX_POINTS_FOR_PAIRS:
@@ -96,6 +149,13 @@ def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     sq = pdist(z[:, None], metric="sqeuclidean")
     if max_lag_m is None:
         max_lag_m = max_lag_fraction * (d.max() if d.size else 0.0)
+    if direction_deg is not None and d.size:
+        i, j = np.triu_indices(x.size, k=1)  # the pair order of pdist
+        dx, dy = x[j] - x[i], y[j] - y[i]
+        theta = np.rad2deg(np.arctan2(dy, dx))
+        diff = np.abs((theta - direction_deg + 90.0) % 180.0 - 90.0)
+        keep_dir = diff <= tolerance_deg
+        d, sq = d[keep_dir], sq[keep_dir]
     if d.size == 0 or max_lag_m <= 0:
         return ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
     edges = np.linspace(0.0, max_lag_m, n_lags + 1)
@@ -136,19 +196,24 @@ def default_lags(x_m: np.ndarray, y_m: np.ndarray, *, max_lag_fraction: float = 
 
 def fit_variogram(exp: ExperimentalVariogram, model: str = "spherical", *,
                   sample_variance: float | None = None,
-                  weighting: str = "cressie") -> VariogramModel:
-    """Fit ``model`` to an experimental variogram by weighted least squares.
+                  weighting: str = "cressie", model2: str = "") -> VariogramModel:
+    """Fit ``model`` (optionally nested with a second structure ``model2``) to an
+    experimental variogram by weighted least squares.
 
     ``weighting="cressie"`` (default) minimises Σ N(h)·(γ̂(h)/γ(h) − 1)², the weights of
     Cressie (1985, Math. Geol. 17(5):563–586): lags with many pairs and small semivariance
     (the short lags that matter most for kriging) count most. ``weighting="pairs"`` weights
     squared residuals by pair counts alone.
-    Nugget and partial sill are kept between 0 and twice the largest semivariance (or the
-    sample variance); the range between the first lag and twice the last.
+    Nugget and partial sills are kept between 0 and twice the largest semivariance (or the
+    sample variance); ranges between the first lag and twice the last. With ``model2`` the
+    first structure is the shorter one (``range_m <= range2_m``).
     A flat or empty variogram (constant data) gives a pure-nugget model of that variance.
     """
     if weighting not in ("cressie", "pairs"):
         raise ValueError(f"unknown weighting {weighting!r}")
+    for m in (model, model2 or model):
+        if m not in MODELS:
+            raise ValueError(f"unknown variogram model {m!r}")
     if exp.lag_m.size < 2 or not np.any(exp.gamma > 0):
         var = float(sample_variance or 0.0)
         last = float(exp.lag_m.max()) if exp.lag_m.size else 1.0
@@ -158,20 +223,145 @@ def fit_variogram(exp: ExperimentalVariogram, model: str = "spherical", *,
     hi_range = float(2.0 * exp.lag_m.max())
     n = exp.n_pairs.astype(float)
 
+    def curve(p: np.ndarray) -> np.ndarray:
+        g = p[0] + p[1] * _structure(model, exp.lag_m, p[2])
+        if model2:
+            g = g + p[3] * _structure(model2, exp.lag_m, p[2] + p[4])
+        return g
+
     def resid(p: np.ndarray) -> np.ndarray:
-        nug, ps, rng_ = p
-        g = nug + ps * _structure(model, exp.lag_m, rng_)
+        g = curve(p)
         if weighting == "cressie":
             return np.sqrt(n) * (exp.gamma / np.maximum(g, 1e-12 * top) - 1.0)
         return np.sqrt(n / n.sum()) * (g - exp.gamma)
 
-    best = None
+    lo = [0.0, 1e-9 * top, lo_range]
+    hi = [2 * top, 2 * top, hi_range]
+    starts = []
+    span = exp.lag_m.max() - lo_range
     for frac in (0.2, 0.5, 0.8):
-        p0 = [min(exp.gamma[0], 0.5 * top), max(top - exp.gamma[0], 1e-3 * top),
-              lo_range + frac * (exp.lag_m.max() - lo_range)]
-        r = least_squares(resid, p0, bounds=([0.0, 1e-9 * top, lo_range],
-                                             [2 * top, 2 * top, hi_range]))
+        nug0 = min(exp.gamma[0], 0.5 * top)
+        ps0 = max(top - exp.gamma[0], 1e-3 * top)
+        if not model2:
+            starts.append([nug0, ps0, lo_range + frac * span])
+        else:
+            for split in (0.3, 0.7):
+                starts.append([nug0, split * ps0, lo_range + 0.5 * frac * span,
+                               (1 - split) * ps0, max(frac * span, 1e-6)])
+    if model2:
+        lo += [1e-9 * top, 0.0]
+        hi += [2 * top, hi_range]
+    best = None
+    for p0 in starts:
+        p0 = np.clip(p0, lo, hi)
+        r = least_squares(resid, p0, bounds=(lo, hi))
         if best is None or r.cost < best.cost:
             best = r
-    nug, ps, rng_ = (float(v) for v in best.x)
-    return VariogramModel(model, nugget=nug, psill=max(ps, 1e-9 * top), range_m=rng_)
+    v = [float(a) for a in best.x]
+    if not model2:
+        return VariogramModel(model, nugget=v[0], psill=max(v[1], 1e-9 * top), range_m=v[2])
+    return VariogramModel(model, nugget=v[0], psill=max(v[1], 1e-9 * top), range_m=v[2],
+                          model2=model2, psill2=max(v[3], 1e-9 * top), range2_m=v[2] + v[4])
+
+
+@dataclass(frozen=True)
+class DirectionalFit:
+    """Directional variograms and the geometric anisotropy fitted to them.
+
+    Attributes:
+        directions_deg: azimuths of the directional variograms (degrees counter-clockwise
+            from east).
+        tolerance_deg: angular half-width of each direction class.
+        experimental: one experimental variogram per direction.
+        ranges_m: apparent range in each direction (m) — the range of the isotropic model
+            rescaled to fit that direction alone (NaN where a direction had too few lags).
+        ratio: major range / minor range of the ellipse fitted to ``ranges_m`` (≥ 1).
+        angle_deg: direction of the major axis (degrees counter-clockwise from east, 0–180).
+        major_range_m: range along the major axis (m).
+    """
+
+    directions_deg: tuple[float, ...]
+    tolerance_deg: float
+    experimental: tuple[ExperimentalVariogram, ...]
+    ranges_m: tuple[float, ...]
+    ratio: float
+    angle_deg: float
+    major_range_m: float
+
+    def as_dict(self) -> dict[str, object]:
+        return {"directions_deg": list(self.directions_deg),
+                "tolerance_deg": self.tolerance_deg,
+                "apparent_ranges_m": [float(r) for r in self.ranges_m],
+                "anisotropy_ratio": self.ratio, "anisotropy_angle_deg": self.angle_deg,
+                "major_range_m": self.major_range_m}
+
+
+#: Largest anisotropy ratio :func:`fit_anisotropy` returns (a data-limited estimate).
+MAX_ANISOTROPY_RATIO = 5.0
+
+
+def _apparent_range(exp: ExperimentalVariogram, model: VariogramModel) -> float:
+    """Range (m) of ``model`` rescaled along distance so that it best fits ``exp`` (Cressie
+    weights), nugget and sills kept; NaN with fewer than 3 lags."""
+    if exp.lag_m.size < 3:
+        return float("nan")
+    n = exp.n_pairs.astype(float)
+    top = max(float(exp.gamma.max()), model.sill)
+
+    def resid(p: np.ndarray) -> np.ndarray:
+        g = model.gamma(exp.lag_m / p[0])
+        return np.sqrt(n) * (exp.gamma / np.maximum(g, 1e-12 * top) - 1.0)
+
+    r = least_squares(resid, [1.0], bounds=([0.05], [20.0]))
+    return float(model.range_m * r.x[0])
+
+
+def fit_anisotropy(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
+                   model: VariogramModel, *, n_lags: int, max_lag_m: float,
+                   n_directions: int = 4, tolerance_deg: float = 22.5) -> DirectionalFit:
+    """Directional variograms in ``n_directions`` azimuths (0°, 180°/n, ...) and the
+    geometric anisotropy they suggest.
+
+    The isotropic ``model`` is rescaled in distance to fit each direction (nugget and sills
+    kept), giving an apparent range per direction; an ellipse
+    ``r(θ) = a / sqrt(cos²(θ−φ) + k² sin²(θ−φ))`` (major range a, direction φ, ratio k) is
+    fitted to those ranges by least squares on log r (geometric anisotropy, Isaaks &
+    Srivastava 1989, ch. 16). The ratio is capped at :data:`MAX_ANISOTROPY_RATIO`.
+    """
+    dirs = tuple(float(180.0 * k / n_directions) for k in range(n_directions))
+    exps = tuple(experimental_variogram(x_m, y_m, values, n_lags=n_lags, max_lag_m=max_lag_m,
+                                        direction_deg=d, tolerance_deg=tolerance_deg)
+                 for d in dirs)
+    iso = replace(model, anisotropy_ratio=1.0, anisotropy_angle_deg=0.0)
+    ranges = np.array([_apparent_range(e, iso) for e in exps])
+    ok = np.isfinite(ranges)
+    if ok.sum() < 3:
+        return DirectionalFit(dirs, tolerance_deg, exps, tuple(ranges), 1.0, 0.0,
+                              float(model.range_m))
+    th = np.deg2rad(np.array(dirs)[ok])
+    logr = np.log(ranges[ok])
+
+    def resid(p: np.ndarray) -> np.ndarray:
+        loga, k, phi = p
+        return logr - (loga - 0.5 * np.log(np.cos(th - phi) ** 2
+                                           + k**2 * np.sin(th - phi) ** 2))
+
+    best = None
+    for phi0 in np.deg2rad(np.array(dirs)):
+        r = least_squares(resid, [logr.max(), 1.5, phi0],
+                          bounds=([logr.min() - 3, 1.0, phi0 - np.pi],
+                                  [logr.max() + 3, MAX_ANISOTROPY_RATIO, phi0 + np.pi]))
+        if best is None or r.cost < best.cost:
+            best = r
+    loga, k, phi = best.x
+    return DirectionalFit(dirs, tolerance_deg, exps, tuple(float(r) for r in ranges),
+                          float(k), float(np.rad2deg(phi) % 180.0), float(np.exp(loga)))
+
+
+def with_anisotropy(model: VariogramModel, ratio: float, angle_deg: float,
+                    major_range_m: float | None = None) -> VariogramModel:
+    """``model`` with geometric anisotropy (ratio, angle); when ``major_range_m`` is given,
+    both structures' ranges are rescaled so that the first structure's range is it."""
+    f = 1.0 if major_range_m is None else major_range_m / model.range_m
+    return replace(model, anisotropy_ratio=float(ratio), anisotropy_angle_deg=float(angle_deg),
+                   range_m=model.range_m * f, range2_m=model.range2_m * f)
