@@ -11,6 +11,7 @@ import click
 from aquitardmap import __version__
 from aquitardmap.cli.add import add_command
 from aquitardmap.cli.check import check_command
+from aquitardmap.cli.compare import compare_command
 from aquitardmap.cli.history import history_command
 from aquitardmap.cli.run import run_command
 from aquitardmap.cli.suggest import suggest_command
@@ -33,6 +34,7 @@ cli.add_command(add_command)
 cli.add_command(history_command)
 cli.add_command(undo_command)
 cli.add_command(suggest_command)
+cli.add_command(compare_command)
 
 
 def main() -> None:

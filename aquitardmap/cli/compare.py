@@ -1,0 +1,36 @@
+"""``aquitardmap compare RUN_A RUN_B``: what changed between two runs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from aquitardmap import outputs
+from aquitardmap.cli._common import console, guarded
+from aquitardmap.compare import CHANGES_MAP, compare_runs, write_comparison
+
+
+@click.command("compare")
+@click.argument("run_a", type=click.Path(path_type=Path))
+@click.argument("run_b", type=click.Path(path_type=Path))
+@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
+              help="Folder for the comparison (default: RUN_B's folder name + "
+              "'_changes' beside it); replaced as a whole when complete.")
+@click.option("--debug", is_flag=True, help="Show the traceback of an internal error.")
+def compare_command(run_a: Path, run_b: Path, out_dir: Path | None, debug: bool) -> None:
+    """Compare two output folders of `aquitardmap run` (RUN_A earlier, RUN_B later): zones
+    gained and lost, AVI class changes, thickness change and the boreholes that caused
+    them."""
+    out = out_dir or run_b.parent / f"{run_b.name}_changes"
+
+    def work():
+        cmp = compare_runs(run_a, run_b)
+        write_comparison(cmp, out)
+        return cmp
+
+    cmp = guarded(work, debug)
+    click.echo(cmp.text, nl=False)
+    console.print(f"Wrote the comparison to {out.resolve()}; open {CHANGES_MAP} in a browser.",
+                  markup=False)
+    console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")

@@ -1,0 +1,185 @@
+"""``aquitardmap compare``: zones gained and lost, AVI class and thickness change, and the
+boreholes that caused them.
+
+Checks use hand-built run folders whose differences are known exactly, read back with
+rasterio and GDAL (independent readers), and areas from shapely/GEOS set operations.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+import subprocess
+import sys
+
+import geopandas as gpd
+import numpy as np
+import pytest
+import rasterio
+from affine import Affine
+from pyproj import CRS
+from shapely.geometry import Point, box
+
+from aquitardmap import outputs
+from aquitardmap.compare import (
+    AVI_CLASS_CHANGE,
+    CHANGES_GPKG,
+    CHANGES_JSON,
+    CHANGES_MAP,
+    HOLE_CHANGES_LAYER,
+    THICKNESS_CHANGE,
+    ZONE_CHANGES_LAYER,
+    compare_runs,
+    write_comparison,
+)
+from aquitardmap.errors import InputError
+from aquitardmap.grid import Grid, write_raster
+
+from conftest import DEMO
+
+CRS_M = CRS.from_epsg(32632)
+CELL = 50.0
+X0, Y0 = 500000.0, 6700000.0  # upper-left corner of run A's grid
+
+
+def _run(folder, *, x0, width, height, thickness, zones, holes, avi=None, range_m=300.0):
+    folder.mkdir()
+    t = Affine(CELL, 0, x0, 0, -CELL, Y0)
+    g = Grid(t, width, height, CRS_M, np.ones((height, width), bool))
+    write_raster(folder / outputs.AQUITARD_THICKNESS, thickness, g)
+    if avi is not None:
+        write_raster(folder / "avi_class.tif", avi.astype(float), g, dtype="uint8", nodata=0)
+    gpd.GeoDataFrame({"kind": [k for k, _ in zones]}, geometry=[z for _, z in zones],
+                     crs=CRS_M).to_file(folder / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    gpd.GeoDataFrame(
+        {"borehole_id": [h[0] for h in holes], "x": [h[1] for h in holes],
+         "y": [h[2] for h in holes], "log": [h[3] for h in holes],
+         "aquitard_thickness_m": [10.0] * len(holes), "status_aquitard": ["full"] * len(holes)},
+        geometry=[Point(h[1], h[2]) for h in holes], crs=CRS_M,
+    ).to_file(folder / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER)
+    (folder / outputs.SUMMARY).write_text(json.dumps({
+        "run": {"started_utc": "2030-01-01T00:00:00+00:00"},
+        "counts": {"boreholes": len(holes)},
+        "surfaces": {"aquitard": {"variogram": {"range_m": range_m}}}}))
+    return folder
+
+
+@pytest.fixture()
+def runs(tmp_path):
+    # A: 10 x 8 cells of 10 m; B: the same lattice, two columns wider to the east, with a
+    # thinner patch of 4 cells and one cell's AVI class lowered from 4 to 2.
+    ta = np.full((8, 10), 10.0)
+    tb = np.full((8, 12), 10.0)
+    tb[2:4, 3:5] = 0.5
+    avi_a = np.full((8, 10), 4)
+    avi_b = np.full((8, 12), 4)
+    avi_b[2, 3] = 2
+    avi_b[5, 6] = 5
+    win_a = box(X0, Y0 - 100, X0 + 100, Y0)               # 2 x 2 cells at the corner
+    win_b = box(X0 + 50, Y0 - 100, X0 + 150, Y0)          # shifted one cell east
+    thin_b = box(X0 + 150, Y0 - 200, X0 + 250, Y0 - 100)  # new thin zone
+    holes_a = [("H-1", X0 + 25, Y0 - 25, "0.0–10.0 UMC"), ("H-2", X0 + 400, Y0 - 300, "x")]
+    holes_b = [("H-1", X0 + 25, Y0 - 25, "0.0–10.0 UMC"), ("H-2", X0 + 400, Y0 - 300, "y"),
+               ("N-1", X0 + 200, Y0 - 150, "0.0–0.5 UMC; 0.5–9.0 GRAV")]
+    a = _run(tmp_path / "A", x0=X0, width=10, height=8, thickness=ta,
+             zones=[("window", win_a)], holes=holes_a, avi=avi_a)
+    b = _run(tmp_path / "B", x0=X0, width=12, height=8, thickness=tb,
+             zones=[("window", win_b), ("thin", thin_b)], holes=holes_b, avi=avi_b)
+    return a, b
+
+
+def test_zones_gained_and_lost_with_the_holes_that_caused_them(runs):
+    cmp = compare_runs(*runs)
+    z = cmp.zone_changes
+    got = {(r.kind, r.change): r.area_m2 for r in z.itertuples()}
+    # shapely set difference of the known squares: one 50 x 100 m strip each way
+    assert got[("window", "gained")] == pytest.approx(5000.0)
+    assert got[("window", "lost")] == pytest.approx(5000.0)
+    assert got[("thin", "gained")] == pytest.approx(10000.0)
+    assert ("thin", "lost") not in got
+    thin = z[(z["kind"] == "thin")].iloc[0]
+    assert "N-1 (new)" in thin["holes_nearby"]  # 50 m away, inside the 300 m range
+    h = cmp.hole_changes.set_index("borehole_id")
+    assert h.loc["N-1", "change"] == "new" and h.loc["H-2", "change"] == "changed"
+    assert "H-1" not in h.index
+    assert cmp.summary["boreholes"] == {"new": ["N-1"], "removed": [], "changed": ["H-2"]}
+
+
+def test_thickness_and_avi_change_on_the_union_grid(runs, tmp_path):
+    cmp = compare_runs(*runs)
+    names = write_comparison(cmp, tmp_path / "out")
+    assert {CHANGES_GPKG, THICKNESS_CHANGE, AVI_CLASS_CHANGE, CHANGES_MAP, CHANGES_JSON} <= \
+        set(names)
+    with rasterio.open(tmp_path / "out" / THICKNESS_CHANGE) as src:
+        d = src.read(1, masked=True)
+        assert src.width == 12 and src.transform.c == X0
+    assert d.mask[:, 10:].all()  # only in B: no change can be computed there
+    assert np.allclose(d[2:4, 3:5], -9.5) and float(np.abs(d).sum()) == pytest.approx(4 * 9.5)
+    with rasterio.open(tmp_path / "out" / AVI_CLASS_CHANGE) as src:
+        c = src.read(1, masked=True)
+    assert c[2, 3] == -2 and c[5, 6] == 1 and int((c != 0).sum()) == 2
+    a = cmp.summary["avi_class"]
+    assert a["transitions"] == {"low -> high": 1, "low -> extremely low": 1}
+    assert a["more_vulnerable_km2"] == pytest.approx(CELL * CELL / 1e6)
+    layers = gpd.read_file(tmp_path / "out" / CHANGES_GPKG, layer=ZONE_CHANGES_LAYER)
+    assert len(layers) == 3
+    assert len(gpd.read_file(tmp_path / "out" / CHANGES_GPKG, layer=HOLE_CHANGES_LAYER)) == 2
+    assert "became more vulnerable" in cmp.text and "Caution" in cmp.text
+    html_text = (tmp_path / "out" / CHANGES_MAP).read_text()
+    assert "Zones gained" in html_text and "N-1" in html_text
+
+
+def test_runs_on_other_lattices_are_refused(runs, tmp_path):
+    a, b = runs
+    c = _run(tmp_path / "C", x0=X0 + 7.0, width=10, height=8, thickness=np.ones((8, 10)),
+             zones=[], holes=[("H-1", X0, Y0 - 10, "")])
+    with pytest.raises(InputError, match="same lattice"):
+        compare_runs(a, c)
+    with pytest.raises(InputError, match="no summary.json"):
+        compare_runs(a, tmp_path)
+
+
+def test_escapes_user_text_in_the_map(runs, tmp_path):
+    a, b = runs
+    shutil.rmtree(b)
+    evil = "<img src=x onerror=alert(1)>"
+    _run(b, x0=X0, width=10, height=8, thickness=np.full((8, 10), 10.0), zones=[],
+         holes=[(evil, X0 + 30, Y0 - 30, "0.0–1.0 <b>clay</b>")])
+    cmp = compare_runs(a, b)
+    write_comparison(cmp, tmp_path / "out")
+    text = (tmp_path / "out" / CHANGES_MAP).read_text()
+    assert evil not in text and "&lt;img src=x onerror=alert(1)&gt;" in text
+
+
+@pytest.mark.slow
+def test_compare_command_after_adding_holes_that_open_a_window(tmp_path, demo_run):
+    proj = tmp_path / "proj"
+    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
+    # two holes proving the clay absent in the middle of thick clay
+    cols = demo_run.inputs.columns
+    thick = cols[(cols["status_aquitard"] == "full") & (cols["aquitard_thickness_m"] > 15)]
+    x, y = float(thick["x"].iloc[0]) + 120.0, float(thick["y"].iloc[0]) + 80.0
+    (tmp_path / "collars_w.csv").write_text(
+        f"borehole_id,x,y,ground_elev_m,total_depth_m\nWIN-1,{x},{y},50,20\n"
+        f"WIN-2,{x + 60},{y},50,20\n")
+    (tmp_path / "intervals_w.csv").write_text(
+        "borehole_id,from_m,to_m,unit\nWIN-1,0,2,SAND\nWIN-1,2,20,GRAV\n"
+        "WIN-2,0,2,SAND\nWIN-2,2,20,GRAV\n")
+
+    def cli(*args):
+        return subprocess.run([sys.executable, "-m", "aquitardmap", *map(str, args)],
+                              capture_output=True, text=True, timeout=300)
+
+    import aquitardmap
+    from aquitardmap.project import read_project
+    from aquitardmap.store import add_files
+
+    add_files(read_project(proj), [tmp_path / "collars_w.csv", tmp_path / "intervals_w.csv"])
+    aquitardmap.run(proj, tmp_path / "B")
+    r = cli("compare", demo_run.out_dir, tmp_path / "B", "--out", tmp_path / "changes")
+    assert r.returncode == 0, r.stderr
+    assert "2 new" in r.stdout and "Window zones" in r.stdout
+    z = gpd.read_file(tmp_path / "changes" / CHANGES_GPKG, layer=ZONE_CHANGES_LAYER)
+    win = z[(z["kind"] == "window") & (z["change"] == "gained")]
+    hit = win[win.intersects(Point(x, y).buffer(1.0))]
+    assert len(hit) == 1 and "WIN-1 (new)" in hit["holes_nearby"].iloc[0]
