@@ -49,7 +49,7 @@ from pathlib import Path
 import pandas as pd
 
 from aquitardmap.errors import InputError, Problem, ProblemList
-from aquitardmap.logfiles import SourceFile, file_sha256, read_log_files
+from aquitardmap.logfiles import LogTables, SourceFile, file_sha256, read_log_files
 from aquitardmap.logs import (
     SAMPLE_VALUES,
     Boreholes,
@@ -521,6 +521,25 @@ def _live_file_batches(con: sqlite3.Connection, sha: str) -> list[int]:
         "WHERE f.sha256 = ? AND b.undone_utc IS NULL ORDER BY f.batch_id", (sha,))]
 
 
+def _read_batch(project: Project, paths: Sequence[str | Path]
+                ) -> tuple[LogTables, ProblemList]:
+    """Read the files of a batch; a batch without collars or intervals is a problem."""
+    tables, problems = read_log_files(paths, project.crs)
+    for kind in ("collars", "intervals"):
+        if kind not in tables.tables and not problems:
+            problems.add(", ".join(Path(p).name for p in paths), 0, 0,
+                         f"the batch has no {kind} table: a batch carries whole boreholes "
+                         "(collars and intervals, samples optional)")
+    return tables, problems
+
+
+def _validate_batch(project: Project, tables: LogTables, problems: ProblemList,
+                    stored_ids: frozenset[str]) -> Boreholes:
+    t = tables.tables
+    return validate_logs(project, t.get("collars"), t.get("intervals"), t.get("samples"),
+                         problems=problems, stored_ids=stored_ids)
+
+
 def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
               replace: bool = False) -> AddResult:
     """Validate the logs in ``paths`` and commit them to the store as one batch, or nothing.
@@ -539,17 +558,15 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
     """
     initial = None
     if not has_store(project):
+        # Check the new files before creating the store, so that bad files leave the
+        # project as it was (no store).
+        tables, problems = _read_batch(project, paths)
+        _validate_batch(project, tables, problems, frozenset(read_boreholes(project).collars.index))
         initial = create_store(project)
     path = store_path(project)
-    tables, problems = read_log_files(paths, project.crs)
+    tables, problems = _read_batch(project, paths)
     con = _connect(path)
     try:
-        for kind in ("collars", "intervals"):
-            if kind not in tables.tables and not any(
-                    p.message.startswith("file not found") for p in problems.problems):
-                problems.add(", ".join(Path(p).name for p in paths), 0, 0,
-                             f"the batch has no {kind} table: a batch carries whole "
-                             "boreholes (collars and intervals, samples optional)")
         already = {s.path.name: _live_file_batches(con, s.sha256) for s in tables.sources}
         if tables.sources and not problems and all(already.values()):
             where = "; ".join(f"{name} in batch {', '.join(map(str, b))}"
@@ -557,9 +574,8 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
             return AddResult(None, (), (), (), f"nothing to add: these files were added "
                              f"before ({where})", initial)
         stored_ids = frozenset(r[0] for r in con.execute("SELECT borehole_id FROM collars"))
+        new = _validate_batch(project, tables, problems, stored_ids)
         t = tables.tables
-        new = validate_logs(project, t.get("collars"), t.get("intervals"), t.get("samples"),
-                            problems=problems, stored_ids=stored_ids)
         holes = _holes_from_boreholes(new)
 
         con.execute("BEGIN IMMEDIATE")
