@@ -56,6 +56,7 @@ from aquitardmap.hydraulics import (
     series_resistance_s,
 )
 from aquitardmap.logs import Boreholes, column_table
+from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
 from aquitardmap.project import Project, read_project
 from aquitardmap.report import file_sha256, write_summary
@@ -659,10 +660,12 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         if bh[col].dtype == object and col != "geometry":
             bh[col] = bh[col].astype(str)
     bh.to_file(folder / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
-    names = sorted([*grids, *extra, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP])
+    names = sorted([*grids, *extra, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP,
+                    outputs.REPORT])
     summary["outputs"] = names
     write_summary(folder / outputs.SUMMARY, summary)
     write_map(folder, self_contained=self_contained_map)
+    write_report(folder)
     return names
 
 

@@ -328,6 +328,20 @@ def hole_category(*, reached_aquifer: bool, status: str, proves_window: bool,
     return "unknown"
 
 
+def hole_category_of(row: dict[str, Any]) -> str:
+    """:func:`hole_category` of one row of ``boreholes.gpkg`` (a dict of its columns).
+
+    Suspicious: any QA flag, excluded, or a true ``suspicious`` column."""
+    status = str(row.get("status_aquitard") or "").strip().lower()
+    flags = row.get("qa_flags")
+    flagged = isinstance(flags, str) and bool(flags.strip())
+    return hole_category(
+        reached_aquifer=truthy(row.get("reached_aquifer")), status=status,
+        proves_window=truthy(row.get("proves_window")),
+        proves_thin=truthy(row.get("proves_thin")),
+        suspicious=flagged or truthy(row.get("excluded")) or truthy(row.get("suspicious")))
+
+
 # --------------------------------------------------------------------------- units in logs
 
 _ROLE_PALETTES = {
@@ -420,6 +434,6 @@ __all__ = [
     "AVI_CLASS_FILE", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
     "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "avi_classes", "fmt_area",
     "fmt_m", "fmt_percent", "fmt_sig", "fmt_threshold", "fmt_years", "gradient_words",
-    "grid_styles", "hole_category", "thresholds", "truthy", "unit_colour", "unit_colours",
-    "zone_labels",
+    "grid_styles", "hole_category", "hole_category_of", "thresholds", "truthy", "unit_colour",
+    "unit_colours", "zone_labels",
 ]

@@ -26,7 +26,7 @@ from aquitardmap.presentation import (
     fmt_m,
     fmt_percent,
     fmt_years,
-    hole_category,
+    hole_category_of,
     truthy,
 )
 from aquitardmap.webmap.markup import esc
@@ -221,22 +221,13 @@ def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
             f"</div></div>{_interval_table(log_text, names)}</div>")
 
 
-def _is_suspicious(row: dict[str, Any]) -> bool:
-    return (bool(_text(row.get("qa_flags"))) or truthy(row.get("excluded"))
-            or truthy(row.get("suspicious")))
-
-
 def boreholes_layer(gdf: gpd.GeoDataFrame, colours: dict[str, str], names: dict[str, str]
                     ) -> tuple[folium.GeoJson, dict[str, int]]:
     """Boreholes (lon/lat) as circle markers with popups, and the count per category."""
     props = []
     counts = dict.fromkeys(HOLE_STYLES, 0)
     for row in gdf.drop(columns="geometry").to_dict("records"):
-        category = hole_category(
-            reached_aquifer=truthy(row.get("reached_aquifer")),
-            status=_text(row.get("status_aquitard")).lower(),
-            proves_window=truthy(row.get("proves_window")),
-            proves_thin=truthy(row.get("proves_thin")), suspicious=_is_suspicious(row))
+        category = hole_category_of(row)
         counts[category] += 1
         hole_id = esc(_text(row.get("borehole_id")) or "(no id)")
         label = HOLE_STYLES[category].label
