@@ -490,11 +490,17 @@ def _variogram_page(pages: _Pages, run_dir: Path) -> None:
             model = _model_from(total.get("variogram") or {})
             if model is not None and exp.lag_m.size:
                 hh = np.linspace(0, exp.lag_m.max() * 1.05, 200)
-                ax.plot(hh, model.gamma(hh), color="#d7191c", lw=1.4,
-                        label=f"fitted {model.model}: nugget "
-                              f"{fmt_sig(model.nugget if model.nugget > 1e-9 * model.sill else 0.0, 2)} m², "  # noqa: E501
-                              f"sill {fmt_sig(model.sill, 3)} m², range "
-                              f"{fmt_sig(model.range_m, 3)} m")
+                nugget = model.nugget if model.nugget > 1e-9 * model.sill else 0.0
+                label = (f"fitted {model.model}: nugget {fmt_sig(nugget, 2)} m², sill "
+                         f"{fmt_sig(model.sill, 3)} m², range {fmt_sig(model.range_m, 3)} m")
+                if getattr(model, "model2", ""):
+                    label += (f" + {model.model2} (partial sill "
+                              f"{fmt_sig(getattr(model, 'psill2', 0.0), 3)} m², range "
+                              f"{fmt_sig(getattr(model, 'range2_m', 0.0), 3)} m)")
+                if model.anisotropy_ratio > 1.0 + 1e-9:
+                    label += (f"; along the major axis ({model.anisotropy_angle_deg:g}°, "
+                              f"ratio {fmt_sig(model.anisotropy_ratio, 2)})")
+                ax.plot(hh, model.gamma(hh), color="#d7191c", lw=1.4, label=_wrap(label, 90))
             ax.set_xlabel("Distance between holes (m)", fontsize=8)
             ax.set_ylabel("Semivariance (m²)", fontsize=8)
             ax.set_title(f"Total clay thickness: {len(full)} holes that reached the aquifer",
