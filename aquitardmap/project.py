@@ -44,6 +44,7 @@ K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
 CRUST_TREATMENTS = ("raise_k", "not_protective")
 VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
 DRILLING_TARGETS = ("thin", "window", "both")
+COMPUTE_MODES = ("single", "dask")
 
 #: Default input file names inside a project folder (``[files]`` may override them).
 DEFAULT_FILES = {
@@ -190,6 +191,25 @@ class DrillingSettings:
 
 
 @dataclass(frozen=True)
+class ComputeSettings:
+    """Where the kriging tiles run (see :mod:`aquitardmap.compute`).
+
+    Attributes:
+        mode: ``"single"`` (default): in the running process; ``"dask"``: on a Dask cluster
+            (optional extra ``aquitardmap[dask]``).
+        scheduler: address of an existing Dask scheduler, e.g. ``"tcp://10.0.0.5:8786"``;
+            empty: start local worker processes.
+        workers: local worker processes when no scheduler is given (0: one per CPU core).
+        tile_cells: grid cells per tile, the unit of work and of working memory.
+    """
+
+    mode: str = "single"
+    scheduler: str = ""
+    workers: int = 0
+    tile_cells: int = 65_536
+
+
+@dataclass(frozen=True)
 class Project:
     """A validated project: where its files are and every setting of the run."""
 
@@ -204,6 +224,7 @@ class Project:
     screening: ScreeningThresholds = field(default_factory=ScreeningThresholds)
     qa: QASettings = field(default_factory=QASettings)
     files: dict[str, Path] = field(default_factory=dict)
+    compute: ComputeSettings = field(default_factory=ComputeSettings)
     config_sha256: str = ""
     materials: tuple[MaterialRule, ...] = ()
     drilling: DrillingSettings = field(default_factory=DrillingSettings)
@@ -435,7 +456,7 @@ def read_project(folder: str | Path) -> Project:
         problems.raise_if_any()
 
     known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files",
-             "materials", "drilling"}
+             "materials", "drilling", "compute"}
     for key in cfg:
         if key not in known:
             line, col = _locate(text, "", key)
@@ -590,6 +611,24 @@ def read_project(folder: str | Path) -> Project:
     )
 
     drilling = _read_drilling(problems, path, text, root, cfg.get("drilling", {}))
+    cp = cfg.get("compute", {})
+    mode = cp.get("mode", "single")
+    if mode not in COMPUTE_MODES:
+        problems.add(path, *_locate(text, "mode", "compute"),
+                     f"[compute] mode must be one of {', '.join(COMPUTE_MODES)}, got {mode!r}")
+        mode = "single"
+    scheduler = cp.get("scheduler", "")
+    if not isinstance(scheduler, str):
+        problems.add(path, *_locate(text, "scheduler", "compute"),
+                     "[compute] scheduler must be an address such as \"tcp://host:8786\"")
+        scheduler = ""
+    compute = ComputeSettings(
+        mode=mode, scheduler=scheduler.strip(),
+        workers=int(_number(problems, path, text, cp, "workers", 0, "compute", low=0,
+                            high=4096)),
+        tile_cells=int(_number(problems, path, text, cp, "tile_cells", 65_536, "compute",
+                               low=1024, high=16_777_216)),
+    )
 
     files_cfg = cfg.get("files", {})
     files: dict[str, Path] = {}
@@ -620,5 +659,5 @@ def read_project(folder: str | Path) -> Project:
         units=tuple(units), kriging=kriging, hydraulics=hydraulics, screening=screening,
         qa=qa, files=files, config_sha256=hashlib.sha256(raw).hexdigest(),
         materials=materials,
-        drilling=drilling,
+        drilling=drilling, compute=compute,
     )
