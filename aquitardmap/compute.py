@@ -28,6 +28,8 @@ from aquitardmap.project import ComputeSettings
 
 #: Cells (or target points) per tile when no session says otherwise.
 DEFAULT_TILE_CELLS = 65_536
+#: How long to try to reach a Dask scheduler before giving up.
+SCHEDULER_TIMEOUT = "20s"
 
 
 class Runner(Protocol):
@@ -126,7 +128,7 @@ def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]
     cluster = None
     try:
         if settings.scheduler:
-            client = Client(settings.scheduler, timeout="20s")
+            client = Client(settings.scheduler, timeout=SCHEDULER_TIMEOUT)
         else:
             n = settings.workers or os.cpu_count() or 1
             cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,

@@ -238,8 +238,24 @@ def leave_one_out(data: KrigingData, *, accelerate: bool | None = None
 # ------------------------------------------------------------------------------- numpy path
 
 
+def _structures(model: VariogramModel) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Codes, partial sills and ranges of the model's structures (a nested model, with a
+    second structure ``model2``, ``psill2``, ``range2_m``, has two)."""
+    names = [model.model]
+    psills = [model.psill]
+    ranges = [model.range_m]
+    second = getattr(model, "model2", "")
+    if second:
+        names.append(second)
+        psills.append(model.psill2)
+        ranges.append(model.range2_m)
+    return (np.array([STRUCTURE_CODES.get(n, -1) for n in names], dtype=np.int64),
+            np.array(psills, dtype=float),
+            np.array([max(r, 1e-12) for r in ranges], dtype=float))
+
+
 def _use_numba(data: KrigingData, accelerate: bool | None) -> bool:
-    ok = numba_available() and data.model.model in STRUCTURE_CODES
+    ok = numba_available() and bool(np.all(_structures(data.model)[0] >= 0))
     if accelerate is None:
         return ok
     if accelerate and not ok:
@@ -368,9 +384,7 @@ def _run_kernel(data: KrigingData, txy: np.ndarray, bounds: np.ndarray, cand: np
     est = np.empty(m)
     var = np.empty(m)
     md = data.model
-    kinds = np.array([STRUCTURE_CODES[md.model]], dtype=np.int64)
-    psills = np.array([md.psill], dtype=float)
-    ranges = np.array([max(md.range_m, 1e-12)], dtype=float)
+    kinds, psills, ranges = _structures(md)
     cap = int(max(1, min(64, SYSTEM_MEMORY_BYTES // (8 * (k + 1) ** 2))))
     _kernel()(np.ascontiguousarray(data.xy), data.z, np.ascontiguousarray(txy[:, 0]),
               np.ascontiguousarray(txy[:, 1]), bounds, cand, cand_bounds, k,

@@ -29,6 +29,7 @@ from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
 from aquitardmap import __version__, outputs
+from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.grid import Grid, make_grid, write_raster
@@ -58,7 +59,7 @@ from aquitardmap.hydraulics import (
 from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
-from aquitardmap.project import Project, read_project
+from aquitardmap.project import ComputeSettings, Project, read_project
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
 from aquitardmap.store import project_boreholes
@@ -670,13 +671,16 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
 
 
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
-        progress: ProgressFn | None = None, self_contained_map: bool = False) -> RunResult:
+        progress: ProgressFn | None = None, self_contained_map: bool = False,
+        compute: ComputeSettings | None = None) -> RunResult:
     """Run the whole screening on a project folder and write every output to ``out_dir``.
 
     With ``out_dir=None`` nothing is written (the result is returned in memory only).
     ``self_contained_map=True`` writes a ``map.html`` that opens without network (Leaflet
     inlined from a local copy, no background tiles); the local copy is looked for before
-    any work is done.
+    any work is done. ``compute`` replaces the project's ``[compute]`` settings (where the
+    kriging tiles run: this process, or a Dask cluster; the numbers are the same).
+    The summary records the seconds spent in each stage (``run.stage_seconds``).
 
     Raises:
         InputError: when inputs are unusable (nothing is written).
@@ -690,16 +694,31 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         find_web_assets()
     started = datetime.now(UTC)
     t0 = time.perf_counter()
+    seconds: dict[str, float] = {}
+
+    def lap(name: str, since: float) -> float:
+        now = time.perf_counter()
+        seconds[name] = round(now - since, 3)
+        return now
+
     step(0)
     inputs = load_inputs(project_dir)
-    step(1)
-    surfaces = build_surfaces(inputs)
-    step(2)
-    hyd = compute_hydraulics(inputs, surfaces)
-    step(3)
-    boreholes = borehole_table(inputs)
-    p_thin, zones = screen(inputs, surfaces, hyd, boreholes)
+    t = lap("inputs", t0)
+    with compute_session(compute or inputs.project.compute) as runner:
+        step(1)
+        surfaces = build_surfaces(inputs)
+        t = lap("surfaces", t)
+        step(2)
+        hyd = compute_hydraulics(inputs, surfaces)
+        t = lap("hydraulics", t)
+        step(3)
+        boreholes = borehole_table(inputs)
+        p_thin, zones = screen(inputs, surfaces, hyd, boreholes)
+        t = lap("zones", t)
+        compute_info = describe(runner)
     summary = _summary(inputs, surfaces, hyd, zones, boreholes, started, t0)
+    summary["compute"] = compute_info
+    summary["run"]["stage_seconds"] = seconds
     written = None
     if out_dir is not None:
         step(4)

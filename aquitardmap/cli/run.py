@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import click
@@ -10,6 +11,7 @@ from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeEl
 from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
 from aquitardmap.pipeline import run
+from aquitardmap.project import ComputeSettings, read_project
 from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
 
 
@@ -21,10 +23,32 @@ from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
               help="Write a map.html that opens without network: Leaflet inlined from a local "
                    "copy (Debian's libjs-leaflet, a global npm leaflet, or the folder in "
                    "AQUITARDMAP_WEB_ASSETS) and no background map tiles.")
+@click.option("--compute", "compute_mode", type=click.Choice(["single", "dask"]), default=None,
+              help="Where the kriging tiles run: this process (single) or a Dask cluster "
+                   "(dask; needs the 'dask' extra). Default: [compute] mode of project.toml.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies "
+                   "--compute dask). Without it, dask mode starts local worker processes.")
+@click.option("--workers", type=click.IntRange(min=0), default=None,
+              help="Local Dask worker processes when no scheduler is given (0: one per core).")
 @click.option("--debug", is_flag=True, help="Show the traceback of an internal error.")
-def run_command(project: Path, out_dir: Path, offline_map: bool, debug: bool) -> None:
+def run_command(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | None,
+                scheduler: str | None, workers: int | None, debug: bool) -> None:
     """Run every stage on the PROJECT folder and write grids, zones, boreholes, summary and
     the planners' map to --out."""
+    overrides: dict[str, object] = {}
+    if compute_mode is not None:
+        overrides["mode"] = compute_mode
+    if scheduler:
+        overrides["scheduler"] = scheduler
+        overrides.setdefault("mode", "dask")
+    if workers is not None:
+        overrides["workers"] = workers
+
+    def compute_settings() -> ComputeSettings | None:
+        if not overrides:
+            return None
+        return replace(read_project(project).compute, **overrides)
     if offline_map:
         try:
             find_web_assets()
@@ -39,12 +63,16 @@ def run_command(project: Path, out_dir: Path, offline_map: bool, debug: bool) ->
             bar.update(task, description=stage, completed=i - 1, total=n)
 
         result = guarded(lambda: run(project, out_dir, progress=progress,
-                                     self_contained_map=offline_map), debug)
+                                     self_contained_map=offline_map,
+                                     compute=compute_settings()), debug)
         bar.update(task, description="Done", completed=5)
     s = result.summary
     areas = s["zones"]["area_m2_by_kind"]
     console.print(f"Wrote {len(s['outputs'])} files to {result.out_dir}", markup=False)
     console.print(f"Flagged area: window {areas['window'] / 1e6:.2f} km², thin "
                   f"{areas['thin'] / 1e6:.2f} km², fast {areas['fast'] / 1e6:.2f} km²")
+    times = ", ".join(f"{k} {v:.1f} s" for k, v in s["run"].get("stage_seconds", {}).items())
+    if times:
+        console.print(f"Time per stage: {times}", markup=False)
     console.print(f"Open {result.out_dir / outputs.MAP} in a browser.", markup=False)
     console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")

@@ -1,0 +1,130 @@
+"""Running kriging tiles in this process or on a Dask cluster gives the same numbers."""
+
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from affine import Affine
+from pyproj import CRS
+
+from aquitardmap.compute import (
+    DaskRunner,
+    SerialRunner,
+    compute_session,
+    current_runner,
+    use_runner,
+)
+from aquitardmap.errors import InputError
+from aquitardmap.grid import Grid
+from aquitardmap.kriging import krige_grid, krige_points
+from aquitardmap.project import ComputeSettings, read_project
+from aquitardmap.variogram import VariogramModel
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    """A distributed LocalCluster of 2 workers. Threads (processes=False) rather than
+    processes: worker processes would import the installed package instead of the checkout
+    under test and take seconds to start; tasks still go through the scheduler, scatter and
+    gather of distributed, and pickling of the task data is tested in test_localkrige."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as c:
+        yield c
+
+
+def _problem(seed=1, n=500):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(0, 8000, n)
+    y = rng.uniform(0, 6000, n)
+    z = 5 + 2 * np.cos(x / 1500) + rng.normal(0, 0.5, n)
+    mask = np.ones((150, 200), bool)
+    mask[:40, :30] = False  # an irregular study area
+    grid = Grid(Affine(40.0, 0, 0.0, 0, -40.0, 6000.0), 200, 150, CRS.from_epsg(32632), mask)
+    m = VariogramModel("spherical", nugget=0.2, psill=4.0, range_m=2500.0,
+                       anisotropy_ratio=1.5, anisotropy_angle_deg=15.0)
+    return x, y, z, grid, m
+
+
+def test_dask_tiles_equal_single_process(cluster):
+    from distributed import Client
+
+    x, y, z, grid, m = _problem()
+    with use_runner(SerialRunner(tile_cells=1024)):
+        a = krige_grid(x, y, z, m, grid, max_neighbours=16)
+        pa = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16)
+    with Client(cluster) as client, use_runner(DaskRunner(client, tile_cells=1024)) as r:
+        assert current_runner() is r
+        b = krige_grid(x, y, z, m, grid, max_neighbours=16)
+        pb = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16)
+    assert np.array_equal(a.estimate, b.estimate, equal_nan=True)
+    assert np.array_equal(a.variance, b.variance, equal_nan=True)
+    assert np.array_equal(pa.estimate, pb.estimate)
+    assert np.array_equal(pa.variance, pb.variance)
+    assert np.isnan(a.estimate[~grid.mask]).all() and np.isfinite(a.estimate[grid.mask]).all()
+
+
+def test_tile_size_changes_nothing_but_rounding():
+    x, y, z, grid, m = _problem(seed=2)
+    with use_runner(SerialRunner(tile_cells=1024)):
+        a = krige_grid(x, y, z, m, grid, max_neighbours=16)
+    b = krige_grid(x, y, z, m, grid, max_neighbours=16)  # default runner, one tile
+    assert isinstance(current_runner(), SerialRunner)
+    assert np.allclose(a.estimate, b.estimate, rtol=1e-10, atol=1e-10, equal_nan=True)
+    assert np.allclose(a.variance, b.variance, rtol=1e-10, atol=1e-10, equal_nan=True)
+
+
+def test_pipeline_on_dask_equals_single_process(cluster, demo_run):
+    import aquitardmap
+
+    settings = replace(demo_run.inputs.project.compute, mode="dask",
+                       scheduler=cluster.scheduler_address)
+    res = aquitardmap.run(demo_run.inputs.project.root, None, compute=settings)
+    for name, s in demo_run.surfaces.items():
+        assert np.array_equal(s.thickness_m, res.surfaces[name].thickness_m, equal_nan=True)
+        assert np.array_equal(s.sd_m, res.surfaces[name].sd_m, equal_nan=True)
+    assert res.summary["compute"]["mode"] == "dask"
+    assert res.summary["compute"]["workers"] == 2
+    assert demo_run.summary["compute"]["mode"] == "single"
+    assert set(demo_run.summary["run"]["stage_seconds"]) == {"inputs", "surfaces",
+                                                             "hydraulics", "zones"}
+
+
+def test_single_mode_session_needs_no_dask():
+    with compute_session(ComputeSettings()) as r:
+        assert r.name == "single" and current_runner() is r
+    assert current_runner() is not r
+
+
+def test_unreachable_scheduler_is_an_input_problem(monkeypatch):
+    pytest.importorskip("distributed")
+    import aquitardmap.compute
+
+    monkeypatch.setattr(aquitardmap.compute, "SCHEDULER_TIMEOUT", "1s")
+    settings = ComputeSettings(mode="dask", scheduler="tcp://127.0.0.1:9")  # discard port
+    with pytest.raises(InputError, match="cannot reach the Dask scheduler"):
+        with compute_session(settings):
+            pass
+
+
+def _project(tmp_path, compute_text):
+    (tmp_path / "collars.csv").write_text("borehole_id,x,y,ground_elev_m,total_depth_m\n")
+    (tmp_path / "intervals.csv").write_text("borehole_id,from_m,to_m,unit\n")
+    (tmp_path / "project.toml").write_text(
+        '[project]\nname = "t"\ncrs = "EPSG:32632"\n[grid]\ncell_size_m = 50\n'
+        '[[units]]\ncode = "C"\nrole = "aquitard"\n[[units]]\ncode = "A"\nrole = "aquifer"\n'
+        + compute_text, encoding="utf-8")
+    return tmp_path
+
+
+def test_compute_settings_are_read_and_checked(tmp_path):
+    p = read_project(_project(tmp_path, '[compute]\nmode = "dask"\n'
+                              'scheduler = "tcp://10.0.0.5:8786"\nworkers = 4\n'
+                              'tile_cells = 20000\n'))
+    assert p.compute == ComputeSettings("dask", "tcp://10.0.0.5:8786", 4, 20000)
+    assert read_project(_project(tmp_path, "")).compute == ComputeSettings()
+    with pytest.raises(InputError) as err:
+        read_project(_project(tmp_path, '[compute]\nmode = "cloud"\ntile_cells = 5\n'))
+    text = "\n".join(str(q) for q in err.value.problems)
+    assert "[compute] mode must be one of single, dask" in text
+    assert "[compute] tile_cells must be >= 1024" in text
