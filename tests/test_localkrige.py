@@ -187,3 +187,26 @@ def test_bad_input_is_refused():
         localkrige.prepare([0.0, 1.0], [0.0], [1.0, 2.0], m, 8)
     with pytest.raises(ValueError, match="at least 2"):
         localkrige.leave_one_out(localkrige.prepare([0.0], [0.0], [1.0], m, 8))
+
+
+@pytest.mark.parametrize("accelerate", PATHS)
+def test_nested_model_equals_the_textbook_system(accelerate):
+    # Nested model (nugget + spherical + exponential): reference is the ordinary kriging
+    # system in variogram form, Isaaks & Srivastava (1989) eq. 12.14, solved with numpy on
+    # all data (k >= n).
+    from scipy.spatial.distance import cdist
+
+    x, y, z, xt, yt = _data(seed=12, n=60, n_targets=400)
+    m = VariogramModel("spherical", nugget=0.3, psill=3.0, range_m=1500.0,
+                       model2="exponential", psill2=4.0, range2_m=9000.0)
+    n = x.size
+    a = np.ones((n + 1, n + 1))
+    a[:n, :n] = m.gamma(cdist(np.c_[x, y], np.c_[x, y]))
+    a[n, n] = 0.0
+    b = np.ones((n + 1, xt.size))
+    b[:n] = m.gamma(cdist(np.c_[x, y], np.c_[xt, yt]))
+    w = np.linalg.solve(a, b)
+    e, v = localkrige.krige_targets(localkrige.prepare(x, y, z, m, 64), xt, yt,
+                                    accelerate=accelerate)
+    assert _close(e, w[:n].T @ z)
+    assert _close(v, (w * b).sum(axis=0))
