@@ -42,6 +42,7 @@ from matplotlib.ticker import FuncFormatter
 from aquitardmap import __version__, outputs
 from aquitardmap.presentation import (
     AVI_CLASS_FILE,
+    COUNT_WORDS,
     HOLE_STYLES,
     P_THIN_FILE,
     P_WINDOW_FILE,
@@ -272,13 +273,7 @@ def _title_page(pages: _Pages, run_dir: Path) -> None:
             for name, v in inputs.items()]
     flow.table(rows, ["Input file", "SHA-256 (fingerprint of the file as read)"],
                [0.22, 0.78], fontsize=7)
-    count_words = {
-        "boreholes": "boreholes", "excluded": "excluded by the user",
-        "reached_aquifer": "reached the aquifer (full clay thickness)",
-        "aquitard_lower_bound_holes": "stopped in the clay (lower bounds)",
-        "proves_window": "prove a window (no clay)", "qa_flagged": "QA-flagged",
-        "samples": "grain-size / lab samples"}
-    text = "; ".join(f"{counts[k]} {w}" for k, w in count_words.items() if k in counts)
+    text = "; ".join(f"{counts[k]} {w}" for k, w in COUNT_WORDS.items() if k in counts)
     flow.para(text + "." if text else "", width=110)
 
     flow.heading("Thresholds and results")

@@ -252,6 +252,16 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
     return styles
 
 
+#: Plain words for the ``counts`` of ``summary.json``, in reading order.
+COUNT_WORDS = {
+    "boreholes": "boreholes", "excluded": "excluded by the user",
+    "reached_aquifer": "reached the aquifer (full clay thickness)",
+    "aquitard_lower_bound_holes": "stopped in the clay (lower bounds)",
+    "proves_window": "prove a window (no clay)", "qa_flagged": "QA-flagged",
+    "samples": "grain-size / lab samples",
+}
+
+
 # --------------------------------------------------------------------------- zones
 
 ZONE_COLOURS = {"window": "#d7191c", "thin": "#f59b1a", "fast": "#1f9fd9"}
@@ -431,7 +441,7 @@ def fmt_years(value: float | None) -> str:
 
 
 __all__ = [
-    "AVI_CLASS_FILE", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
+    "AVI_CLASS_FILE", "COUNT_WORDS", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
     "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "avi_classes", "fmt_area",
     "fmt_m", "fmt_percent", "fmt_sig", "fmt_threshold", "fmt_years", "gradient_words",
     "grid_styles", "hole_category", "hole_category_of", "thresholds", "truthy", "unit_colour",

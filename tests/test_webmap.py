@@ -130,7 +130,7 @@ def test_caution_title_and_input_hashes_are_on_the_page(tiny_run: tuple[Path, st
     assert "Ostrel Valley &amp; &lt;test&gt;" in page
     assert "run 2025-03-04 08:15 UTC" in page and "aquitardmap 0.1.0" in page
     assert f'<td>collars.csv</td><td class="aqm-hash">{"ab" * 32}</td>' in page
-    assert "L.control.scale()" in page
+    assert "L.control.scale({ imperial: false" in page  # a metric scale bar
 
 
 def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:

@@ -110,7 +110,7 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
     crs = project_crs(run_dir, summary)
     assets = find_web_assets() if self_contained else None
 
-    fmap = folium.Map(tiles=None, control_scale=True, prefer_canvas=True, zoom_start=2,
+    fmap = folium.Map(tiles=None, control_scale=False, prefer_canvas=True, zoom_start=2,
                       zoom_snap=0.25, zoom_delta=0.5)
     # Only Leaflet is needed: the page uses no Bootstrap, jQuery or icon fonts.
     if self_contained:

@@ -15,6 +15,7 @@ function aqmStart(map, cfg) {
     });
     new Box({ position: position }).addTo(map);
   }
+  L.control.scale({ imperial: false, maxWidth: 160 }).addTo(map);  // metric only
   if (panel) {
     asControl(panel, "topright");
     var fitPanel = function () { panel.style.maxHeight = (map.getSize().y - 24) + "px"; };

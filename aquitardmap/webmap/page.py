@@ -17,6 +17,7 @@ from pyproj import CRS, Transformer
 
 from aquitardmap import outputs
 from aquitardmap.presentation import (
+    COUNT_WORDS,
     GROUPS,
     PROTECTION,
     UNCERTAINTY,
@@ -88,8 +89,8 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
         about.append(f"<b>Screening thresholds</b><table>{rows}</table>")
     counts = section(summary, "counts")
     if counts:
-        rows = "".join(f"<tr><td>{esc(str(k).replace('_', ' '))}</td><td>{esc(v)}</td></tr>"
-                       for k, v in counts.items())
+        rows = "".join(f"<tr><td>{esc(COUNT_WORDS.get(k, str(k).replace('_', ' ')))}</td>"
+                       f"<td>{esc(v)}</td></tr>" for k, v in counts.items())
         about.append(f"<b>Counts</b><table>{rows}</table>")
     about_html = ""
     if about:
