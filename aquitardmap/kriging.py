@@ -20,6 +20,7 @@ import numpy as np
 from aquitardmap import localkrige
 from aquitardmap.compute import current_runner
 from aquitardmap.grid import Grid
+from aquitardmap.tilecache import current_tile_cache
 from aquitardmap.variogram import VariogramModel, anisotropic_coordinates
 
 
@@ -95,14 +96,26 @@ def krige_points(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     return KrigingResult(est, np.maximum(var, 0.0))
 
 
+def _krige_arrays(x_m, y_m, values, model, xt_m, yt_m, *, max_neighbours):
+    """:func:`krige_points` as (estimate, variance) arrays (the tile cache's kriging)."""
+    r = krige_points(x_m, y_m, values, model, xt_m, yt_m, max_neighbours=max_neighbours)
+    return r.estimate, r.variance
+
+
 def krige_grid(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, model: VariogramModel,
                grid: Grid, *, max_neighbours: int = 64) -> KrigingResult:
     """Ordinary kriging onto the centres of the cells of ``grid`` inside its mask.
 
     The grid is cut into square windows of about the runner's ``tile_cells`` cells, each a
     task; memory stays bounded by the tile size plus the output grids. Returns
-    (height, width) arrays with NaN outside the mask.
+    (height, width) arrays with NaN outside the mask. Inside
+    :func:`aquitardmap.tilecache.tile_cache`, tiles whose deciding data are unchanged are
+    read from the cache instead (same numbers; see that module).
     """
+    cache = current_tile_cache()
+    if cache is not None:
+        return KrigingResult(*cache.krige_grid(x_m, y_m, values, model, grid,
+                                               max_neighbours, _krige_arrays))
     data = localkrige.prepare(x_m, y_m, values, model, max_neighbours)
     runner = current_runner()
     side = max(16, int(math.isqrt(runner.tile_cells)))

@@ -28,7 +28,7 @@ from pyproj import Transformer
 from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
-from aquitardmap import __version__, outputs
+from aquitardmap import __version__, outputs, tilecache
 from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
 from aquitardmap.errors import InputError, Problem, ProblemList
@@ -62,7 +62,7 @@ from aquitardmap.piercing import piercing_mask, piercing_table, point_density_pe
 from aquitardmap.project import ComputeSettings, Project, read_project
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
-from aquitardmap.store import project_boreholes
+from aquitardmap.store import has_store, project_boreholes
 from aquitardmap.surfaces import Surface, krige_column
 from aquitardmap.webmap import find_web_assets, write_map
 
@@ -670,9 +670,27 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     return names
 
 
+#: Folder of the kriged-tile cache inside a project that has a store.
+TILE_CACHE_DIR = ".aquitardmap-cache/tiles"
+
+
+@contextmanager
+def _surface_cache(project: Project, setting: str | Path | bool | None
+                   ) -> Iterator[tilecache.TileCache | None]:
+    """The tile cache for this run: ``None`` (default) uses ``PROJECT/.aquitardmap-cache/
+    tiles`` when the project has a store, ``False`` none, a path that folder."""
+    if setting is False or (setting is None and not has_store(project)):
+        yield None
+        return
+    folder = project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
+    with tilecache.tile_cache(folder) as cache:
+        yield cache
+
+
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         progress: ProgressFn | None = None, self_contained_map: bool = False,
-        compute: ComputeSettings | None = None) -> RunResult:
+        compute: ComputeSettings | None = None,
+        tile_cache: str | Path | bool | None = None) -> RunResult:
     """Run the whole screening on a project folder and write every output to ``out_dir``.
 
     With ``out_dir=None`` nothing is written (the result is returned in memory only).
@@ -685,6 +703,11 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     Raises:
         InputError: when inputs are unusable (nothing is written).
         WebAssetsNotFound: ``self_contained_map`` and no local Leaflet (nothing is written).
+
+    ``tile_cache``: grid kriging reuses the tiles whose deciding data are unchanged
+    (:mod:`aquitardmap.tilecache`; same numbers as without it). By default (None) this is
+    on for a project with a store, in ``PROJECT/.aquitardmap-cache/tiles``; False turns it
+    off; a path names the folder. ``summary.json`` then counts tiles reused and kriged.
     """
     def step(i: int) -> None:
         if progress is not None:
@@ -706,7 +729,8 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     t = lap("inputs", t0)
     with compute_session(compute or inputs.project.compute) as runner:
         step(1)
-        surfaces = build_surfaces(inputs)
+        with _surface_cache(inputs.project, tile_cache) as cache:
+            surfaces = build_surfaces(inputs)
         t = lap("surfaces", t)
         step(2)
         hyd = compute_hydraulics(inputs, surfaces)
@@ -719,6 +743,8 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     summary = _summary(inputs, surfaces, hyd, zones, boreholes, started, t0)
     summary["compute"] = compute_info
     summary["run"]["stage_seconds"] = seconds
+    if cache is not None:
+        summary["tile_cache"] = {"folder": str(cache.folder), **cache.stats.as_dict()}
     written = None
     if out_dir is not None:
         step(4)
@@ -726,4 +752,6 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
             write_outputs(tmp, inputs, surfaces, hyd, p_thin, zones, boreholes, summary,
                           self_contained_map=self_contained_map)
         written = Path(out_dir).resolve()
+    if cache is not None:
+        cache.prune()  # keep only the tiles of this (successful) run
     return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)

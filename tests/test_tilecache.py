@@ -1,0 +1,135 @@
+"""Re-gridding only what changed: tiles from the cache equal a full kriging (to 1e-9).
+
+Reference: kriging of the whole grid from all data in one call of
+``aquitardmap.kriging.krige_grid`` without a cache (pykrige, or the local engine, with the
+nearest ``k`` data), and a run with an empty cache. Data here are random (no meaning).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from affine import Affine
+from pyproj import CRS
+
+from aquitardmap.grid import Grid
+from aquitardmap.kriging import krige_grid
+from aquitardmap.tilecache import tile_cache
+from aquitardmap.variogram import VariogramModel
+
+CELL = 100.0
+
+
+def _grid(x0=500000.0, y0=6702000.0, width=90, height=70, hole=True):
+    mask = np.ones((height, width), bool)
+    if hole:
+        mask[:8, :11] = False  # a study area that is not a rectangle
+    return Grid(Affine(CELL, 0, x0, 0, -CELL, y0), width, height, CRS.from_epsg(32632), mask)
+
+
+def _data(n, seed):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(499500.0, 509500.0, n)
+    y = rng.uniform(6694500.0, 6702500.0, n)
+    z = 10.0 + 3.0 * np.sin(x / 1500.0) + rng.normal(0, 1.0, n)
+    return x, y, z
+
+
+MODEL = VariogramModel("spherical", nugget=0.3, psill=4.0, range_m=2500.0)
+
+
+def test_tiles_equal_one_full_kriging(tmp_path):
+    g = _grid()
+    x, y, z = _data(400, 1)
+    ref = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
+    with tile_cache(tmp_path / "c", tile_cells=16) as cache:
+        got = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
+    assert cache.stats.reused == 0 and cache.stats.computed > 20
+    inside = g.mask
+    assert np.isnan(got.estimate[~inside]).all()
+    np.testing.assert_allclose(got.estimate[inside], ref.estimate[inside], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(got.variance[inside], ref.variance[inside], rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("anisotropy", [(1.0, 0.0), (0.4, 30.0)])
+def test_after_adding_holes_only_nearby_tiles_are_kriged_again(tmp_path, anisotropy):
+    ratio, angle = anisotropy
+    model = VariogramModel("spherical", nugget=0.3, psill=4.0, range_m=2500.0,
+                           anisotropy_ratio=ratio, anisotropy_angle_deg=angle)
+    x, y, z = _data(600, 2)
+    g = _grid()
+    with tile_cache(tmp_path / "c", tile_cells=16) as first:
+        krige_grid(x, y, z, model, g, max_neighbours=16)
+    n_tiles = first.stats.computed
+    # ten new holes in one corner, and a study area grown by two columns to the east
+    rng = np.random.default_rng(3)
+    x2 = np.concatenate([x, rng.uniform(500000.0, 501500.0, 10)])
+    y2 = np.concatenate([y, rng.uniform(6695000.0, 6696500.0, 10)])
+    z2 = np.concatenate([z, rng.normal(9.0, 1.0, 10)])
+    g2 = _grid(width=92)
+    with tile_cache(tmp_path / "c", tile_cells=16) as second:
+        warm = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
+    with tile_cache(tmp_path / "cold", tile_cells=16):
+        cold = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
+    full = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
+    inside = g2.mask
+    # identical to a run with an empty cache, and to one kriging of the whole grid
+    assert np.array_equal(warm.estimate[inside], cold.estimate[inside])
+    np.testing.assert_allclose(warm.estimate[inside], full.estimate[inside], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(warm.variance[inside], full.variance[inside], rtol=0, atol=1e-9)
+    s = second.stats
+    assert s.computed > 0 and s.reused > 0
+    if ratio == 1.0:  # with anisotropy the bound is wider (by max(1,a)/min(1,a))
+        assert s.reused > 0.6 * n_tiles  # most of the grid came from the cache
+    assert second.prune() > 0  # entries the second run no longer needs
+
+
+def test_a_changed_value_changes_only_tiles_whose_region_holds_it(tmp_path):
+    x, y, z = _data(500, 4)
+    g = _grid(hole=False)
+    with tile_cache(tmp_path / "c", tile_cells=16):
+        before = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    z2 = z.copy()
+    i = int(np.argmin((x - 504000.0) ** 2 + (y - 6698000.0) ** 2))
+    z2[i] += 5.0
+    with tile_cache(tmp_path / "c", tile_cells=16) as cache:
+        after = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
+    full = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
+    np.testing.assert_allclose(after.estimate, full.estimate, rtol=0, atol=1e-9)
+    changed = ~np.isclose(after.estimate, before.estimate, rtol=0, atol=1e-12)
+    assert changed.any() and cache.stats.computed >= 1 and cache.stats.reused > 0
+
+
+@pytest.mark.slow
+def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
+    import shutil
+
+    import aquitardmap
+    from aquitardmap.project import read_project
+    from aquitardmap.store import add_files
+
+    from conftest import DEMO
+
+    proj = tmp_path / "proj"
+    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
+    (tmp_path / "collars_n.csv").write_text(
+        "borehole_id,x,y,ground_elev_m,total_depth_m\nTC-1,551000.0,6716000.0,55.0,30.0\n")
+    (tmp_path / "intervals_n.csv").write_text(
+        "borehole_id,from_m,to_m,unit\nTC-1,0,3,SAND\nTC-1,3,4,UMC\nTC-1,4,30,GRAV\n")
+    toml = proj / "project.toml"
+    toml.write_text(toml.read_text().replace("max_neighbours = 64", "max_neighbours = 16"))
+    add_files(read_project(proj), [tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv"])
+    first = aquitardmap.run(proj)
+    t1 = first.summary["tile_cache"]
+    assert t1["tiles_computed"] > 0 and t1["tiles_reused"] == 0
+    again = aquitardmap.run(proj)
+    t2 = again.summary["tile_cache"]
+    assert t2["tiles_computed"] == 0 and t2["tiles_reused"] == t1["tiles_computed"]
+    for name, s in first.surfaces.items():
+        assert np.array_equal(s.thickness_m, again.surfaces[name].thickness_m, equal_nan=True)
+    plain = aquitardmap.run(proj, tile_cache=False)
+    assert "tile_cache" not in plain.summary
+    for name, s in plain.surfaces.items():
+        np.testing.assert_allclose(again.surfaces[name].thickness_m, s.thickness_m, rtol=0,
+                                   atol=1e-9)
+        np.testing.assert_allclose(again.surfaces[name].sd_m, s.sd_m, rtol=0, atol=1e-9)
