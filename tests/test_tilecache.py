@@ -42,9 +42,9 @@ def test_tiles_equal_one_full_kriging(tmp_path):
     g = _grid()
     x, y, z = _data(400, 1)
     ref = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
-    with tile_cache(tmp_path / "c", tile_cells=16) as cache:
+    with tile_cache(tmp_path / "c") as cache:
         got = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
-    assert cache.stats.reused == 0 and cache.stats.computed > 20
+    assert cache.stats.cells_reused == 0 and cache.stats.cells_computed == int(g.mask.sum())
     inside = g.mask
     assert np.isnan(got.estimate[~inside]).all()
     np.testing.assert_allclose(got.estimate[inside], ref.estimate[inside], rtol=0, atol=1e-9)
@@ -58,46 +58,50 @@ def test_after_adding_holes_only_nearby_tiles_are_kriged_again(tmp_path, anisotr
                            anisotropy_ratio=ratio, anisotropy_angle_deg=angle)
     x, y, z = _data(600, 2)
     g = _grid()
-    with tile_cache(tmp_path / "c", tile_cells=16) as first:
+    with tile_cache(tmp_path / "c") as first:
         krige_grid(x, y, z, model, g, max_neighbours=16)
-    n_tiles = first.stats.computed
+    n_cells = first.stats.cells_computed
     # ten new holes in one corner, and a study area grown by two columns to the east
     rng = np.random.default_rng(3)
     x2 = np.concatenate([x, rng.uniform(500000.0, 501500.0, 10)])
     y2 = np.concatenate([y, rng.uniform(6695000.0, 6696500.0, 10)])
     z2 = np.concatenate([z, rng.normal(9.0, 1.0, 10)])
     g2 = _grid(width=92)
-    with tile_cache(tmp_path / "c", tile_cells=16) as second:
+    with tile_cache(tmp_path / "c") as second:
         warm = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
-    with tile_cache(tmp_path / "cold", tile_cells=16):
+    with tile_cache(tmp_path / "cold"):
         cold = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
     full = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
     inside = g2.mask
     # identical to a run with an empty cache, and to one kriging of the whole grid
-    assert np.array_equal(warm.estimate[inside], cold.estimate[inside])
+    np.testing.assert_allclose(warm.estimate[inside], cold.estimate[inside], rtol=0, atol=1e-9)
     np.testing.assert_allclose(warm.estimate[inside], full.estimate[inside], rtol=0, atol=1e-9)
     np.testing.assert_allclose(warm.variance[inside], full.variance[inside], rtol=0, atol=1e-9)
     s = second.stats
-    assert s.computed > 0 and s.reused > 0
+    assert s.cells_computed > 0 and s.cells_reused > 0
+    # every cell new to the study area (two columns) was kriged
+    assert s.cells_computed >= 2 * g2.height
     if ratio == 1.0:  # with anisotropy the bound is wider (by max(1,a)/min(1,a))
-        assert s.reused > 0.6 * n_tiles  # most of the grid came from the cache
-    assert second.prune() > 0  # entries the second run no longer needs
+        assert s.cells_reused > 0.6 * n_cells  # most of the grid came from the cache
+    assert second.prune() == 1  # the first run's entry is no longer needed
 
 
 def test_a_changed_value_changes_only_tiles_whose_region_holds_it(tmp_path):
     x, y, z = _data(500, 4)
     g = _grid(hole=False)
-    with tile_cache(tmp_path / "c", tile_cells=16):
+    with tile_cache(tmp_path / "c"):
         before = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
     z2 = z.copy()
     i = int(np.argmin((x - 504000.0) ** 2 + (y - 6698000.0) ** 2))
     z2[i] += 5.0
-    with tile_cache(tmp_path / "c", tile_cells=16) as cache:
+    with tile_cache(tmp_path / "c") as cache:
         after = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
     full = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
     np.testing.assert_allclose(after.estimate, full.estimate, rtol=0, atol=1e-9)
     changed = ~np.isclose(after.estimate, before.estimate, rtol=0, atol=1e-12)
-    assert changed.any() and cache.stats.computed >= 1 and cache.stats.reused > 0
+    assert changed.any() and cache.stats.cells_reused > 0
+    # every cell whose value changed was kriged again (the others were reused)
+    assert cache.stats.cells_computed >= int(changed.sum())
 
 
 @pytest.mark.slow
@@ -121,10 +125,10 @@ def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
     add_files(read_project(proj), [tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv"])
     first = aquitardmap.run(proj)
     t1 = first.summary["tile_cache"]
-    assert t1["tiles_computed"] > 0 and t1["tiles_reused"] == 0
+    assert t1["cells_computed"] > 0 and t1["cells_reused"] == 0
     again = aquitardmap.run(proj)
     t2 = again.summary["tile_cache"]
-    assert t2["tiles_computed"] == 0 and t2["tiles_reused"] == t1["tiles_computed"]
+    assert t2["cells_computed"] == 0 and t2["cells_reused"] == t1["cells_computed"]
     for name, s in first.surfaces.items():
         assert np.array_equal(s.thickness_m, again.surfaces[name].thickness_m, equal_nan=True)
     plain = aquitardmap.run(proj, tile_cache=False)
