@@ -41,6 +41,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import pandas as pd
+from pyproj import CRS, Transformer
+from pyproj.exceptions import ProjError
 
 from aquitardmap.errors import Problem, ProblemList
 from aquitardmap.materials import match_material
@@ -323,6 +325,30 @@ def _crs_in_metres(project: Project) -> bool:
     return bool(axes) and axes[0].unit_name in ("metre", "meter")
 
 
+def crs_extent_m(crs: CRS) -> tuple[float, float, float, float] | None:
+    """Generous bounds (xmin, ymin, xmax, ymax) in metres of where a projected ``crs`` is
+    meant to be used: its area of use (from the EPSG database, via pyproj) projected, then
+    widened by half its size on every side, because projections such as UTM are often used
+    beyond their nominal zone. None when the CRS declares no area of use.
+
+    A collar outside these bounds is not where the CRS could place it: most often x and y
+    are swapped, or the coordinates belong to another CRS.
+    """
+    aou = crs.area_of_use
+    if aou is None:
+        return None
+    try:
+        to_crs = Transformer.from_crs(CRS.from_epsg(4326), crs, always_xy=True)
+        xmin, ymin, xmax, ymax = to_crs.transform_bounds(aou.west, aou.south, aou.east,
+                                                         aou.north, densify_pts=21)
+    except ProjError:
+        return None
+    if not all(math.isfinite(v) for v in (xmin, ymin, xmax, ymax)):
+        return None
+    w, h = xmax - xmin, ymax - ymin
+    return (xmin - w / 2, ymin - h / 2, xmax + w / 2, ymax + h / 2)
+
+
 def _read_collars(raw: RawTable, project: Project, problems: ProblemList,
                   warnings: ProblemList) -> tuple[dict[str, _Collar], set[str]] | None:
     """Valid collars by id, and every id named (valid or not); None if unreadable."""
@@ -335,6 +361,7 @@ def _read_collars(raw: RawTable, project: Project, problems: ProblemList,
     collars: dict[str, _Collar] = {}
     first_line: dict[str, int] = {}
     metres = _crs_in_metres(project)
+    extent = crs_extent_m(project.crs) if metres else None
     for line, fields in table.rows:
         bid = _text(table, problems, line, fields, "borehole_id")
         x = _number(table, problems, line, fields, "x")
@@ -358,6 +385,14 @@ def _read_collars(raw: RawTable, project: Project, problems: ProblemList,
                          f"coordinates ({x:g}, {y:g}) look like degrees of longitude and "
                          f"latitude; give x and y in metres of the project CRS "
                          f"({project.crs.to_string()})")
+            ok = False
+        elif (extent is not None and x is not None and y is not None
+              and not (extent[0] <= x <= extent[2] and extent[1] <= y <= extent[3])):
+            problems.add(path, line, table.columns["x"],
+                         f"coordinates ({x:g}, {y:g}) lie far outside the area where the "
+                         f"project CRS {project.crs.to_string()} is used (x {extent[0]:.0f} "
+                         f"to {extent[2]:.0f}, y {extent[1]:.0f} to {extent[3]:.0f} m): are "
+                         "x and y swapped, or are they in another CRS?")
             ok = False
         if ok:
             collars[bid] = _Collar(line, x, y, z, td, table.columns["borehole_id"])
@@ -632,7 +667,8 @@ def read_boreholes(project: Project) -> Boreholes:
     file, text not in UTF-8, empty file, missing or repeated header column, malformed
     quoting, a row with the wrong number of fields, blank required value, text in a numeric
     column, non-finite number, duplicate borehole id in collars, ``total_depth_m <= 0``,
-    coordinates that look like degrees while the project CRS is in metres, an interval or
+    coordinates that look like degrees while the project CRS is in metres, coordinates far
+    outside the area where the project CRS is used (:func:`crs_extent_m`), an interval or
     sample naming a borehole absent from collars, ``from_m < 0``, ``to_m <= from_m``,
     overlapping intervals in one hole, ``to_m`` or a sample depth more than
     :data:`TOTAL_DEPTH_TOLERANCE_M` below ``total_depth_m``, unknown unit code, sample

@@ -26,6 +26,7 @@ documented default)::
 from __future__ import annotations
 
 import hashlib
+import math
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -59,6 +60,9 @@ DEFAULT_FILES = {
     "aquifer_head": "aquifer_head.csv",
 }
 REQUIRED_FILES = ("collars", "intervals")
+#: Default of ``[grid] max_cells``: a grid with more cells is refused before any memory is
+#: taken (a mistyped collar coordinate or a tiny cell size would otherwise ask for billions).
+MAX_GRID_CELLS = 4_000_000
 
 
 @dataclass(frozen=True)
@@ -228,6 +232,7 @@ class Project:
     config_sha256: str = ""
     materials: tuple[MaterialRule, ...] = ()
     drilling: DrillingSettings = field(default_factory=DrillingSettings)
+    max_grid_cells: int = MAX_GRID_CELLS
 
     @property
     def unit_codes(self) -> tuple[str, ...]:
@@ -294,15 +299,70 @@ def _locate(text: str, key: str, table: str | None = None, index: int = 0) -> tu
     return (start + 1, 1) if table is not None else (0, 0)
 
 
+class _Table(dict):
+    """A TOML table that remembers which keys the reader asked for, so that every key it
+    never asked for (a typo such as ``thin_thicknes_m``) can be reported instead of being
+    silently ignored while its default is used."""
+
+    def __init__(self, data: dict[str, Any], name: str, index: int | None = None) -> None:
+        super().__init__(data)
+        self.name = name
+        self.index = index
+        self.asked: set[str] = set()
+
+    def get(self, key: str, default: Any = None) -> Any:
+        self.asked.add(key)
+        return super().get(key, default)
+
+    def __getitem__(self, key: str) -> Any:
+        self.asked.add(key)
+        return super().__getitem__(key)
+
+    def __contains__(self, key: object) -> bool:
+        self.asked.add(str(key))
+        return super().__contains__(key)
+
+
+def _section(problems: ProblemList, path: Path, text: str, cfg: dict[str, Any], key: str,
+             tables: list[_Table]) -> _Table:
+    """``cfg[key]`` as a tracked table; a value that is not a table is reported."""
+    value = dict.get(cfg, key, {})
+    if not isinstance(value, dict):
+        problems.add(path, *_locate(text, key), f"{key} must be a table ([{key}] followed "
+                     f"by its keys), got {value!r}")
+        value = {}
+    tbl = _Table(value, key)
+    tables.append(tbl)
+    return tbl
+
+
+def _unknown_keys(problems: ProblemList, path: Path, text: str, tables: list[_Table]) -> None:
+    """Report every key of every table that the reader never asked for."""
+    for tbl in tables:
+        unknown = [k for k in dict.keys(tbl) if k not in tbl.asked]
+        where = f"[[{tbl.name}]] {tbl.index + 1}" if tbl.index is not None else f"[{tbl.name}]"
+        for k in unknown:
+            line, col = _locate(text, k, tbl.name, tbl.index or 0)
+            problems.add(path, line, col, f"unknown key {k!r} in {where}; expected one of "
+                         f"{', '.join(sorted(tbl.asked))}")
+
+
 def _number(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], key: str,
             default: float, table: str, index: int = 0, *, low: float | None = None,
-            high: float | None = None, low_open: bool = False) -> float:
+            high: float | None = None, low_open: bool = False,
+            integer: bool = False) -> float:
     value = tbl.get(key, default)
     line, col = _locate(text, key, table, index)
     if isinstance(value, bool) or not isinstance(value, int | float):
         problems.add(path, line, col, f"[{table}] {key} must be a number, got {value!r}")
         return float(default)
     value = float(value)
+    if not math.isfinite(value):
+        problems.add(path, line, col, f"[{table}] {key} must be a finite number, got {value}")
+        return float(default)
+    if integer and value != int(value):
+        problems.add(path, line, col, f"[{table}] {key} must be a whole number, got {value:g}")
+        return float(default)
     if low is not None and (value <= low if low_open else value < low):
         rel = ">" if low_open else ">="
         problems.add(path, line, col, f"[{table}] {key} must be {rel} {low}, got {value}")
@@ -313,15 +373,40 @@ def _number(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], k
 
 def _resolve_inside(problems: ProblemList, path: Path, text: str, root: Path, key: str,
                     name: str) -> Path:
-    """Resolve ``name`` inside ``root``; a path that escapes the folder is refused."""
-    candidate = (root / name).resolve()
+    """Resolve ``name`` inside ``root``; a path that escapes the folder (by ``..``, as an
+    absolute path, or through a symbolic link) is refused, as is one that names no file."""
+    line, col = _locate(text, key, "files")
+    if not name.strip() or "\0" in name:
+        problems.add(path, line, col, f"[files] {key} = {name!r} does not name a file")
+        return root / DEFAULT_FILES[key]
     try:
+        candidate = (root / name).resolve()
         candidate.relative_to(root.resolve())
     except ValueError:
-        line, col = _locate(text, key, "files")
-        problems.add(path, line, col,
-                     f"[files] {key} = {name!r} points outside the project folder; refused")
+        via = " through a symbolic link" if _has_link(root, name) else ""
+        problems.add(path, line, col, f"[files] {key} = {name!r} points outside the project "
+                     f"folder{via}; refused")
+        return root / DEFAULT_FILES[key]
+    except OSError as exc:
+        problems.add(path, line, col, f"[files] {key} = {name!r} cannot be resolved: "
+                     f"{exc.strerror or exc}")
+        return root / DEFAULT_FILES[key]
+    if candidate.exists() and not candidate.is_file():
+        problems.add(path, line, col, f"[files] {key} = {name!r} is a folder, not a file")
     return candidate
+
+
+def _has_link(root: Path, name: str) -> bool:
+    """True when some component of ``root / name`` below ``root`` is a symbolic link."""
+    p = root
+    for part in Path(name).parts:
+        p = p / part
+        try:
+            if p.is_symlink():
+                return True
+        except OSError:
+            return False
+    return False
 
 
 def _read_materials(problems: ProblemList, path: Path, text: str, cfg: Any,
@@ -409,10 +494,10 @@ def _read_drilling(problems: ProblemList, path: Path, text: str, root: Path,
         problems.add(path, *_locate(text, "priority_grid", "drilling"),
                      "[drilling] priority_grid must be a file name (a string)")
     elif priority.strip():
-        priority_path = (root / priority).resolve()
         try:
+            priority_path = (root / priority).resolve()
             priority_path.relative_to(root.resolve())
-        except ValueError:
+        except (ValueError, OSError):  # outside the folder, or a NUL byte in the name
             problems.add(path, *_locate(text, "priority_grid", "drilling"),
                          f"[drilling] priority_grid = {priority!r} points outside the "
                          "project folder; refused")
@@ -423,6 +508,17 @@ def _read_drilling(problems: ProblemList, path: Path, text: str, root: Path,
                              f"[drilling] priority_grid {priority!r} not found in the "
                              "project folder")
     return DrillingSettings(int(holes), p_low, p_high, target, spacing, priority_path)
+
+
+def setting_location(project: Project, table: str, key: str) -> tuple[int, int]:
+    """(line, column) of ``key`` in ``[table]`` of the project's ``project.toml`` (the table
+    header when the key is absent, (0, 0) when neither is there): for messages about a
+    setting that only a later stage can judge."""
+    try:
+        text = (project.root / PROJECT_FILE).read_text(encoding="utf-8", errors="replace")
+    except OSError:
+        return (0, 0)
+    return _locate(text, key, table)
 
 
 def read_project(folder: str | Path) -> Project:
@@ -442,7 +538,7 @@ def read_project(folder: str | Path) -> Project:
         problems.raise_if_any()
     raw = path.read_bytes()
     try:
-        text = raw.decode("utf-8")
+        text = raw.decode("utf-8").removeprefix("\ufeff")  # a byte-order mark is accepted
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
         problems.add(path, line, 0, "file is not valid UTF-8 text")
@@ -465,7 +561,8 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, line, col, f"unknown section or key {key!r}; "
                          f"expected one of {', '.join(sorted(known))}")
 
-    proj = cfg.get("project", {})
+    tables: list[_Table] = []
+    proj = _section(problems, path, text, cfg, "project", tables)
     name = proj.get("name")
     if not isinstance(name, str) or not name.strip():
         line, col = _locate(text, "name", "project")
@@ -487,24 +584,33 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, line, col, f"[project] crs {crs_value!r} is not a known CRS; "
                          "give an EPSG code such as \"EPSG:32632\"")
 
-    grid = cfg.get("grid", {})
+    grid = _section(problems, path, text, cfg, "grid", tables)
     if "cell_size_m" not in grid:
         line, col = _locate(text, "", "grid")
         problems.add(path, line, col, "[grid] cell_size_m is required")
     cell = _number(problems, path, text, grid, "cell_size_m", 50.0, "grid", low=0,
                    low_open=True)
     buffer_m = _number(problems, path, text, grid, "buffer_m", 250.0, "grid", low=0)
+    max_cells = int(_number(problems, path, text, grid, "max_cells", MAX_GRID_CELLS, "grid",
+                            low=1, integer=True))
 
     units_cfg = cfg.get("units", [])
     units: list[Unit] = []
     if not isinstance(units_cfg, list) or not units_cfg:
-        problems.add(path, 0, 0, "at least one [[units]] table is required (the stack, top "
-                     "to bottom)")
+        line, col = _locate(text, "", "units")
+        if (line, col) == (0, 0):
+            line, col = _locate(text, "units")
+        problems.add(path, line, col, "at least one [[units]] table is required (the stack, "
+                     "top to bottom)")
         units_cfg = []
     seen_codes: set[str] = set()
     for i, u in enumerate(units_cfg):
         if not isinstance(u, dict):
+            problems.add(path, *_locate(text, "units"), f"unit {i + 1}: each unit must be a "
+                         f"table ([[units]] followed by its keys), got {u!r}")
             continue
+        u = _Table(u, "units", i)
+        tables.append(u)
         code = u.get("code")
         lc = _locate(text, "code", "units", i)
         if not isinstance(code, str) or not re.fullmatch(r"[A-Za-z0-9_]{1,24}", code or ""):
@@ -515,6 +621,10 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, *lc, f"unit code {code!r} appears twice")
         seen_codes.add(code)
         uname = u.get("name", code)
+        if not isinstance(uname, str):
+            problems.add(path, *_locate(text, "name", "units", i),
+                         f"unit {code}: name must be a string, got {uname!r}")
+            uname = code
         role = u.get("role")
         if role not in ROLES:
             problems.add(path, *_locate(text, "role", "units", i),
@@ -545,7 +655,7 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, 0, 0, "the stack needs at least one unit with role = "
                          "\"aquitard\" above the first aquifer")
 
-    kr = cfg.get("kriging", {})
+    kr = _section(problems, path, text, cfg, "kriging", tables)
     model = kr.get("variogram_model", "spherical")
     if model not in VARIOGRAM_MODELS:
         problems.add(path, *_locate(text, "variogram_model", "kriging"),
@@ -553,13 +663,14 @@ def read_project(folder: str | Path) -> Project:
         model = "spherical"
     kriging = KrigingSettings(
         variogram_model=model,
-        n_lags=int(_number(problems, path, text, kr, "n_lags", 0, "kriging", low=0, high=100)),
+        n_lags=int(_number(problems, path, text, kr, "n_lags", 0, "kriging", low=0, high=100,
+                           integer=True)),
         max_lag_fraction=_number(problems, path, text, kr, "max_lag_fraction", 0.25, "kriging",
                                  low=0.05, high=1.0),
         max_neighbours=int(_number(problems, path, text, kr, "max_neighbours", 64, "kriging",
-                                   low=4, high=5000)),
+                                   low=4, high=5000, integer=True)),
     )
-    hy = cfg.get("hydraulics", {})
+    hy = _section(problems, path, text, cfg, "hydraulics", tables)
     hydraulics = HydraulicSettings(
         groundwater_temp_c=_number(problems, path, text, hy, "groundwater_temp_c", 10.0,
                                    "hydraulics", low=0.0, high=40.0),
@@ -582,7 +693,7 @@ def read_project(folder: str | Path) -> Project:
         problems.add(path, *_locate(text, "crust_treatment", "hydraulics"),
                      f"[hydraulics] crust_treatment must be one of "
                      f"{', '.join(CRUST_TREATMENTS)}, got {hy.get('crust_treatment')!r}")
-    sc = cfg.get("screening", {})
+    sc = _section(problems, path, text, cfg, "screening", tables)
     screening = ScreeningThresholds(
         window_thickness_m=_number(problems, path, text, sc, "window_thickness_m", 1.0,
                                    "screening", low=0),
@@ -598,7 +709,7 @@ def read_project(folder: str | Path) -> Project:
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),
                      "[screening] thin_thickness_m must be >= window_thickness_m")
-    q = cfg.get("qa", {})
+    q = _section(problems, path, text, cfg, "qa", tables)
     excl = q.get("exclude_boreholes", [])
     if not isinstance(excl, list) or not all(isinstance(e, str | int) for e in excl):
         problems.add(path, *_locate(text, "exclude_boreholes", "qa"),
@@ -611,7 +722,7 @@ def read_project(folder: str | Path) -> Project:
     )
 
     drilling = _read_drilling(problems, path, text, root, cfg.get("drilling", {}))
-    cp = cfg.get("compute", {})
+    cp = _section(problems, path, text, cfg, "compute", tables)
     mode = cp.get("mode", "single")
     if mode not in COMPUTE_MODES:
         problems.add(path, *_locate(text, "mode", "compute"),
@@ -625,12 +736,12 @@ def read_project(folder: str | Path) -> Project:
     compute = ComputeSettings(
         mode=mode, scheduler=scheduler.strip(),
         workers=int(_number(problems, path, text, cp, "workers", 0, "compute", low=0,
-                            high=4096)),
+                            high=4096, integer=True)),
         tile_cells=int(_number(problems, path, text, cp, "tile_cells", 65_536, "compute",
-                               low=1024, high=16_777_216)),
+                               low=1024, high=16_777_216, integer=True)),
     )
 
-    files_cfg = cfg.get("files", {})
+    files_cfg = _section(problems, path, text, cfg, "files", tables)
     files: dict[str, Path] = {}
     for key, default in DEFAULT_FILES.items():
         name_ = files_cfg.get(key, default)
@@ -638,18 +749,14 @@ def read_project(folder: str | Path) -> Project:
             problems.add(path, *_locate(text, key, "files"), f"[files] {key} must be a path")
             continue
         files[key] = _resolve_inside(problems, path, text, root, key, name_)
-    for key in files_cfg:
-        if key not in DEFAULT_FILES:
-            problems.add(path, *_locate(text, key, "files"),
-                         f"[files] unknown key {key!r}; expected one of "
-                         f"{', '.join(DEFAULT_FILES)}")
+    _unknown_keys(problems, path, text, tables)
     materials = _read_materials(problems, path, text, cfg.get("materials", []),
                                 {u.code for u in units})
     store_file = files.get("store")
     for key in REQUIRED_FILES:
         if store_file is not None and store_file.is_file():
             break  # the project's boreholes live in its store (aquitardmap.store)
-        if key in files and not files[key].is_file():
+        if key in files and not files[key].exists():
             problems.add(files[key], 0, 0, f"required input file {files[key].name} not found "
                          "in the project folder")
 
@@ -660,4 +767,5 @@ def read_project(folder: str | Path) -> Project:
         qa=qa, files=files, config_sha256=hashlib.sha256(raw).hexdigest(),
         materials=materials,
         drilling=drilling, compute=compute,
+        max_grid_cells=max_cells,
     )

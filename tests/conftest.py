@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections import Counter
 from pathlib import Path
 
 import pytest
@@ -17,3 +18,16 @@ def demo_run(tmp_path_factory):
 
     out = tmp_path_factory.mktemp("demo") / "out"
     return aquitardmap.run(DEMO, out)
+
+
+#: Generated input cases run by the property-based tests, by kind; printed at the end of the
+#: session (the README quotes the total).
+GENERATED_CASES: Counter[str] = Counter()
+
+
+def pytest_terminal_summary(terminalreporter):
+    if GENERATED_CASES:
+        terminalreporter.section("generated input cases")
+        for kind, n in GENERATED_CASES.items():
+            terminalreporter.write_line(f"{n:6d}  {kind}")
+        terminalreporter.write_line(f"{sum(GENERATED_CASES.values()):6d}  in total")
