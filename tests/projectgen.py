@@ -373,9 +373,14 @@ def _dem(spec: Spec) -> bytes:
 
 
 def column_thickness_m(result) -> np.ndarray:
-    """Thickness of the whole column above the aquifer (cover + aquitards) per cell (m)."""
-    return sum(result.surfaces[u.code].thickness_m
-               for u in result.inputs.project.column_units)
+    """Thickness of the column the water crosses above the aquifer, per cell (m): cover and
+    aquitards after any hazard cut, less the weathered crust when it is not protective."""
+    hyd = result.hydraulics
+    col = sum(hyd.column_thickness_m[u.code] for u in result.inputs.project.column_units)
+    if (result.inputs.project.hydraulics.crust_treatment == "not_protective"
+            and hyd.crust_m is not None):
+        col = col - hyd.crust_m
+    return col
 
 
 def check_result(result) -> None:
@@ -406,10 +411,16 @@ def check_result(result) -> None:
     hyd = result.hydraulics
     tt, res = hyd.travel_time_yr[m], hyd.resistance_yr[m]
     leak, kv = hyd.leakance_per_s[m], hyd.kv_m_s[m]
-    for name, arr in (("travel time", tt), ("resistance", res)):
-        assert np.isfinite(arr).all(), f"{name}: NaN/inf in the study area"
-        assert (arr[none] == 0).all() and (arr[~none] > 0).all(), \
-            f"{name}: must be 0 exactly where the column has no thickness, > 0 elsewhere"
+    assert np.isfinite(res).all(), "resistance: NaN/inf in the study area"
+    assert (res[none] == 0).all() and (res[~none] > 0).all(), \
+        "resistance: must be 0 exactly where the column has no thickness, > 0 elsewhere"
+    # Travel time is infinite where the head gradient is not downward (a documented value);
+    # with the stated gradient (> 0 by configuration) it is finite everywhere.
+    down = (hyd.vertical_gradient[m] > 0 if hyd.vertical_gradient is not None
+            else np.ones_like(none))
+    assert not np.isnan(tt).any() and np.isfinite(tt[down]).all()
+    assert (tt[none & down] == 0).all() and (tt[~none] > 0).all(), \
+        "travel time: must be 0 exactly where the column has no thickness, > 0 elsewhere"
     assert (leak > 0).all() and not np.isnan(leak).any()
     assert (np.isinf(leak) == none).all(), "leakance must be +inf exactly where no column"
     assert np.isnan(kv[none]).all(), "Kv is undefined (0/0) where there is no column"

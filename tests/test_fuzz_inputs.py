@@ -63,7 +63,7 @@ PROJECT_FILES = {"project.toml", "collars.csv", "intervals.csv", "samples.csv", 
 # ---------------------------------------------------------------------------- valid projects
 
 
-@_settings(150)
+@_settings(120)
 @given(spec=pg.specs())
 def test_valid_projects_run_with_sane_outputs_or_are_refused_for_a_stated_reason(spec):
     GENERATED_CASES["valid projects, in process"] += 1
@@ -438,7 +438,7 @@ def broken_projects(draw) -> tuple[pg.Spec, pg.Rendered, Expect, str]:
     return spec, r, brk(draw, spec, r), brk.__name__
 
 
-@_settings(250)
+@_settings(200)
 @given(case=broken_projects())
 def test_broken_input_is_refused_naming_file_line_and_column(case):
     spec, rendered, expect, name = case
@@ -465,7 +465,7 @@ def _toml_scalar() -> st.SearchStrategy[str]:
     )
 
 
-@_settings(200)
+@_settings(150)
 @given(spec=pg.specs(max_holes=5), data=st.data())
 def test_any_value_of_any_setting_is_used_or_refused_at_its_line(spec, data):
     GENERATED_CASES["settings of any type, in process"] += 1
@@ -491,7 +491,7 @@ def test_any_value_of_any_setting_is_used_or_refused_at_its_line(spec, data):
     pg.check_result(result)
 
 
-@_settings(150)
+@_settings(120)
 @given(spec=pg.specs(max_holes=5), data=st.data())
 def test_any_bytes_in_any_input_file_never_crash(spec, data):
     GENERATED_CASES["arbitrary file contents, in process"] += 1
