@@ -477,7 +477,9 @@ def _variogram_page(pages: _Pages, run_dir: Path) -> None:
             n_lags, max_lag = default_lags(x, y)
             n_lags = int(kriging.get("n_lags") or 0) or n_lags
             exp = experimental_variogram(x, y, z, n_lags=n_lags, max_lag_m=max_lag)
-            ax.scatter(exp.lag_m, exp.gamma, s=14 + 60 * exp.n_pairs / max(exp.n_pairs.max(), 1),
+            # no pair at all when the holes share one position
+            most = max(exp.n_pairs.max(), 1) if exp.n_pairs.size else 1
+            ax.scatter(exp.lag_m, exp.gamma, s=14 + 60 * exp.n_pairs / most,
                        color="#2c7bb6", zorder=3, label="experimental (marker size ∝ pairs)")
             for h, g, n in zip(exp.lag_m, exp.gamma, exp.n_pairs, strict=True):
                 ax.annotate(str(int(n)), (h, g), textcoords="offset points", xytext=(0, 5),
