@@ -238,13 +238,20 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
         idx = np.where(on_target[:, None], idx[:, 1:], idx[:, :-1])
     weights = np.empty((tx.size, k))
     variance = np.empty(tx.size)
+    # Semivariances between data: one matrix looked up when it is small enough.
+    table = None
+    if n <= 4000:
+        table = model.gamma(np.hypot(ax[:, None] - ax[None, :], ay[:, None] - ay[None, :]))
     for start in range(0, tx.size, chunk):
         sl = slice(start, start + chunk)
         ii = idx[sl]
-        px, py = ax[ii], ay[ii]
-        dd = np.hypot(px[:, :, None] - px[:, None, :], py[:, :, None] - py[:, None, :])
         a = np.ones((ii.shape[0], k + 1, k + 1))
-        a[:, :k, :k] = model.gamma(dd)
+        if table is not None:
+            a[:, :k, :k] = table[ii[:, :, None], ii[:, None, :]]
+        else:
+            px, py = ax[ii], ay[ii]
+            a[:, :k, :k] = model.gamma(np.hypot(px[:, :, None] - px[:, None, :],
+                                                py[:, :, None] - py[:, None, :]))
         a[:, k, k] = 0.0
         b = np.ones((ii.shape[0], k + 1))
         b[:, :k] = model.gamma(d[sl])

@@ -20,6 +20,11 @@ BOREHOLES_LAYER = "boreholes"
 MAP = "map.html"
 SUMMARY = "summary.json"
 REPORT = "report.pdf"
+#: Probability grids drawn from the censored-data model (aquitardmap.probability).
+P_THIN_PROB = "p_thin.tif"
+P_WINDOW_PROB = "p_window.tif"
+#: Leave-one-out cross-validation residuals of every kriged surface, one row per hole.
+CV_RESIDUALS = "cv_residuals.csv"
 AVI_CLASS = "avi_class.tif"
 DIFFUSION_TIME = "diffusion_time_yr.tif"
 PECLET = "peclet_number.tif"
@@ -33,6 +38,12 @@ AQUITARD_THICKNESS_EFFECTIVE = "aquitard_thickness_effective_m.tif"  # hazards o
 SUGGESTED_HOLES = "suggested_holes.gpkg"
 SUGGESTED_HOLES_LAYER = "suggested_holes"
 SUGGESTED_HOLES_CSV = "suggested_holes.csv"
+
+
+def variogram_figure(surface: str) -> str:
+    """File name of the variogram plot of a kriged surface (``"aquitard"`` or a unit code):
+    ``variogram_<surface>.png``."""
+    return f"variogram_{surface}.png"
 
 
 def unit_thickness(code: str) -> str:

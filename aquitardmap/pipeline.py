@@ -33,6 +33,7 @@ from aquitardmap import __version__, outputs, tilecache
 from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
 from aquitardmap.errors import InputError, Problem, ProblemList
+from aquitardmap.figures import variogram_figure
 from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
 from aquitardmap.hazards import (
     annotate_zones,
@@ -60,6 +61,7 @@ from aquitardmap.hydraulics import (
 from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
+from aquitardmap.probability import ThicknessProbabilities, thickness_probabilities
 from aquitardmap.project import (
     PROJECT_FILE,
     ComputeSettings,
@@ -70,7 +72,8 @@ from aquitardmap.project import (
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
 from aquitardmap.store import has_store, project_boreholes
-from aquitardmap.surfaces import Surface, krige_column
+from aquitardmap.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
+from aquitardmap.suspicious import suspicious_columns, suspicious_list
 from aquitardmap.webmap import find_web_assets, write_map
 
 #: Called with (stage description, stage number from 1, number of stages).
@@ -136,6 +139,7 @@ class RunResult:
     zones: gpd.GeoDataFrame
     boreholes: gpd.GeoDataFrame
     summary: dict
+    probabilities: ThicknessProbabilities | None = None
 
 
 def same_crs(a, b) -> bool:
@@ -387,13 +391,57 @@ def load_inputs(project_dir: str | Path) -> Inputs:
 
 
 def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
-    """Stage 2: krige the total aquitard thickness and each unit above the aquifer."""
+    """Stage 2: krige the total aquitard thickness and each unit above the aquifer.
+
+    Fallbacks taken for a surface (too few holes, all holes equal, merged duplicates) are
+    added to ``inputs.warnings``.
+
+    Raises:
+        InputError: a unit that no borehole passes through completely.
+    """
     p = inputs.project
     used = inputs.columns[~inputs.columns["excluded"]]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        return krige_column(used, [u.code for u in p.column_units],
-                            [u.code for u in p.aquitard_units], inputs.grid, p.kriging)
+        try:
+            surfaces = krige_column(used, [u.code for u in p.column_units],
+                                    [u.code for u in p.aquitard_units], inputs.grid, p.kriging)
+        except ValueError as exc:
+            raise InputError([Problem(p.files["intervals"].name, 0, 0,
+                                      f"{exc}: holes that stop in it only give lower bounds, "
+                                      "so it cannot be mapped; add holes that pass through "
+                                      "it or merge it with a neighbouring unit of the stack"
+                                      )]) from exc
+    for s in surfaces.values():
+        inputs.warnings.extend(Problem(p.files["intervals"].name, 0, 0, n) for n in s.notes)
+    return surfaces
+
+
+def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
+                                hyd: Hydraulics) -> ThicknessProbabilities:
+    """Stage 4a: P(window) and P(thin) of the protective aquitard thickness on the grid
+    (:mod:`aquitardmap.probability`), with the total thickness's variogram.
+
+    Where hazards (or a non-protective weathered crust) cut the column, the protective
+    thickness is the total less the cut ``c`` computed on the kriged total, and
+    P(protective < t) is taken as P(total < t + c).
+    """
+    p = inputs.project
+    th = p.screening
+    total = surfaces["aquitard"]
+    cut = 0.0
+    if hyd.protective_thickness_m is not None:
+        cut = np.where(np.isfinite(total.thickness_m),
+                       np.maximum(total.thickness_m - hyd.protective_thickness_m, 0.0), 0.0)
+        cut = np.nan_to_num(cut)
+    used = inputs.columns[~inputs.columns["excluded"]]
+    return thickness_probabilities(
+        used["x"].to_numpy(float), used["y"].to_numpy(float),
+        used["aquitard_thickness_m"].to_numpy(float), used["status_aquitard"].to_numpy(),
+        total.variogram, inputs.grid,
+        {"window": th.window_thickness_m + cut, "thin": th.thin_thickness_m + cut},
+        max_neighbours=p.kriging.max_neighbours, n_draws=th.probability_draws,
+        seed=th.probability_seed)
 
 
 def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:
@@ -491,9 +539,19 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
         )
 
 
-def borehole_table(inputs: Inputs) -> gpd.GeoDataFrame:
-    """Every borehole with its derived values, as points in the project CRS."""
+def borehole_table(inputs: Inputs, surfaces: dict[str, Surface] | None = None
+                   ) -> gpd.GeoDataFrame:
+    """Every borehole with its derived values, as points in the project CRS.
+
+    With ``surfaces`` the suspicious-log columns are added (:mod:`aquitardmap.suspicious`):
+    ``cv_error_m``, ``cv_standardised_error``, ``suspicious``, ``suspicious_reasons``.
+    """
     c = inputs.columns.copy()
+    if surfaces is not None and "aquitard" in surfaces:
+        sus = suspicious_columns(c, surfaces["aquitard"].cv_table, inputs.project.qa,
+                                 inputs.grid)
+        for col in sus.columns:
+            c[col] = sus[col]
     th = inputs.project.screening
     c["proves_window"] = (c["status_aquitard"] == "full") & (
         c["aquitard_thickness_m"] < th.window_thickness_m)
@@ -506,8 +564,15 @@ def borehole_table(inputs: Inputs) -> gpd.GeoDataFrame:
 
 
 def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
-           boreholes: gpd.GeoDataFrame) -> tuple[np.ndarray, gpd.GeoDataFrame]:
-    """Stage 4: approximate P(thin) grid and the window / thin / fast zones."""
+           boreholes: gpd.GeoDataFrame, *,
+           probabilities: ThicknessProbabilities | None = None
+           ) -> tuple[np.ndarray, gpd.GeoDataFrame]:
+    """Stage 4: approximate P(thin) grid and the window / thin / fast zones.
+
+    With ``[screening] zone_basis = "probability"`` window and thin zones are drawn from
+    ``probabilities`` (computed here by :func:`thickness_probability_grids` when not given);
+    otherwise from the kriged thickness.
+    """
     total = surfaces["aquitard"]
     th = inputs.project.screening
     thickness = total.thickness_m
@@ -518,8 +583,17 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                              np.nan)
     p_thin = probability_below(th.thin_thickness_m, thickness, total.sd_m)
     used = boreholes[~boreholes["excluded"]]
-    zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
-                             inputs.grid, th, used)
+    p_window = None
+    if th.zone_basis == "probability":
+        if probabilities is None:
+            probabilities = thickness_probability_grids(inputs, surfaces, hyd)
+        p_window = probabilities.p_below["window"]
+        zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr,
+                                 probabilities.p_below["thin"], inputs.grid, th, used,
+                                 p_window=p_window)
+    else:
+        zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
+                                 inputs.grid, th, used)
     if hyd.gradient_source == "heads" and len(zones):
         zones["reason"] = zones["reason"].str.replace(
             "(unit-gradient assumption)", "(gradient from the head inputs)", regex=False)
@@ -530,7 +604,7 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
 
 def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
              zones: gpd.GeoDataFrame, boreholes: gpd.GeoDataFrame, started: datetime,
-             t0: float) -> dict:
+             t0: float, probabilities: ThicknessProbabilities | None = None) -> dict:
     p = inputs.project
     g = inputs.grid
     used = boreholes[~boreholes["excluded"]]
@@ -578,20 +652,52 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         "hazards": hyd.hazards,
         "piercing": _piercing_summary(inputs, hyd),
         "kriging": {"variogram_model": p.kriging.variogram_model,
-                    "n_lags": p.kriging.n_lags, "max_neighbours": p.kriging.max_neighbours},
+                    "n_lags": p.kriging.n_lags, "max_neighbours": p.kriging.max_neighbours,
+                    "nested_model": p.kriging.nested_model,
+                    "lag_width_m": p.kriging.lag_width_m,
+                    "max_lag_fraction": p.kriging.max_lag_fraction,
+                    "anisotropy": p.kriging.anisotropy,
+                    "n_directions": p.kriging.n_directions,
+                    "direction_tolerance_deg": p.kriging.direction_tolerance_deg,
+                    "manual_variograms": sorted(p.kriging.variograms)},
         "surfaces": {
-            name: {"variogram": s.variogram.as_dict(), "n_full": s.n_full,
-                   "n_lower_bounds": s.n_lower_bounds, "n_bounds_active": s.n_bounds_active,
-                   "cross_validation": s.cv}
+            name: {**surface_summary(s),
+                   "figure": outputs.variogram_figure(name)}
             for name, s in surfaces.items()
         },
+        "cross_validation_file": outputs.CV_RESIDUALS,
+        "figures": {"variograms": {name: outputs.variogram_figure(name)
+                                   for name in surfaces}},
+        "probability": _probability_summary(inputs, probabilities),
+        "suspicious_boreholes": (suspicious_list(boreholes) if "suspicious" in boreholes
+                                 else []),
         "aquitard_thickness_m": {"min": float(np.nanmin(total)), "mean": float(np.nanmean(total)),
                                  "max": float(np.nanmax(total))},
         "zones": {"area_m2_by_kind": zone_areas_m2(zones),
                   "count_by_kind": {k: int((zones["kind"] == k).sum())
-                                    for k in ("window", "thin", "fast")}},
+                                    for k in ("window", "thin", "fast")},
+                  "basis": (p.screening.zone_basis if probabilities is not None
+                            else "kriged_thickness"),
+                  "p_window_threshold": p.screening.p_window_threshold,
+                  "p_thin_threshold": p.screening.p_thin_threshold},
         "warnings": [str(w) for w in inputs.warnings],
     }
+
+
+def _probability_summary(inputs: Inputs, probabilities: ThicknessProbabilities | None
+                         ) -> dict:
+    """How ``p_thin.tif`` and ``p_window.tif`` were made (empty when they were not)."""
+    if probabilities is None:
+        return {}
+    th = inputs.project.screening
+    mask = inputs.grid.mask
+    out = probabilities.as_dict()
+    out.update({"p_window_file": outputs.P_WINDOW_PROB, "p_thin_file": outputs.P_THIN_PROB,
+                "window_thickness_m": th.window_thickness_m,
+                "thin_thickness_m": th.thin_thickness_m,
+                "mean_p_window": float(np.nanmean(probabilities.p_below["window"][mask])),
+                "mean_p_thin": float(np.nanmean(probabilities.p_below["thin"][mask]))})
+    return out
 
 
 def _stats(values: np.ndarray) -> dict[str, float | None]:
@@ -721,7 +827,8 @@ def staged_output_dir(out_dir: str | Path) -> Iterator[Path]:
 def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
                   hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
                   boreholes: gpd.GeoDataFrame, summary: dict, *,
-                  self_contained_map: bool = False) -> list[str]:
+                  self_contained_map: bool = False,
+                  probabilities: ThicknessProbabilities | None = None) -> list[str]:
     """Stage 5: write every output file into ``folder``; returns the file names.
 
     ``self_contained_map`` writes a map that needs no network (see
@@ -764,7 +871,24 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         optional[outputs.AQUITARD_THICKNESS_EFFECTIVE] = (
             hyd.protective_thickness_m, "aquitard thickness counted as protective", "m")
     grids.update({k: v for k, v in optional.items() if v[0] is not None})
+    if probabilities is not None:
+        th = p.screening
+        grids[outputs.P_THIN_PROB] = (probabilities.p_below["thin"], "probability that the "
+                                      f"protective aquitard is thinner than "
+                                      f"{th.thin_thickness_m:g} m", "1")
+        grids[outputs.P_WINDOW_PROB] = (probabilities.p_below["window"], "probability that "
+                                        "the protective aquitard is thinner than "
+                                        f"{th.window_thickness_m:g} m (absent)", "1")
     extra: list[str] = []
+    cv = pd.concat([s.cv_table for s in surfaces.values() if len(s.cv_table)],
+                   ignore_index=True) if any(len(s.cv_table) for s in surfaces.values()) \
+        else pd.DataFrame(columns=list(CV_COLUMNS))
+    cv.to_csv(folder / outputs.CV_RESIDUALS, index=False, float_format="%.10g")
+    extra.append(outputs.CV_RESIDUALS)
+    for name, s in surfaces.items():
+        variogram_figure(s, folder / outputs.variogram_figure(name),
+                         title=_surface_title(p, name))
+        extra.append(outputs.variogram_figure(name))
     for name, (arr, desc, units) in grids.items():
         write_raster(folder / name, arr, g, description=desc, units=units)
     if hyd.avi_class is not None:
@@ -807,6 +931,15 @@ def _surface_cache(project: Project, setting: str | Path | bool | None
     folder = project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
     with tilecache.tile_cache(folder) as cache:
         yield cache
+
+
+def _surface_title(project: Project, name: str) -> str:
+    if name == "aquitard":
+        return "Variogram of the total aquitard thickness"
+    try:
+        return f"Variogram of the thickness of {project.unit(name).name} ({name})"
+    except KeyError:
+        return f"Variogram of {name}"
 
 
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
@@ -858,11 +991,15 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         hyd = compute_hydraulics(inputs, surfaces)
         t = lap("hydraulics", t)
         step(3)
-        boreholes = borehole_table(inputs)
-        p_thin, zones = screen(inputs, surfaces, hyd, boreholes)
+        boreholes = borehole_table(inputs, surfaces)
+        probabilities = None
+        if inputs.project.screening.zone_basis == "probability":
+            probabilities = thickness_probability_grids(inputs, surfaces, hyd)
+            t = lap("probabilities", t)
+        p_thin, zones = screen(inputs, surfaces, hyd, boreholes, probabilities=probabilities)
         t = lap("zones", t)
         compute_info = describe(runner)
-    summary = _summary(inputs, surfaces, hyd, zones, boreholes, started, t0)
+    summary = _summary(inputs, surfaces, hyd, zones, boreholes, started, t0, probabilities)
     summary["compute"] = compute_info
     summary["run"]["stage_seconds"] = seconds
     if cache is not None:
@@ -872,8 +1009,10 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         step(4)
         with staged_output_dir(out_dir) as tmp:
             write_outputs(tmp, inputs, surfaces, hyd, p_thin, zones, boreholes, summary,
-                          self_contained_map=self_contained_map)
+                          self_contained_map=self_contained_map,
+                          probabilities=probabilities)
         written = Path(out_dir).resolve()
     if cache is not None:
         cache.prune()  # keep only the tiles of this (successful) run
-    return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary)
+    return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary,
+                     probabilities)

@@ -38,12 +38,15 @@ from pyproj.exceptions import CRSError
 
 from aquitardmap.errors import ProblemList
 from aquitardmap.materials import MaterialRule
+from aquitardmap.variogram import VariogramModel
 
 PROJECT_FILE = "project.toml"
 ROLES = ("cover", "aquitard", "aquifer")
 K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
 CRUST_TREATMENTS = ("raise_k", "not_protective")
 VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
+ANISOTROPY_CHOICES = ("none", "auto")
+ZONE_BASES = ("probability", "kriged_thickness")
 DRILLING_TARGETS = ("thin", "window", "both")
 COMPUTE_MODES = ("single", "dask")
 
@@ -98,12 +101,34 @@ class Unit:
 
 @dataclass(frozen=True)
 class KrigingSettings:
-    """Variogram and neighbourhood choices for every kriged surface."""
+    """Variogram and neighbourhood choices for every kriged surface.
+
+    Attributes:
+        variogram_model: family of the (first) structure fitted to each surface.
+        n_lags: lag classes; 0 = lag width from the median hole spacing.
+        max_lag_fraction: largest lag as a fraction of the diagonal of the holes' extent.
+        max_neighbours: nearest data used per kriged point.
+        nested_model: family of a second, longer-range structure fitted with the first
+            (``""`` = a single structure).
+        lag_width_m: lag class width (m); 0 = from ``n_lags`` or the hole spacing.
+        anisotropy: ``"none"`` (isotropic) or ``"auto"`` (geometric anisotropy fitted from
+            directional variograms).
+        n_directions: number of directional variograms (azimuths 0°, 180°/n, ...).
+        direction_tolerance_deg: angular half-width of each direction class (degrees).
+        variograms: manual variograms by surface name (``"aquitard"`` or a unit code), from
+            ``[variograms.<name>]`` tables; used as given, never re-fitted.
+    """
 
     variogram_model: str = "spherical"
     n_lags: int = 0  # 0: lag width = median nearest-neighbour spacing of the holes
     max_lag_fraction: float = 0.25
     max_neighbours: int = 64
+    nested_model: str = ""
+    lag_width_m: float = 0.0
+    anisotropy: str = "none"
+    n_directions: int = 4
+    direction_tolerance_deg: float = 22.5
+    variograms: dict[str, VariogramModel] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -147,6 +172,15 @@ class ScreeningThresholds:
         piercing_radius_m: search radius of the piercing-borehole density (m).
         piercing_flag_per_km2: piercing-borehole density at or above which a cell is
             flagged (holes per km²).
+        zone_basis: ``"probability"`` (window and thin zones where P(window) or P(thin)
+            reaches its threshold) or ``"kriged_thickness"`` (where the kriged thickness is
+            below the thickness threshold).
+        p_window_threshold: a cell is a window when P(total aquitard thinner than
+            ``window_thickness_m``) is at least this.
+        p_thin_threshold: a cell is thin when P(thinner than ``thin_thickness_m``) is at
+            least this (and it is not a window).
+        probability_draws: Monte Carlo draws of the censored data behind the probabilities.
+        probability_seed: seed of those draws (the same seed gives the same grids).
     """
 
     window_thickness_m: float = 1.0
@@ -154,6 +188,11 @@ class ScreeningThresholds:
     fast_travel_time_yr: float = 50.0
     piercing_radius_m: float = 500.0
     piercing_flag_per_km2: float = 10.0
+    zone_basis: str = "probability"
+    p_window_threshold: float = 0.6
+    p_thin_threshold: float = 0.5
+    probability_draws: int = 64
+    probability_seed: int = 0
 
 
 @dataclass(frozen=True)
@@ -164,10 +203,14 @@ class QASettings:
         dem_misfit_m: a collar whose elevation differs from the DEM by more than this is
             flagged (m).
         exclude_boreholes: borehole ids left out of every computation (still listed).
+        cv_standardised_error_max: a hole whose leave-one-out standardised error (error /
+            kriging SD) of the total aquitard thickness exceeds this in absolute value is
+            listed as suspicious.
     """
 
     dem_misfit_m: float = 3.0
     exclude_boreholes: tuple[str, ...] = ()
+    cv_standardised_error_max: float = 3.0
 
 
 @dataclass(frozen=True)
@@ -409,6 +452,94 @@ def _has_link(root: Path, name: str) -> bool:
     return False
 
 
+def _choice(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], key: str,
+            default: str, table: str, choices: tuple[str, ...]) -> str:
+    value = tbl.get(key, default)
+    if value not in choices:
+        problems.add(path, *_locate(text, key, table), f"[{table}] {key} must be one of "
+                     f"{', '.join(choices)}, got {value!r}")
+        return default
+    return value
+
+
+VARIOGRAM_KEYS = ("model", "nugget", "psill", "range_m", "anisotropy_ratio",
+                  "anisotropy_angle_deg", "model2", "psill2", "range2_m")
+
+
+def _read_variograms(problems: ProblemList, path: Path, text: str, cfg: Any,
+                     surfaces: list[str]) -> dict[str, VariogramModel]:
+    """Manual variograms from ``[variograms.<surface>]`` tables, e.g.::
+
+        [variograms.aquitard]
+        model = "spherical"       # spherical, exponential or gaussian
+        nugget = 1.0              # m²
+        psill = 60.0              # m²
+        range_m = 1200.0
+        anisotropy_ratio = 1.5    # optional: major / minor range (>= 1)
+        anisotropy_angle_deg = 20 # optional: major axis, degrees counter-clockwise from east
+        model2 = "exponential"    # optional second structure
+        psill2 = 15.0
+        range2_m = 5000.0
+    """
+    out: dict[str, VariogramModel] = {}
+    if not isinstance(cfg, dict):
+        problems.add(path, *_locate(text, "variograms"), "variograms must hold one table per "
+                     "surface, e.g. [variograms.aquitard]")
+        return out
+    for name, tbl in cfg.items():
+        table = f"variograms.{name}"
+        where = _locate(text, "", table)
+        if name not in surfaces:
+            problems.add(path, *where, f"[{table}]: {name!r} is not a kriged surface; "
+                         f"expected one of {', '.join(surfaces)}")
+            continue
+        if not isinstance(tbl, dict):
+            problems.add(path, *where, f"[{table}] must be a table")
+            continue
+        for key in tbl:
+            if key not in VARIOGRAM_KEYS:
+                problems.add(path, *_locate(text, key, table), f"[{table}] unknown key "
+                             f"{key!r}; expected {', '.join(VARIOGRAM_KEYS)}")
+        before = len(problems.problems)
+        model = tbl.get("model")
+        if model not in VARIOGRAM_MODELS:
+            problems.add(path, *(_locate(text, "model", table) if "model" in tbl else where),
+                         f"[{table}] model must be one of {', '.join(VARIOGRAM_MODELS)}, got "
+                         f"{model!r}")
+        for key in ("psill", "range_m"):
+            if key not in tbl:
+                problems.add(path, *where, f"[{table}] {key} is required")
+        model2 = tbl.get("model2", "")
+        if model2 not in ("", *VARIOGRAM_MODELS):
+            problems.add(path, *_locate(text, "model2", table), f"[{table}] model2 must be "
+                         f"one of {', '.join(VARIOGRAM_MODELS)}, got {model2!r}")
+        if model2 and not {"psill2", "range2_m"} <= set(tbl):
+            problems.add(path, *_locate(text, "model2", table),
+                         f"[{table}] model2 needs psill2 and range2_m")
+        vals = {
+            "nugget": _number(problems, path, text, tbl, "nugget", 0.0, table, low=0),
+            "psill": _number(problems, path, text, tbl, "psill", 1.0, table, low=0,
+                             low_open=True),
+            "range_m": _number(problems, path, text, tbl, "range_m", 1.0, table, low=0,
+                               low_open=True),
+            "anisotropy_ratio": _number(problems, path, text, tbl, "anisotropy_ratio", 1.0,
+                                        table, low=1.0, high=100.0),
+            "anisotropy_angle_deg": _number(problems, path, text, tbl, "anisotropy_angle_deg",
+                                            0.0, table, low=-360.0, high=360.0),
+            "psill2": _number(problems, path, text, tbl, "psill2", 0.0, table, low=0),
+            "range2_m": _number(problems, path, text, tbl, "range2_m", 0.0, table, low=0),
+        }
+        if model2 and "range2_m" in tbl and vals["range2_m"] <= 0:
+            problems.add(path, *_locate(text, "range2_m", table),
+                         f"[{table}] range2_m must be > 0")
+        if len(problems.problems) == before:
+            out[name] = VariogramModel(model, vals["nugget"], vals["psill"], vals["range_m"],
+                                       vals["anisotropy_ratio"], vals["anisotropy_angle_deg"],
+                                       model2, vals["psill2"] if model2 else 0.0,
+                                       vals["range2_m"] if model2 else 0.0)
+    return out
+
+
 def _read_materials(problems: ProblemList, path: Path, text: str, cfg: Any,
                     codes: set[str]) -> tuple[MaterialRule, ...]:
     """The ordered ``[[materials]]`` rules (see :mod:`aquitardmap.materials`)."""
@@ -552,7 +683,7 @@ def read_project(folder: str | Path) -> Project:
         problems.raise_if_any()
 
     known = {"project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files",
-             "materials", "drilling", "compute"}
+             "materials", "drilling", "compute", "variograms"}
     for key in cfg:
         if key not in known:
             line, col = _locate(text, "", key)
@@ -661,6 +792,23 @@ def read_project(folder: str | Path) -> Project:
         problems.add(path, *_locate(text, "variogram_model", "kriging"),
                      f"[kriging] variogram_model must be one of {', '.join(VARIOGRAM_MODELS)}")
         model = "spherical"
+    nested = kr.get("nested_model", "")
+    if nested not in ("", *VARIOGRAM_MODELS):
+        problems.add(path, *_locate(text, "nested_model", "kriging"),
+                     "[kriging] nested_model must be \"\" (none) or one of "
+                     f"{', '.join(VARIOGRAM_MODELS)}, got {nested!r}")
+        nested = ""
+    aniso = kr.get("anisotropy", "none")
+    if aniso not in ANISOTROPY_CHOICES:
+        problems.add(path, *_locate(text, "anisotropy", "kriging"),
+                     f"[kriging] anisotropy must be one of {', '.join(ANISOTROPY_CHOICES)}, "
+                     f"got {aniso!r}")
+        aniso = "none"
+    column_codes = []
+    for u in units:
+        if u.role == "aquifer":
+            break
+        column_codes.append(u.code)
     kriging = KrigingSettings(
         variogram_model=model,
         n_lags=int(_number(problems, path, text, kr, "n_lags", 0, "kriging", low=0, high=100,
@@ -669,6 +817,15 @@ def read_project(folder: str | Path) -> Project:
                                  low=0.05, high=1.0),
         max_neighbours=int(_number(problems, path, text, kr, "max_neighbours", 64, "kriging",
                                    low=4, high=5000, integer=True)),
+        nested_model=nested,
+        lag_width_m=_number(problems, path, text, kr, "lag_width_m", 0.0, "kriging", low=0),
+        anisotropy=aniso,
+        n_directions=int(_number(problems, path, text, kr, "n_directions", 4, "kriging",
+                                 low=2, high=36, integer=True)),
+        direction_tolerance_deg=_number(problems, path, text, kr, "direction_tolerance_deg",
+                                        22.5, "kriging", low=1.0, high=90.0),
+        variograms=_read_variograms(problems, path, text, cfg.get("variograms", {}),
+                                    ["aquitard", *column_codes]),
     )
     hy = _section(problems, path, text, cfg, "hydraulics", tables)
     hydraulics = HydraulicSettings(
@@ -705,6 +862,16 @@ def read_project(folder: str | Path) -> Project:
                                   "screening", low=0, low_open=True),
         piercing_flag_per_km2=_number(problems, path, text, sc, "piercing_flag_per_km2", 10.0,
                                       "screening", low=0, low_open=True),
+        zone_basis=_choice(problems, path, text, sc, "zone_basis", "probability", "screening",
+                           ZONE_BASES),
+        p_window_threshold=_number(problems, path, text, sc, "p_window_threshold", 0.6,
+                                   "screening", low=0, low_open=True, high=1.0),
+        p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold", 0.5,
+                                 "screening", low=0, low_open=True, high=1.0),
+        probability_draws=int(_number(problems, path, text, sc, "probability_draws", 64,
+                                      "screening", low=8, high=5000, integer=True)),
+        probability_seed=int(_number(problems, path, text, sc, "probability_seed", 0,
+                                     "screening", low=0, integer=True)),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),
@@ -719,6 +886,8 @@ def read_project(folder: str | Path) -> Project:
         dem_misfit_m=_number(problems, path, text, q, "dem_misfit_m", 3.0, "qa", low=0,
                              low_open=True),
         exclude_boreholes=tuple(str(e) for e in excl),
+        cv_standardised_error_max=_number(problems, path, text, q, "cv_standardised_error_max",
+                                          3.0, "qa", low=0, low_open=True),
     )
 
     drilling = _read_drilling(problems, path, text, root, cfg.get("drilling", {}))

@@ -5,10 +5,20 @@ Zones are drawn from the grids cell by cell and vectorised to polygons (rasterio
 and a plain-language reason. Window and thin zones do not overlap (a window is not also
 listed as thin); fast-path zones are drawn independently and may overlap both.
 
-The probability attached to a zone here, ``mean_p_thin``, is the kriging-based
-approximation ``P(T < t) = Φ((t − T*)/σ)`` (a Gaussian error of the kriged thickness ``T*``
-with kriging standard deviation σ; Isaaks & Srivastava 1989, ch. 20). It is an indicator of
-confidence, not a calibrated probability.
+Two ways to draw window and thin zones (``[screening] zone_basis``):
+
+- ``"probability"`` (default): a cell is a window where P(total aquitard thinner than the
+  window threshold) is at least ``p_window_threshold``, thin where P(thinner than the thin
+  threshold) is at least ``p_thin_threshold`` — probabilities from
+  :mod:`aquitardmap.probability`, which honours holes that prove a window and holes that
+  stopped in the clay. Each zone carries the probability it was drawn from
+  (``probability``: its mean over the zone; ``p_threshold``: the threshold).
+- ``"kriged_thickness"``: where the kriged thickness is below the thickness threshold (the
+  plain-kriging baseline).
+
+:func:`probability_below` is the Gaussian approximation ``P(T < t) = Φ((t − T*)/σ)`` from the
+kriged thickness ``T*`` and its kriging SD σ (Isaaks & Srivastava 1989, ch. 20), kept for
+``p_thin_approx.tif``; it ignores the censored data and the bound at zero.
 """
 
 from __future__ import annotations
@@ -42,21 +52,48 @@ def probability_below(threshold_m: float, estimate_m: np.ndarray, sd_m: np.ndarr
 
 
 def zone_masks(total_thickness_m: np.ndarray, travel_time_yr: np.ndarray, grid: Grid,
-               thresholds: ScreeningThresholds) -> dict[str, np.ndarray]:
-    """Boolean grids of each zone kind inside the study area."""
+               thresholds: ScreeningThresholds, *, p_window: np.ndarray | None = None,
+               p_thin: np.ndarray | None = None) -> dict[str, np.ndarray]:
+    """Boolean grids of each zone kind inside the study area.
+
+    With both probability grids and ``thresholds.zone_basis == "probability"`` window and
+    thin cells come from the probabilities, else from the kriged thickness.
+    """
     t = np.where(grid.mask, total_thickness_m, np.nan)
     tt = np.where(grid.mask, travel_time_yr, np.nan)
     with np.errstate(invalid="ignore"):
-        window = t < thresholds.window_thickness_m
-        thin = (t >= thresholds.window_thickness_m) & (t < thresholds.thin_thickness_m)
+        if uses_probability(thresholds, p_window, p_thin):
+            window = np.nan_to_num(p_window) >= thresholds.p_window_threshold
+            thin = (np.nan_to_num(p_thin) >= thresholds.p_thin_threshold) & ~window
+        else:
+            window = t < thresholds.window_thickness_m
+            thin = (t >= thresholds.window_thickness_m) & (t < thresholds.thin_thickness_m)
         fast = tt < thresholds.fast_travel_time_yr
     return {"window": window & grid.mask, "thin": thin & grid.mask, "fast": fast & grid.mask}
 
 
+def uses_probability(thresholds: ScreeningThresholds, p_window: np.ndarray | None,
+                     p_thin: np.ndarray | None) -> bool:
+    """True when window and thin zones are drawn from probability grids."""
+    return (thresholds.zone_basis == "probability" and p_window is not None
+            and p_thin is not None)
+
+
 def _reason(kind: str, th: ScreeningThresholds, mean_t: float, min_t: float, sd: float,
-            p: float, mean_tt: float, n_holes: int) -> str:
+            p: float, mean_tt: float, n_holes: int, prob: float | None = None) -> str:
     holes = (f"{n_holes} borehole{'s' if n_holes != 1 else ''} inside" if n_holes
              else "no borehole inside: the zone is inferred from holes around it")
+    if prob is not None and kind in ("window", "thin"):
+        if kind == "window":
+            head = (f"Clay likely absent: chance that the total aquitard is thinner than "
+                    f"{th.window_thickness_m:g} m is at least {th.p_window_threshold:.0%} in "
+                    f"every cell ({prob:.0%} on average)")
+        else:
+            head = (f"Thin clay: chance that the total aquitard is thinner than "
+                    f"{th.thin_thickness_m:g} m is at least {th.p_thin_threshold:.0%} in "
+                    f"every cell ({prob:.0%} on average)")
+        return (f"{head}; kriged thickness mean {mean_t:.1f} m (min {min_t:.1f} m), kriging "
+                f"SD about {sd:.1f} m; mean travel time {mean_tt:.3g} years; {holes}.")
     if kind == "window":
         head = (f"Clay likely absent: kriged total aquitard thickness below "
                 f"{th.window_thickness_m:g} m")
@@ -74,15 +111,26 @@ def _reason(kind: str, th: ScreeningThresholds, mean_t: float, min_t: float, sd:
 def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
                      travel_time_yr: np.ndarray, p_thin: np.ndarray, grid: Grid,
                      thresholds: ScreeningThresholds,
-                     boreholes: gpd.GeoDataFrame | None = None) -> gpd.GeoDataFrame:
+                     boreholes: gpd.GeoDataFrame | None = None, *,
+                     p_window: np.ndarray | None = None) -> gpd.GeoDataFrame:
     """Vectorise window, thin and fast zones into polygons with their statistics.
 
+    ``p_thin`` is P(thinner than the thin threshold); with ``p_window`` too and
+    ``thresholds.zone_basis == "probability"`` the window and thin zones are drawn from them
+    (module docstring).
+
     Columns: ``kind``, ``area_m2``, ``reason``, ``mean_thickness_m``, ``min_thickness_m``,
-    ``mean_sd_m``, ``mean_p_thin``, ``mean_travel_time_yr``, ``n_boreholes``, ``n_cells``.
+    ``mean_sd_m``, ``mean_p_thin``, ``mean_p_window`` (NaN without ``p_window``),
+    ``probability`` (mean of the probability the zone was drawn from; NaN for fast zones
+    and thickness-based zones), ``p_threshold`` (its threshold, NaN likewise),
+    ``mean_travel_time_yr``, ``n_boreholes``, ``n_cells``.
     """
     rows = []
     structure = ndimage.generate_binary_structure(2, 1)  # 4-connected, as shapes() below
-    for kind, m in zone_masks(total_thickness_m, travel_time_yr, grid, thresholds).items():
+    by_probability = uses_probability(thresholds, p_window, p_thin)
+    pw = p_window if p_window is not None else np.full(grid.mask.shape, np.nan)
+    for kind, m in zone_masks(total_thickness_m, travel_time_yr, grid, thresholds,
+                              p_window=p_window, p_thin=p_thin).items():
         labels, n = ndimage.label(m, structure=structure)
         if n == 0:
             continue
@@ -92,6 +140,7 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
             "min_thickness_m": ndimage.minimum(total_thickness_m, labels, idx),
             "mean_sd_m": ndimage.mean(sd_m, labels, idx),
             "mean_p_thin": ndimage.mean(p_thin, labels, idx),
+            "mean_p_window": ndimage.mean(pw, labels, idx),
             "mean_travel_time_yr": ndimage.mean(travel_time_yr, labels, idx),
             "n_cells": ndimage.sum(np.ones_like(labels), labels, idx),
         }
@@ -99,10 +148,17 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
         for geom, value in shapes(labels.astype(np.int32), mask=labels > 0,
                                   transform=grid.transform, connectivity=4):
             geoms.setdefault(int(value), []).append(shape(geom))
+        own = {"window": ("mean_p_window", thresholds.p_window_threshold),
+               "thin": ("mean_p_thin", thresholds.p_thin_threshold)}.get(kind)
         for i in idx:
             poly = unary_union(geoms[int(i)])
-            rows.append({"kind": kind, "geometry": poly,
-                         **{k: float(v[i - 1]) for k, v in stats.items()}})
+            row = {"kind": kind, "geometry": poly,
+                   **{k: float(v[i - 1]) for k, v in stats.items()}}
+            if by_probability and own is not None:
+                row["probability"], row["p_threshold"] = row[own[0]], own[1]
+            else:
+                row["probability"], row["p_threshold"] = np.nan, np.nan
+            rows.append(row)
     zones = gpd.GeoDataFrame(rows, geometry="geometry", crs=grid.crs) if rows else \
         gpd.GeoDataFrame({"kind": [], "geometry": []}, geometry="geometry", crs=grid.crs)
     zones["area_m2"] = zones["n_cells"] * grid.cell_area_m2 if len(zones) else []
@@ -115,11 +171,13 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
         zones["n_boreholes"] = 0
     zones["reason"] = [
         _reason(r.kind, thresholds, r.mean_thickness_m, r.min_thickness_m, r.mean_sd_m,
-                r.mean_p_thin, r.mean_travel_time_yr, r.n_boreholes)
+                r.mean_p_thin, r.mean_travel_time_yr, r.n_boreholes,
+                r.probability if np.isfinite(r.probability) else None)
         for r in zones.itertuples()
     ] if len(zones) else []
     cols = ["kind", "area_m2", "reason", "mean_thickness_m", "min_thickness_m", "mean_sd_m",
-            "mean_p_thin", "mean_travel_time_yr", "n_boreholes", "n_cells", "geometry"]
+            "mean_p_thin", "mean_p_window", "probability", "p_threshold",
+            "mean_travel_time_yr", "n_boreholes", "n_cells", "geometry"]
     for c in cols:
         if c not in zones:
             zones[c] = []

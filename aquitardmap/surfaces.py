@@ -15,30 +15,50 @@ full-penetration holes alone; every lower bound that the estimate violates at it
 added as an equality datum at the bound, and the kriging is repeated until no bound is
 violated. Bounds the estimate already honours add nothing, so a hole that stopped early
 can raise a surface but can never pull it down into a false thin zone.
+
+The variogram of each surface is, in order of precedence: the one given for that surface in
+``[variograms.<name>]`` of ``project.toml``; one fitted to the experimental variogram of its
+full-penetration holes (nested when ``[kriging] nested_model`` is set, with geometric
+anisotropy from directional variograms when ``[kriging] anisotropy = "auto"``); or, with too
+few holes to fit one, a documented default. Every fallback is written to the surface's
+``notes`` (and from there to the run's warnings) — a surface is never silently constant.
+Each surface is cross-validated (leave one full hole out) and the residuals kept per hole.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
 
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import krige_grid, krige_points, merge_coincident
+from aquitardmap.kriging import krige_grid, krige_points, loo_cross_validation
 from aquitardmap.project import KrigingSettings
 from aquitardmap.variogram import (
+    DirectionalFit,
     ExperimentalVariogram,
     VariogramModel,
     default_lags,
     experimental_variogram,
+    fit_anisotropy,
     fit_variogram,
+    with_anisotropy,
 )
 
-#: Full-penetration holes needed to fit a variogram; with fewer the surface is the mean.
+#: Full-penetration holes needed to fit a variogram; with fewer a default model is used.
 MIN_HOLES_FOR_VARIOGRAM = 8
+#: Full holes needed before directional variograms are computed.
+MIN_HOLES_FOR_DIRECTIONS = 30
 #: Rounds of the active-set loop for lower bounds.
 MAX_BOUND_ROUNDS = 25
+#: Data closer than this are one location (m).
+COINCIDENT_M = 0.01
+#: Columns of the per-hole cross-validation table.
+CV_COLUMNS = ("surface", "borehole_id", "x", "y", "value_m", "estimate_m", "error_m",
+              "kriging_sd_m", "standardised_error")
+
+_EMPTY_EXP = ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
 
 
 @dataclass(frozen=True)
@@ -49,8 +69,8 @@ class Surface:
         name: what was kriged (e.g. ``"aquitard"`` or a unit code).
         thickness_m: estimate on the grid, clipped at 0, NaN outside the mask (m).
         sd_m: kriging standard deviation (m), NaN outside the mask.
-        variogram: the fitted model.
-        experimental: the experimental variogram it was fitted to.
+        variogram: the model used.
+        experimental: the experimental variogram it was fitted to (empty if not fitted).
         n_full: holes that gave the full thickness.
         n_lower_bounds: holes that gave a lower bound.
         n_bounds_active: lower bounds the unconstrained estimate violated, added as data.
@@ -58,6 +78,13 @@ class Surface:
             :func:`cross_validate`).
         data_x_m, data_y_m: locations of the data the final kriging used (full holes and
             active lower bounds, coincident ones merged), m; empty when not recorded.
+        variogram_source: ``"fitted"``, ``"manual"`` (from ``project.toml``), ``"default"``
+            (too few holes to fit), ``"constant"`` (all holes equal) or ``"given"`` (passed
+            in by the caller).
+        directional: directional variograms and the anisotropy they suggest (None with
+            fewer than :data:`MIN_HOLES_FOR_DIRECTIONS` full holes).
+        cv_table: per-hole leave-one-out residuals (:data:`CV_COLUMNS`).
+        notes: plain-language notes on fallbacks and merged data.
     """
 
     name: str
@@ -71,101 +98,263 @@ class Surface:
     cv: dict[str, float]
     data_x_m: np.ndarray = field(default_factory=lambda: np.empty(0))
     data_y_m: np.ndarray = field(default_factory=lambda: np.empty(0))
+    variogram_source: str = "fitted"
+    directional: DirectionalFit | None = None
+    cv_table: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(
+        columns=list(CV_COLUMNS)))
+    notes: tuple[str, ...] = ()
 
 
-def cross_validate(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
-                   model: VariogramModel, max_neighbours: int) -> dict[str, float]:
-    """Leave-one-out cross-validation: mean error, RMSE, and mean and variance of the
-    standardised errors (which should be near 0 and 1; Isaaks & Srivastava 1989, ch. 15)."""
-    n = len(values)
+def group_coincident(x_m: np.ndarray, y_m: np.ndarray, tolerance_m: float = COINCIDENT_M
+                     ) -> tuple[np.ndarray, np.ndarray]:
+    """Group points that share a location (within ``tolerance_m``).
+
+    Returns (first, inverse): ``first[g]`` is the index of the first point of group g (in
+    input order) and ``inverse[i]`` the group of point i; groups are in order of first
+    appearance.
+    """
+    x, y = np.asarray(x_m, float), np.asarray(y_m, float)
+    if x.size == 0:
+        return np.empty(0, dtype=int), np.empty(0, dtype=int)
+    keys = np.column_stack([np.round(x / tolerance_m), np.round(y / tolerance_m)])
+    _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
+    inverse = inverse.ravel()
+    order = np.argsort(first)
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    return first[order], rank[inverse]
+
+
+def _merge(x: np.ndarray, y: np.ndarray, v: np.ndarray, ids: np.ndarray
+           ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, float]:
+    """Average values at shared locations; ids of a group joined by '+'. Returns the merged
+    (x, y, v, ids) and the largest spread of values within a group (m)."""
+    first, inv = group_coincident(x, y)
+    n = np.bincount(inv, minlength=first.size).astype(float)
+    mv = np.bincount(inv, v, minlength=first.size) / n
+    spread = 0.0
+    mids = ids[first].astype(object)
+    for g in np.flatnonzero(n > 1):
+        members = inv == g
+        spread = max(spread, float(np.ptp(v[members])))
+        mids[g] = "+".join(str(i) for i in ids[members])
+    return x[first], y[first], mv, mids, spread
+
+
+def cross_validation_table(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
+                           model: VariogramModel, max_neighbours: int, *,
+                           ids: np.ndarray | None = None, surface: str = "") -> pd.DataFrame:
+    """Leave-one-out cross-validation: each datum kriged from the others (same model and
+    neighbourhood size), one row per datum with its error (estimate − value), kriging SD and
+    standardised error (error / SD) (Isaaks & Srivastava 1989, ch. 15)."""
+    x, y, v = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
+    n = v.size
+    ids = np.asarray(ids if ids is not None else np.arange(n).astype(str), dtype=object)
+    if n < 3:
+        return pd.DataFrame(columns=list(CV_COLUMNS))
+    loo = loo_cross_validation(x, y, v, model, max_neighbours)
+    est = loo.estimate
+    sd = np.sqrt(loo.variance)
+    err = est - v
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = np.where(sd > 0, err / sd, np.nan)
+    return pd.DataFrame({"surface": surface, "borehole_id": ids, "x": x, "y": y,
+                         "value_m": v, "estimate_m": est, "error_m": err, "kriging_sd_m": sd,
+                         "standardised_error": z})
+
+
+def cv_statistics(table: pd.DataFrame) -> dict[str, float]:
+    """Mean error, RMSE, and mean and variance of the standardised errors (which should be
+    near 0 and 1; Isaaks & Srivastava 1989, ch. 15) of a cross-validation table."""
+    n = len(table)
     if n < 3:
         return {"n": float(n), "mean_error": np.nan, "rmse": np.nan,
                 "mean_standardised_error": np.nan, "variance_standardised_error": np.nan}
-    err = np.empty(n)
-    sd = np.empty(n)
-    idx = np.arange(n)
-    for i in range(n):
-        keep = idx != i
-        r = krige_points(x_m[keep], y_m[keep], values[keep], model, x_m[i:i + 1],
-                         y_m[i:i + 1], max_neighbours=max_neighbours)
-        err[i] = r.estimate[0] - values[i]
-        sd[i] = np.sqrt(r.variance[0])
-    z = err / np.where(sd > 0, sd, np.nan)
+    err = table["error_m"].to_numpy(float)
+    z = table["standardised_error"].to_numpy(float)
     return {"n": float(n), "mean_error": float(err.mean()),
             "rmse": float(np.sqrt(np.mean(err**2))),
             "mean_standardised_error": float(np.nanmean(z)),
             "variance_standardised_error": float(np.nanvar(z))}
 
 
+def cross_validate(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
+                   model: VariogramModel, max_neighbours: int) -> dict[str, float]:
+    """Leave-one-out cross-validation statistics (see :func:`cross_validation_table` and
+    :func:`cv_statistics`)."""
+    return cv_statistics(cross_validation_table(x_m, y_m, values, model, max_neighbours))
+
+
+def lag_classes(x_m: np.ndarray, y_m: np.ndarray, settings: KrigingSettings
+                ) -> tuple[int, float]:
+    """Number of lag classes and largest lag (m) for a surface: ``[kriging] lag_width_m``
+    or ``n_lags`` when set, else the width from the hole spacing (:func:`default_lags`)."""
+    n_lags, max_lag = default_lags(x_m, y_m, max_lag_fraction=settings.max_lag_fraction)
+    if settings.lag_width_m > 0:
+        n_lags = int(np.clip(np.ceil(max_lag / settings.lag_width_m), 1, 100))
+    elif settings.n_lags:
+        n_lags = settings.n_lags
+    return n_lags, max_lag
+
+
+def choose_variogram(name: str, x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
+                     settings: KrigingSettings, grid: Grid
+                     ) -> tuple[VariogramModel, ExperimentalVariogram, DirectionalFit | None,
+                                str, list[str]]:
+    """The variogram of surface ``name`` from its full-hole values (module docstring).
+
+    Returns (model, experimental variogram, directional fit or None, source, notes).
+    """
+    x, y, v = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
+    notes: list[str] = []
+    variance = float(np.var(v)) if v.size else 0.0
+    exp, directional = _EMPTY_EXP, None
+    n_lags, max_lag = lag_classes(x, y, settings)
+    if v.size >= MIN_HOLES_FOR_VARIOGRAM:
+        exp = experimental_variogram(x, y, v, n_lags=n_lags, max_lag_m=max_lag)
+    manual = settings.variograms.get(name)
+    if manual is not None:
+        return manual, exp, None, "manual", notes
+    if v.size and np.ptp(v) == 0:
+        notes.append(f"{name}: all {v.size} holes that give its full thickness give "
+                     f"{v[0]:g} m; the surface is {v[0]:g} m everywhere and its kriging SD "
+                     "is 0 (no variation to model). Give a variogram in "
+                     f"[variograms.{name}] to map its uncertainty.")
+        # Any model gives the constant back (weights sum to 1); the SD is set to 0 below.
+        return (VariogramModel(settings.variogram_model, nugget=0.0, psill=1.0,
+                               range_m=max(float(np.ptp(x) + np.ptp(y)), grid.cell_size_m)),
+                exp, None, "constant", notes)
+    if v.size < 3:
+        notes.append(f"{name}: only {v.size} hole(s) give its full thickness; no variogram "
+                     f"can be fitted and the surface is their mean, {np.mean(v):.2f} m, "
+                     f"everywhere. Give a variogram in [variograms.{name}] or add holes.")
+        return (VariogramModel(settings.variogram_model, nugget=max(variance, 1e-6),
+                               psill=1e-9, range_m=grid.cell_size_m), exp, None, "default",
+                notes)
+    if v.size < MIN_HOLES_FOR_VARIOGRAM:
+        span = float(np.max(np.hypot(x[:, None] - x[None, :], y[:, None] - y[None, :])))
+        model = VariogramModel(settings.variogram_model, nugget=0.0, psill=variance,
+                               range_m=max(0.5 * span, grid.cell_size_m))
+        notes.append(f"{name}: only {v.size} holes give its full thickness (a variogram "
+                     f"needs {MIN_HOLES_FOR_VARIOGRAM}); a default {model.model} variogram "
+                     f"was used: no nugget, sill = their variance ({variance:.3g} m²), range "
+                     f"= half the largest distance between them ({model.range_m:.0f} m). "
+                     f"Give one in [variograms.{name}] to choose it.")
+        return model, exp, None, "default", notes
+    model = fit_variogram(exp, settings.variogram_model, sample_variance=variance,
+                          model2=settings.nested_model)
+    if v.size >= MIN_HOLES_FOR_DIRECTIONS:
+        directional = fit_anisotropy(x, y, v, model, n_lags=n_lags, max_lag_m=max_lag,
+                                     n_directions=settings.n_directions,
+                                     tolerance_deg=settings.direction_tolerance_deg)
+        if settings.anisotropy == "auto":
+            model = with_anisotropy(model, directional.ratio, directional.angle_deg,
+                                    directional.major_range_m)
+    return model, exp, directional, "fitted", notes
+
+
 def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                     status: np.ndarray, grid: Grid, settings: KrigingSettings, *,
-                    with_cv: bool = True, model: VariogramModel | None = None) -> Surface:
+                    with_cv: bool = True, model: VariogramModel | None = None,
+                    ids: np.ndarray | None = None) -> Surface:
     """Krige one thickness from borehole values whose ``status`` is ``"full"`` or
     ``"lower_bound"`` (others are ignored), honouring lower bounds as described in the
     module docstring.
 
     Args:
-        name: label of the surface.
+        name: label of the surface (``"aquitard"`` or a unit code; also the key of its
+            manual variogram in ``settings.variograms``).
         x_m, y_m: borehole coordinates (m).
         thickness_m: thickness (full) or minimum thickness (lower bound) at each hole (m).
         status: ``"full"``, ``"lower_bound"`` or ``"unknown"`` per hole.
         grid: the target grid.
-        settings: variogram model and neighbourhood.
-        model: a variogram to use as given instead of fitting one.
+        settings: variogram choices and neighbourhood.
+        model: a variogram to use as given instead of choosing one.
+        ids: borehole ids (for the cross-validation table); positions when omitted.
 
     Raises:
-        ValueError: when no hole gives a full thickness.
+        ValueError: when no hole gives the full thickness.
     """
     x, y, t = (np.asarray(a, dtype=float) for a in (x_m, y_m, thickness_m))
     status = np.asarray(status)
+    ids = np.asarray(ids if ids is not None else np.arange(x.size).astype(str), dtype=object)
     full = status == "full"
     lower = status == "lower_bound"
     if not full.any():
         raise ValueError(f"no borehole gives the full thickness of {name}")
-    fx, fy, ft = merge_coincident(x[full], y[full], t[full])
+    fx, fy, ft, fids, spread = _merge(x[full], y[full], t[full], ids[full])
+    notes: list[str] = []
+    if fx.size < int(full.sum()):
+        notes.append(f"{name}: {int(full.sum()) - fx.size} hole(s) share a location with "
+                     f"another; their thicknesses were averaged (largest disagreement "
+                     f"{spread:.2f} m)")
     bx, by, bt = x[lower], y[lower], t[lower]
 
-    variance = float(np.var(ft))
     if model is not None:
-        exp = ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
-    elif fx.size >= MIN_HOLES_FOR_VARIOGRAM:
-        n_lags, max_lag = default_lags(fx, fy, max_lag_fraction=settings.max_lag_fraction)
-        exp = experimental_variogram(fx, fy, ft, n_lags=settings.n_lags or n_lags,
-                                     max_lag_m=max_lag)
-        model = fit_variogram(exp, settings.variogram_model, sample_variance=variance)
+        exp, directional, source = _EMPTY_EXP, None, "given"
     else:
-        exp = ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
-        model = VariogramModel(settings.variogram_model, nugget=max(variance, 1e-6),
-                               psill=1e-9, range_m=grid.cell_size_m)
+        model, exp, directional, source, more = choose_variogram(name, fx, fy, ft, settings,
+                                                                 grid)
+        notes.extend(more)
+
+    def krige_data(active: np.ndarray):
+        dx = np.concatenate([fx, bx[active]])
+        dy = np.concatenate([fy, by[active]])
+        dt = np.concatenate([ft, bt[active]])
+        first, inv = group_coincident(dx, dy)
+        n = np.bincount(inv).astype(float)
+        return dx[first], dy[first], np.bincount(inv, dt) / n
 
     # Active set of lower bounds that must be added as equality data.
     active = np.zeros(bx.size, dtype=bool)
     for _ in range(MAX_BOUND_ROUNDS):
         if bx.size == 0:
             break
-        dx = np.concatenate([fx, bx[active]])
-        dy = np.concatenate([fy, by[active]])
-        dt = np.concatenate([ft, bt[active]])
-        dx, dy, dt = merge_coincident(dx, dy, dt)
+        dx, dy, dt = krige_data(active)
         est = krige_points(dx, dy, dt, model, bx, by,
                            max_neighbours=settings.max_neighbours).estimate
         violated = (~active) & (est < bt - 1e-6)
         if not violated.any():
             break
         active |= violated
-    dx = np.concatenate([fx, bx[active]])
-    dy = np.concatenate([fy, by[active]])
-    dt = np.concatenate([ft, bt[active]])
-    dx, dy, dt = merge_coincident(dx, dy, dt)
+    dx, dy, dt = krige_data(active)
     res = krige_grid(dx, dy, dt, model, grid, max_neighbours=settings.max_neighbours)
-    cv = (cross_validate(fx, fy, ft, model, settings.max_neighbours) if with_cv
-          else {"n": float(fx.size)})
+    if with_cv:
+        table = cross_validation_table(fx, fy, ft, model, settings.max_neighbours, ids=fids,
+                                       surface=name)
+        cv = cv_statistics(table)
+    else:
+        table = pd.DataFrame(columns=list(CV_COLUMNS))
+        cv = {"n": float(fx.size)}
+    sd = np.sqrt(res.variance)
+    if source == "constant" and not active.any():
+        sd = np.where(grid.mask, 0.0, np.nan)
     return Surface(
         name=name, thickness_m=np.where(grid.mask, np.maximum(res.estimate, 0.0), np.nan),
-        sd_m=np.sqrt(res.variance), variogram=model, experimental=exp,
+        sd_m=sd, variogram=model, experimental=exp,
         n_full=int(full.sum()), n_lower_bounds=int(lower.sum()),
         n_bounds_active=int(active.sum()), cv=cv, data_x_m=dx, data_y_m=dy,
+        variogram_source=source, directional=directional, cv_table=table,
+        notes=tuple(notes),
     )
+
+
+def surface_summary(surface: Surface) -> dict[str, object]:
+    """What ``summary.json`` records of a surface: variogram and its source, the
+    experimental variogram, directional fit, data counts, cross-validation, notes."""
+    e = surface.experimental
+    return {
+        "variogram": surface.variogram.as_dict(),
+        "variogram_source": surface.variogram_source,
+        "experimental_variogram": {"lag_m": [float(v) for v in e.lag_m],
+                                   "semivariance": [float(v) for v in e.gamma],
+                                   "n_pairs": [int(v) for v in e.n_pairs]},
+        "directional": surface.directional.as_dict() if surface.directional else None,
+        "n_full": surface.n_full, "n_lower_bounds": surface.n_lower_bounds,
+        "n_bounds_active": surface.n_bounds_active,
+        "cross_validation": surface.cv,
+        "notes": list(surface.notes),
+    }
 
 
 def scale_units_to_total(unit_thickness_m: dict[str, np.ndarray], total_m: np.ndarray
@@ -188,22 +377,25 @@ def krige_column(columns: pd.DataFrame, unit_codes: list[str], aquitard_codes: l
     """Krige the total aquitard and every column unit from a borehole column table.
 
     ``columns`` is :func:`aquitardmap.logs.column_table` output (excluded holes already
-    removed). Returns surfaces keyed ``"aquitard"`` and each unit code; the aquitard unit
-    surfaces are scaled to add up to the total.
+    removed; its index holds the borehole ids). Returns surfaces keyed ``"aquitard"`` and
+    each unit code, each cross-validated; the aquitard unit surfaces are scaled to add up to
+    the total.
+
+    Raises:
+        ValueError: when no hole gives the full thickness of the total or of a unit.
     """
     x = columns["x"].to_numpy(float)
     y = columns["y"].to_numpy(float)
+    ids = columns.index.to_numpy().astype(str)
     out = {"aquitard": krige_thickness(
         "aquitard", x, y, columns["aquitard_thickness_m"].to_numpy(float),
-        columns["status_aquitard"].to_numpy(), grid, settings)}
+        columns["status_aquitard"].to_numpy(), grid, settings, ids=ids)}
     for code in unit_codes:
         out[code] = krige_thickness(
             code, x, y, columns[f"thickness_{code}_m"].to_numpy(float),
-            columns[f"status_{code}"].to_numpy(), grid, settings, with_cv=False)
+            columns[f"status_{code}"].to_numpy(), grid, settings, ids=ids)
     scaled = scale_units_to_total({c: out[c].thickness_m for c in aquitard_codes},
                                   out["aquitard"].thickness_m)
     for c, arr in scaled.items():
-        s = out[c]
-        out[c] = Surface(s.name, arr, s.sd_m, s.variogram, s.experimental, s.n_full,
-                         s.n_lower_bounds, s.n_bounds_active, s.cv, s.data_x_m, s.data_y_m)
+        out[c] = replace(out[c], thickness_m=arr)
     return out

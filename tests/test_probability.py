@@ -1,0 +1,169 @@
+"""Probabilities of thin and absent clay with inequality data (aquitardmap.probability)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from pyproj import CRS
+from scipy.stats import norm, truncnorm
+from shapely.geometry import box
+
+from aquitardmap.grid import make_grid
+from aquitardmap.kriging import krige_points
+from aquitardmap.probability import (
+    censored_data,
+    gibbs_draws,
+    thickness_probabilities,
+    truncated_normal,
+)
+from aquitardmap.variogram import VariogramModel
+
+CRS_M = CRS.from_epsg(32632)
+MODEL = VariogramModel("spherical", nugget=0.5, psill=30.0, range_m=1200.0)
+
+
+@pytest.mark.parametrize("mean, sd, low, high", [
+    (0.0, 1.0, 0.5, np.inf),       # upper tail
+    (2.0, 0.5, -np.inf, 1.0),      # lower tail, 2 SD below
+    (0.0, 1.0, 6.0, np.inf),       # far upper tail (mirrored internally)
+    (10.0, 3.0, 4.0, 9.0),         # two-sided
+])
+def test_truncated_normal_matches_scipy_truncnorm(mean, sd, low, high):
+    # Reference: scipy.stats.truncnorm mean and variance of the same truncated normal; the
+    # sample of 40 000 draws must agree within 4 standard errors.
+    rng = np.random.default_rng(1)
+    x = truncated_normal(rng, np.full(40_000, mean), sd, low, high)
+    assert np.all((x >= low) & (x <= high))
+    a, b = (low - mean) / sd, (high - mean) / sd
+    ref_mean = truncnorm.mean(a, b, loc=mean, scale=sd)
+    ref_var = truncnorm.var(a, b, loc=mean, scale=sd)
+    assert x.mean() == pytest.approx(ref_mean, abs=4 * np.sqrt(ref_var / x.size))
+    assert x.var() == pytest.approx(ref_var, rel=0.05)
+
+
+def _grid():
+    return make_grid(box(0, 0, 3000, 3000), 100.0, CRS_M)
+
+
+def _full_holes(seed=5, mean=20.0):
+    rng = np.random.default_rng(seed)
+    gx, gy = np.meshgrid(np.linspace(150, 2850, 5), np.linspace(150, 2850, 5))
+    x, y = gx.ravel(), gy.ravel()
+    return x, y, mean + rng.normal(0, 2.0, x.size)
+
+
+def test_without_inequalities_probability_is_the_gaussian_kriging_one():
+    # Reference: with only positive full thicknesses there is nothing to draw, and
+    # P(T < t) = Φ((t − Z*)/σ) with Z*, σ² from ordinary kriging (pykrige via krige_points;
+    # scipy.stats.norm for Φ).
+    g = _grid()
+    x, y, t = _full_holes()
+    res = thickness_probabilities(x, y, t, np.full(t.size, "full"), MODEL, g,
+                                  {"thin": 18.0}, n_draws=8)
+    xs, ys = g.cell_centres()
+    xx, yy = np.meshgrid(xs, ys)
+    k = krige_points(x, y, t, MODEL, xx[g.mask], yy[g.mask], max_neighbours=64)
+    ref = norm.cdf((18.0 - k.estimate) / np.sqrt(k.variance))
+    assert np.allclose(res.p_below["thin"][g.mask], ref, rtol=1e-8, atol=1e-10)
+    assert res.n_absent == 0 and res.n_lower_bounds == 0
+
+
+def test_one_censored_site_is_drawn_from_its_truncated_conditional():
+    # With a single inequality the Gibbs sampler draws exactly from the normal given the
+    # other data (kriging estimate and variance, from krige_points) truncated to the
+    # interval; reference moments from scipy.stats.truncnorm, 4 standard errors.
+    x, y, t = _full_holes()
+    data = censored_data(np.append(x, 1000.0), np.append(y, 1100.0), np.append(t, 21.0),
+                         np.array(["full"] * t.size + ["lower_bound"]))
+    draws = gibbs_draws(data, MODEL, n_draws=4000, sweeps=2,
+                        rng=np.random.default_rng(3))
+    k = krige_points(x, y, t, MODEL, np.array([1000.0]), np.array([1100.0]),
+                     max_neighbours=32)
+    m, s = k.estimate[0], np.sqrt(k.variance[0])
+    a = (21.0 - m) / s
+    ref_mean = truncnorm.mean(a, np.inf, loc=m, scale=s)
+    ref_sd = truncnorm.std(a, np.inf, loc=m, scale=s)
+    assert draws.shape == (1, 4000)
+    assert draws.min() >= 21.0
+    assert draws.mean() == pytest.approx(ref_mean, abs=4 * ref_sd / np.sqrt(4000))
+
+
+def test_window_holes_are_upper_bounds_and_draws_respect_every_interval():
+    x, y, t = _full_holes()
+    status = np.array(["full"] * t.size)
+    t = t.copy()
+    t[[6, 7]] = 0.0                           # two holes prove the clay absent
+    xb, yb = np.array([2000.0, 2100.0]), np.array([2000.0, 2050.0])
+    data = censored_data(np.concatenate([x, xb]), np.concatenate([y, yb]),
+                         np.concatenate([t, [12.0, 25.0]]),
+                         np.concatenate([status, ["lower_bound", "lower_bound"]]))
+    assert data.n_absent == 2 and data.n_lower_bounds == 2 and data.x_m.size == 23
+    d = gibbs_draws(data, MODEL, n_draws=200, rng=np.random.default_rng(0))
+    assert np.all(d[:2] <= 0.0)
+    assert np.all(d[2] >= 12.0) and np.all(d[3] >= 25.0)
+
+
+def test_holes_stopped_in_thick_clay_do_not_make_thin_clay_likely():
+    # The classic error (DOMAIN §3, common practice): holes that stop at 4 m inside 20 m of
+    # clay. As lower bounds they leave P(thin) near 0; kriged as thicknesses they would make
+    # thin clay near certain there.
+    g = _grid()
+    x, y, t = _full_holes()
+    rng = np.random.default_rng(2)
+    px, py = rng.uniform(1000, 2000, 12), rng.uniform(1000, 2000, 12)
+    xa, ya = np.concatenate([x, px]), np.concatenate([y, py])
+    ta = np.concatenate([t, np.full(12, 4.0)])
+    honest = thickness_probabilities(
+        xa, ya, ta, np.array(["full"] * t.size + ["lower_bound"] * 12), MODEL, g,
+        {"thin": 5.0}, n_draws=32)
+    naive = thickness_probabilities(xa, ya, ta, np.full(ta.size, "full"), MODEL, g,
+                                    {"thin": 5.0}, n_draws=8)
+    r, c = g.rowcol(px, py)
+    assert np.all(honest.p_below["thin"][r, c] < 0.05)
+    assert np.all(naive.p_below["thin"][r, c] > 0.25)
+    assert naive.p_below["thin"][r, c].mean() > 0.5
+
+
+def test_a_cluster_of_window_holes_makes_a_likely_window_and_nothing_far_away():
+    g = _grid()
+    x, y, t = _full_holes()
+    wx = np.array([1050.0, 1150.0, 1250.0, 1100.0, 1200.0])  # between full holes
+    wy = np.array([1150.0, 1100.0, 1150.0, 1250.0, 1250.0])
+    xa, ya = np.concatenate([x, wx]), np.concatenate([y, wy])
+    ta = np.concatenate([t, np.zeros(5)])
+    res = thickness_probabilities(xa, ya, ta, np.full(ta.size, "full"), MODEL, g,
+                                  {"window": 1.0, "thin": 5.0}, n_draws=48, seed=4)
+    pw, pt = res.p_below["window"], res.p_below["thin"]
+    r, c = g.rowcol(np.array([1150.0]), np.array([1180.0]))
+    assert pw[r[0], c[0]] > 0.9
+    far_r, far_c = g.rowcol(np.array([300.0]), np.array([2700.0]))
+    assert pt[far_r[0], far_c[0]] < 0.01
+    # Probabilities of nested events are ordered cell by cell: P(T < 1) <= P(T < 5).
+    m = g.mask
+    assert np.all(pw[m] <= pt[m] + 1e-12)
+    assert np.all((pw[m] >= 0) & (pt[m] <= 1))
+    assert np.all(np.isnan(pw[~m]))
+    assert res.n_absent == 5
+
+
+def test_same_seed_same_grids_and_threshold_grids_accepted():
+    g = _grid()
+    x, y, t = _full_holes()
+    t = t.copy()
+    t[3] = 0.0
+    status = np.full(t.size, "full")
+    thr = np.full(g.mask.shape, 5.0)
+    thr[:, :10] = 25.0  # a threshold that varies by cell (e.g. a cut by excavations)
+    a = thickness_probabilities(x, y, t, status, MODEL, g, {"thin": thr}, seed=9, n_draws=16)
+    b = thickness_probabilities(x, y, t, status, MODEL, g, {"thin": thr}, seed=9, n_draws=16)
+    assert np.array_equal(a.p_below["thin"], b.p_below["thin"], equal_nan=True)
+    assert np.nanmean(a.p_below["thin"][:, :10]) > np.nanmean(a.p_below["thin"][:, 12:])
+
+
+def test_coincident_inequality_and_full_hole_keeps_the_full_thickness():
+    data = censored_data(np.array([0.0, 0.0, 500.0, 500.0]), np.array([0.0, 0.0, 0.0, 0.0]),
+                         np.array([12.0, 6.0, 3.0, 8.0]),
+                         np.array(["full", "lower_bound", "lower_bound", "lower_bound"]))
+    assert data.x_m.size == 1 and data.cx_m.size == 1
+    assert data.low_m[0] == 8.0  # the tighter of two bounds at one place
+    assert any("share a location" in n for n in data.notes)
