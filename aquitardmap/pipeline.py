@@ -423,17 +423,20 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
     (:mod:`aquitardmap.probability`), with the total thickness's variogram.
 
     Where hazards (or a non-protective weathered crust) cut the column, the protective
-    thickness is the total less the cut ``c`` computed on the kriged total, and
-    P(protective < t) is taken as P(total < t + c).
+    thickness is max(0, T − c), with c the depth the hazard removes below the top of the
+    clay (its removed depth less the kriged cover) plus the crust when it is not
+    protective; so P(protective < t) = P(T < t + c).
     """
     p = inputs.project
     th = p.screening
     total = surfaces["aquitard"]
-    cut = 0.0
-    if hyd.protective_thickness_m is not None:
-        cut = np.where(np.isfinite(total.thickness_m),
-                       np.maximum(total.thickness_m - hyd.protective_thickness_m, 0.0), 0.0)
-        cut = np.nan_to_num(cut)
+    cut = np.zeros(inputs.grid.mask.shape)
+    if hyd.hazard_removed_m is not None:
+        cover = sum((np.nan_to_num(surfaces[u.code].thickness_m) for u in p.column_units
+                     if u.role == "cover"), np.zeros_like(cut))
+        cut = np.maximum(np.nan_to_num(hyd.hazard_removed_m) - cover, 0.0)
+    if p.hydraulics.crust_treatment == "not_protective":
+        cut = cut + p.hydraulics.crust_depth_m
     used = inputs.columns[~inputs.columns["excluded"]]
     return thickness_probabilities(
         used["x"].to_numpy(float), used["y"].to_numpy(float),
@@ -995,7 +998,6 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         probabilities = None
         if inputs.project.screening.zone_basis == "probability":
             probabilities = thickness_probability_grids(inputs, surfaces, hyd)
-            t = lap("probabilities", t)
         p_thin, zones = screen(inputs, surfaces, hyd, boreholes, probabilities=probabilities)
         t = lap("zones", t)
         compute_info = describe(runner)
