@@ -61,7 +61,11 @@ from aquitardmap.hydraulics import (
 from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
-from aquitardmap.probability import ThicknessProbabilities, thickness_probabilities
+from aquitardmap.probability import (
+    ThicknessProbabilities,
+    cv_variance_scale,
+    thickness_probabilities,
+)
 from aquitardmap.project import (
     PROJECT_FILE,
     ComputeSettings,
@@ -444,7 +448,8 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
         total.variogram, inputs.grid,
         {"window": th.window_thickness_m + cut, "thin": th.thin_thickness_m + cut},
         max_neighbours=p.kriging.max_neighbours, n_draws=th.probability_draws,
-        seed=th.probability_seed)
+        seed=th.probability_seed,
+        variance_scale=cv_variance_scale(total.cv) if th.probability_variance_from_cv else 1.0)
 
 
 def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:

@@ -26,6 +26,10 @@ Method (a multi-Gaussian model of a *latent* thickness with inequality data):
   integrated out by Monte Carlo, the rest analytically (no grid simulation is needed). The
   kriging weights do not depend on the values, so they are computed once.
 
+The level of the kriging variance is set by cross-validation: the variogram's sills are
+multiplied by the variance of the leave-one-out standardised errors of the thickness surface
+(:func:`cv_variance_scale`), which leaves every estimate unchanged.
+
 Approximations, stated in the summary: ordinary kriging (local mean re-estimated) stands in
 for the simple-kriging conditional distributions of the Gaussian model; the variogram is the
 one of the thickness data; moving neighbourhoods; the Monte Carlo error of a probability is
@@ -34,7 +38,7 @@ about ``sqrt(p(1 − p)/n_draws)`` at most (0.06 for 64 draws at p = 0.5).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.special import ndtr, ndtri
@@ -211,11 +215,13 @@ class ThicknessProbabilities:
     sweeps: int
     seed: int
     notes: list[str]
+    variance_scale: float = 1.0
 
     def as_dict(self) -> dict[str, object]:
         return {"method": METHOD, "n_full_positive": self.n_equal,
                 "n_proving_absence": self.n_absent, "n_lower_bounds": self.n_lower_bounds,
                 "n_draws": self.n_draws, "gibbs_sweeps": self.sweeps, "seed": self.seed,
+                "variance_scale": self.variance_scale,
                 "monte_carlo_sd_at_p_0_5": float(0.5 / np.sqrt(self.n_draws)),
                 "notes": list(self.notes)}
 
@@ -260,11 +266,42 @@ def probability_below_grid(data: CensoredData, draws: np.ndarray, model: Variogr
     return out
 
 
+#: Cross-validated holes needed before the variance scale is taken from them.
+MIN_HOLES_FOR_VARIANCE_SCALE = 20
+#: Range the variance scale is kept in.
+VARIANCE_SCALE_LIMITS = (0.05, 20.0)
+
+
+def cv_variance_scale(cv: dict[str, float]) -> float:
+    """Factor on the variogram's sill that makes the leave-one-out standardised errors have
+    variance 1: their observed variance (kept within :data:`VARIANCE_SCALE_LIMITS`; 1 with
+    fewer than :data:`MIN_HOLES_FOR_VARIANCE_SCALE` cross-validated holes).
+
+    Multiplying a variogram by a constant leaves the ordinary kriging weights and estimates
+    unchanged and multiplies every kriging variance by it (the kriging system is linear in
+    γ; Journel & Huijbregts 1978, ch. V), so this sets only the *level* of the uncertainty,
+    from the one check the data offer: standardised cross-validation errors should have
+    variance near 1 (Isaaks & Srivastava 1989, ch. 15).
+    """
+    v = cv.get("variance_standardised_error")
+    n = cv.get("n", 0)
+    if v is None or not np.isfinite(v) or v <= 0 or n < MIN_HOLES_FOR_VARIANCE_SCALE:
+        return 1.0
+    return float(np.clip(v, *VARIANCE_SCALE_LIMITS))
+
+
+def scaled_variogram(model: VariogramModel, factor: float) -> VariogramModel:
+    """``model`` with its nugget and partial sills multiplied by ``factor``."""
+    return replace(model, nugget=model.nugget * factor, psill=model.psill * factor,
+                   psill2=model.psill2 * factor)
+
+
 def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                             status: np.ndarray, model: VariogramModel, grid: Grid,
                             thresholds_m: dict[str, float | np.ndarray], *,
                             max_neighbours: int = 64, n_draws: int = 64, sweeps: int = 30,
-                            seed: int = 0) -> ThicknessProbabilities:
+                            seed: int = 0, variance_scale: float = 1.0
+                            ) -> ThicknessProbabilities:
     """P(total aquitard thickness < threshold) grids from borehole columns (module
     docstring): full positive thicknesses as data, holes proving a window as ``Z ≤ 0``,
     holes that stopped in the clay as ``Z ≥ bound``.
@@ -279,7 +316,9 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
         max_neighbours: kriging neighbourhood of the grid cells (the Gibbs sampler uses half
             of it, at least 8).
         n_draws, sweeps, seed: Monte Carlo settings; the same seed gives the same grids.
+        variance_scale: factor on the variogram's sills (see :func:`cv_variance_scale`).
     """
+    model = scaled_variogram(model, variance_scale)
     data = censored_data(x_m, y_m, thickness_m, status)
     if data.x_m.size + data.cx_m.size == 0:
         raise ValueError("no borehole gives the total aquitard thickness or a bound on it")
@@ -289,4 +328,4 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
     p = probability_below_grid(data, draws, model, grid, thresholds_m,
                                max_neighbours=max_neighbours)
     return ThicknessProbabilities(p, int(data.x_m.size), data.n_absent, data.n_lower_bounds,
-                                  n_draws, sweeps, seed, list(data.notes))
+                                  n_draws, sweeps, seed, list(data.notes), variance_scale)

@@ -181,6 +181,8 @@ class ScreeningThresholds:
             least this (and it is not a window).
         probability_draws: Monte Carlo draws of the censored data behind the probabilities.
         probability_seed: seed of those draws (the same seed gives the same grids).
+        probability_variance_from_cv: scale the variogram behind the probabilities so that
+            the cross-validation's standardised errors have variance 1.
     """
 
     window_thickness_m: float = 1.0
@@ -189,10 +191,11 @@ class ScreeningThresholds:
     piercing_radius_m: float = 500.0
     piercing_flag_per_km2: float = 10.0
     zone_basis: str = "probability"
-    p_window_threshold: float = 0.6
+    p_window_threshold: float = 0.5
     p_thin_threshold: float = 0.5
     probability_draws: int = 64
     probability_seed: int = 0
+    probability_variance_from_cv: bool = True
 
 
 @dataclass(frozen=True)
@@ -450,6 +453,16 @@ def _has_link(root: Path, name: str) -> bool:
         except OSError:
             return False
     return False
+
+
+def _flag(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], key: str,
+          default: bool, table: str) -> bool:
+    value = tbl.get(key, default)
+    if not isinstance(value, bool):
+        problems.add(path, *_locate(text, key, table), f"[{table}] {key} must be true or "
+                     f"false, got {value!r}")
+        return default
+    return value
 
 
 def _choice(problems: ProblemList, path: Path, text: str, tbl: dict[str, Any], key: str,
@@ -864,7 +877,7 @@ def read_project(folder: str | Path) -> Project:
                                       "screening", low=0, low_open=True),
         zone_basis=_choice(problems, path, text, sc, "zone_basis", "probability", "screening",
                            ZONE_BASES),
-        p_window_threshold=_number(problems, path, text, sc, "p_window_threshold", 0.6,
+        p_window_threshold=_number(problems, path, text, sc, "p_window_threshold", 0.5,
                                    "screening", low=0, low_open=True, high=1.0),
         p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold", 0.5,
                                  "screening", low=0, low_open=True, high=1.0),
@@ -872,6 +885,8 @@ def read_project(folder: str | Path) -> Project:
                                       "screening", low=8, high=5000, integer=True)),
         probability_seed=int(_number(problems, path, text, sc, "probability_seed", 0,
                                      "screening", low=0, integer=True)),
+        probability_variance_from_cv=_flag(problems, path, text, sc,
+                                           "probability_variance_from_cv", True, "screening"),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),

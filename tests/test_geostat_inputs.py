@@ -144,6 +144,7 @@ p_window_threshold = 0.7
 p_thin_threshold = 0.4
 probability_draws = 32
 probability_seed = 5
+probability_variance_from_cv = false
 
 [qa]
 cv_standardised_error_max = 2.5
@@ -155,7 +156,8 @@ cv_standardised_error_max = 2.5
                                                       30.0, "exponential", 10.0, 5000.0)
     s = p.screening
     assert (s.zone_basis, s.p_window_threshold, s.p_thin_threshold, s.probability_draws,
-            s.probability_seed) == ("kriged_thickness", 0.7, 0.4, 32, 5)
+            s.probability_seed, s.probability_variance_from_cv) == ("kriged_thickness", 0.7,
+                                                                    0.4, 32, 5, False)
     assert p.qa.cv_standardised_error_max == 2.5
 
 
@@ -164,7 +166,8 @@ def test_defaults_of_the_new_keys(tmp_path):
     assert p.kriging.nested_model == "" and p.kriging.anisotropy == "none"
     assert p.kriging.variograms == {}
     assert p.screening.zone_basis == "probability"
-    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.6, 0.5)
+    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.5)
+    assert p.screening.probability_variance_from_cv is True
     assert p.qa.cv_standardised_error_max == 3.0
 
 
@@ -193,6 +196,7 @@ model2 = "gaussian"
 [screening]
 p_thin_threshold = 1.5
 zone_basis = "both"
+probability_variance_from_cv = "yes"
 """))
     text = "\n".join(str(p) for p in exc.value.problems)
     lines = (tmp_path / "project.toml").read_text().splitlines()
@@ -207,6 +211,7 @@ zone_basis = "both"
     assert "model2 needs psill2 and range2_m" in text
     assert "p_thin_threshold must be <= 1.0" in text
     assert "zone_basis must be one of" in text
+    assert "probability_variance_from_cv must be true or false" in text
 
 
 # --- holes outside the grid, units nobody passed through, exclusion by id ---------------

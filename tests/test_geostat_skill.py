@@ -2,12 +2,12 @@
 
 Baseline (issue 3): the kriged total thickness thresholded at the window (1 m) and thin (5 m)
 thresholds. Tool: cells where P(thinner than the threshold) reaches the configured
-probability threshold (``p_window_threshold`` 0.6, ``p_thin_threshold`` 0.5), the
-probabilities honouring holes that prove a window and holes that stopped in the clay
-(:mod:`aquitardmap.probability`). Scores: area recall (share of the truth's cells below the
-threshold that are flagged) and area precision (share of flagged cells that are below it in
-the truth), on the cells of the study area, window zones scored against truth < 1 m and
-thin-or-window zones against truth < 5 m.
+probability threshold (``p_window_threshold`` and ``p_thin_threshold``, 0.5 by default), the
+probabilities honouring holes that prove a window and holes that stopped in the clay, with
+the variance level set by cross-validation (:mod:`aquitardmap.probability`). Scores: area
+recall (share of the truth's cells below the threshold that are flagged) and area precision
+(share of flagged cells that are below it in the truth), on the cells of the study area;
+window zones scored against truth < 1 m, thin-or-window zones against truth < 5 m.
 
 The truths are the generator's truth grids (aquitardmap.synthetic), the outside reference:
 the bundled demo region and two further seeded regions of other character generated here.
@@ -22,7 +22,7 @@ import pytest
 
 from aquitardmap.grid import read_raster
 from aquitardmap.pipeline import build_surfaces, load_inputs
-from aquitardmap.probability import thickness_probabilities
+from aquitardmap.probability import cv_variance_scale, thickness_probabilities
 from aquitardmap.synthetic import make_synthetic_region
 
 from conftest import DEMO
@@ -53,7 +53,7 @@ def measure(project_dir) -> dict[str, dict[str, tuple[float, float]]]:
         total.variogram, inputs.grid,
         {"window": th.window_thickness_m, "thin": th.thin_thickness_m},
         max_neighbours=inputs.project.kriging.max_neighbours, n_draws=th.probability_draws,
-        seed=th.probability_seed)
+        seed=th.probability_seed, variance_scale=cv_variance_scale(total.cv))
     truth, *_ = read_raster(inputs.project.root / "truth" / "aquitard_thickness_m.tif")
     m = inputs.grid.mask & np.isfinite(truth)
     est = total.thickness_m[m]
@@ -86,14 +86,18 @@ def skill(request, tmp_path_factory):
     return request.param, s
 
 
-def test_probability_zones_find_more_of_the_true_windows(skill):
+def test_probability_zones_find_more_of_the_true_windows_at_no_loss_of_precision(skill):
+    # The criterion of issue 3: beat the baseline on recall without falling below it on
+    # precision (measured: recall +0.09 to +0.22, precision equal or higher).
     name, s = skill
-    (br, _bp), (tr, tp) = s["baseline"]["window"], s["tool"]["window"]
+    (br, bp), (tr, tp) = s["baseline"]["window"], s["tool"]["window"]
     assert tr > br + 0.05, name
-    assert tp >= FLOORS[name]["window"], name
+    assert tp >= bp, name
 
 
 def test_probability_zones_find_more_of_the_true_thin_clay(skill):
+    # More of the thin clay everywhere; precision is at or above the baseline's on the
+    # bedrock region and up to 0.045 below it on the others (README), held by the floors.
     name, s = skill
     (br, _bp), (tr, tp) = s["baseline"]["thin"], s["tool"]["thin"]
     assert tr > br, name
@@ -102,6 +106,5 @@ def test_probability_zones_find_more_of_the_true_thin_clay(skill):
 
 #: Precision floors of the tool from the measured figures (README), so that a regression
 #: shows; where the tool is below the baseline's precision the README says by how much.
-FLOORS = {"demo": {"window": 0.98, "thin": 0.88},
-          "channel_cut": {"window": 0.95, "thin": 0.85},
-          "bedrock_highs": {"window": 0.95, "thin": 0.75}}
+FLOORS = {"demo": {"thin": 0.90}, "channel_cut": {"thin": 0.89},
+          "bedrock_highs": {"thin": 0.771}}
