@@ -34,10 +34,6 @@ from __future__ import annotations
 
 import html
 import json
-import os
-import shutil
-import tempfile
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -51,6 +47,7 @@ from shapely.ops import unary_union
 from aquitardmap import outputs
 from aquitardmap.errors import InputError, Problem
 from aquitardmap.grid import Grid, read_raster, write_raster
+from aquitardmap.staging import staged_output_dir
 
 CHANGES_GPKG = "changes.gpkg"
 ZONE_CHANGES_LAYER = "zone_changes"
@@ -393,18 +390,12 @@ def write_comparison(cmp: Comparison, out_dir: str | Path) -> list[str]:
     """Write the comparison files into ``out_dir`` (replaced as a whole when complete).
 
     An existing ``out_dir`` is replaced only when it is empty or holds a previous
-    comparison (``changes.json``).
+    comparison (``changes.json``); the replacement is atomic (see
+    :func:`aquitardmap.staging.staged_output_dir`).
 
     Returns the names of the files written.
     """
-    out = Path(out_dir).resolve()
-    if out.exists() and (not out.is_dir() or (any(out.iterdir())
-                                             and not (out / CHANGES_JSON).exists())):
-        raise _problem(out, "output folder exists and does not hold a previous comparison; "
-                       "choose another --out")
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
-    try:
+    with staged_output_dir(out_dir, marker=CHANGES_JSON, what="comparison") as tmp:
         names = [CHANGES_GPKG, THICKNESS_CHANGE, CHANGES_MAP, CHANGES_JSON, CHANGES_TEXT]
         cmp.zone_changes.to_file(tmp / CHANGES_GPKG, layer=ZONE_CHANGES_LAYER, driver="GPKG")
         cmp.hole_changes.to_file(tmp / CHANGES_GPKG, layer=HOLE_CHANGES_LAYER, driver="GPKG")
@@ -420,16 +411,6 @@ def write_comparison(cmp: Comparison, out_dir: str | Path) -> list[str]:
         (tmp / CHANGES_TEXT).write_text(cmp.text, encoding="utf-8")
         (tmp / CHANGES_JSON).write_text(json.dumps({**cmp.summary, "outputs": sorted(names)},
                                                    indent=2), encoding="utf-8")
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    old = None
-    if out.exists():
-        old = out.parent / f".{out.name}.old-{os.getpid()}-{time.time_ns()}"
-        os.replace(out, old)
-    os.replace(tmp, out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
     return sorted(names)
 
 

@@ -8,10 +8,7 @@ never damages the previous one.
 
 from __future__ import annotations
 
-import os
 import platform
-import shutil
-import tempfile
 import time
 import warnings
 from collections.abc import Callable, Iterator
@@ -75,6 +72,7 @@ from aquitardmap.project import (
 )
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+from aquitardmap.staging import staged_output_dir, tidy_output_dir  # noqa: F401
 from aquitardmap.store import has_store, project_boreholes
 from aquitardmap.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
 from aquitardmap.suspicious import suspicious_columns, suspicious_list
@@ -641,6 +639,9 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         "inputs": inputs_hash,
         "grid": {"cell_size_m": g.cell_size_m, "width": g.width, "height": g.height,
                  "bounds_m": list(g.bounds), "cells_in_study_area": int(inside.sum()),
+                 # nothing above the aquifer: travel time and resistance 0, leakance +inf,
+                 # equivalent Kv undefined (nodata)
+                 "cells_without_column": int((np.isinf(hyd.leakance_per_s) & inside).sum()),
                  "study_area_km2": float(inside.sum() * g.cell_area_m2 / 1e6)},
         "counts": {
             "boreholes": int(len(boreholes)),
@@ -801,35 +802,6 @@ def _piercing_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
         "holes_in_flagged_cells": int(table["in_flagged_cell"].sum()) if len(table) else 0,
         "borehole_ids": list(table["borehole_id"]) if len(table) else [],
     }
-
-
-@contextmanager
-def staged_output_dir(out_dir: str | Path) -> Iterator[Path]:
-    """Yield a fresh temporary folder next to ``out_dir``; on success it replaces
-    ``out_dir`` in two renames, on any failure it is removed and ``out_dir`` is untouched.
-
-    An existing ``out_dir`` is replaced only if it is empty or holds a previous run (a
-    ``summary.json``); anything else is refused, so a mistyped path cannot wipe a folder.
-    """
-    out = Path(out_dir).resolve()
-    if out.exists() and (not out.is_dir() or (any(out.iterdir())
-                                             and not (out / outputs.SUMMARY).exists())):
-        raise InputError([Problem(str(out), 0, 0, "output folder exists and does not hold a "
-                                  "previous aquitardmap run; choose another --out")])
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
-    try:
-        yield tmp
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    old = None
-    if out.exists():
-        old = out.parent / f".{out.name}.old-{os.getpid()}-{time.time_ns()}"
-        os.replace(out, old)
-    os.replace(tmp, out)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
 
 
 def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],

@@ -434,6 +434,7 @@ def check_result(result) -> None:
         assert z["mean_p_thin"].between(0, 1).all()
         assert (z["mean_thickness_m"] >= 0).all() and (z["mean_travel_time_yr"] >= 0).all()
     assert len(result.boreholes) == len(result.inputs.columns)
+    assert result.summary["grid"]["cells_without_column"] == int(none.sum())
     json.dumps(_json_ready(result.summary), allow_nan=False)
 
 

@@ -95,6 +95,26 @@ def test_written_outputs_hold_the_checked_grids_and_replace_the_previous_run(spe
         assert sorted(p.name for p in Path(d).iterdir()) == ["out", "p"]
 
 
+def test_where_nothing_covers_the_aquifer_travel_time_is_0_and_leakance_infinite(tmp_path):
+    # Every hole meets the aquifer at the surface: a window with no cover everywhere. By
+    # the series formulas (c = sum b/K = 0): resistance and travel time 0, leakance 1/c =
+    # +inf, Kv = sum b / c = 0/0 undefined (nodata). Map and report must still be written.
+    units = [pg.UnitSpec("CLAY", "aquitard", 0.4, 1e-9, "none", 1.0),
+             pg.UnitSpec("GRAV", "aquifer", 0.25, 1e-3, "none", 1.0)]
+    holes = [pg.HoleSpec(f"W-{i}", 500_000 + 300 * (i % 3), 6_700_000 + 300 * (i // 3), 20.0,
+                         5.0, [(0.0, 5.0, "GRAV")]) for i in range(6)]
+    spec = pg.Spec(crs="EPSG:32632", origin=(500_000.0, 6_700_000.0), extent_m=600.0,
+                   cell_size_m=100.0, buffer_m=100.0, units=units, holes=holes, settings={},
+                   with_samples=False)
+    root = pg.render(spec).write(tmp_path / "p")
+    result = _run(root, tmp_path / "out")
+    pg.check_result(result)
+    pg.check_outputs(tmp_path / "out", result)
+    g = result.summary["grid"]
+    assert g["cells_without_column"] == g["cells_in_study_area"] > 0
+    assert set(result.zones["kind"]) == {"window", "fast"}
+
+
 # --------------------------------------------------------------------------- broken projects
 
 

@@ -114,3 +114,78 @@ def test_hydraulic_extensions_are_checked(tmp_path):
     assert any("terzaghi_c must be <= 0.0107" in m for m in msgs)
     assert any("piercing_radius_m must be > 0" in m for m in msgs)
     assert not any("k_method" in m for m in msgs)       # "beyer" is a known method
+
+
+# --- configuration is data only, and its paths stay inside the project folder -------------
+
+
+def test_symbolic_link_leading_out_of_the_folder_is_refused(tmp_path):
+    outside = tmp_path / "elsewhere"
+    outside.mkdir()
+    (outside / "secret.csv").write_text("borehole_id,x,y,ground_elev_m,total_depth_m\n")
+    proj = tmp_path / "proj"
+    proj.mkdir()
+    (proj / "link.csv").symlink_to(outside / "secret.csv")
+    probs = _problems(proj, MINIMAL + '\n[files]\ncollars = "link.csv"\n')
+    assert any(p.line == 19 and "outside the project folder through a symbolic link"
+               in p.message for p in probs), probs
+
+
+def test_symbolic_link_that_stays_inside_the_folder_is_followed(tmp_path):
+    _project(tmp_path, MINIMAL + '\n[files]\ncollars = "data/c.csv"\n')
+    (tmp_path / "data").mkdir()
+    (tmp_path / "data" / "c.csv").symlink_to(tmp_path / "collars.csv")
+    p = read_project(tmp_path)
+    assert p.files["collars"] == (tmp_path / "collars.csv").resolve()
+
+
+def test_absolute_path_is_accepted_inside_the_folder_and_refused_outside(tmp_path):
+    inside = _project(tmp_path, MINIMAL + f'\n[files]\ncollars = "{tmp_path / "collars.csv"}"\n')
+    assert read_project(inside).files["collars"] == (tmp_path / "collars.csv").resolve()
+    probs = _problems(tmp_path, MINIMAL + '\n[files]\ncollars = "/etc/hostname"\n')
+    assert any(p.line == 19 and "outside the project folder" in p.message for p in probs)
+
+
+@pytest.mark.parametrize("value, words", [
+    ('""', "does not name a file"), ('"a\\u0000b"', "does not name a file"),
+    ('"."', "is a folder"), ("5", "must be a path")])
+def test_file_setting_that_names_no_file_is_refused_at_its_line(tmp_path, value, words):
+    probs = _problems(tmp_path, MINIMAL + f"\n[files]\ncollars = {value}\n")
+    assert any(p.line == 19 and words in p.message for p in probs), probs
+
+
+def test_misspelt_key_is_refused_not_replaced_by_its_default(tmp_path):
+    text = MINIMAL + "\n[screening]\nthin_thicknes_m = 10.0\n"
+    probs = _problems(tmp_path, text)
+    assert [(p.line, p.column) for p in probs] == [(19, 1)]
+    assert "unknown key 'thin_thicknes_m' in [screening]" in probs[0].message
+    assert "thin_thickness_m" in probs[0].message  # the expected keys are listed
+
+
+def test_misspelt_key_of_a_unit_names_the_unit(tmp_path):
+    probs = _problems(tmp_path, MINIMAL.replace('role = "aquitard"',
+                                                'role = "aquitard"\nporosity = 0.3'))
+    assert probs[0].line == 12 and "[[units]] 1" in probs[0].message
+
+
+@pytest.mark.parametrize("value", ["nan", "inf", "-inf", '"50"', "true", "[50]",
+                                   "1979-05-27"])
+def test_cell_size_that_is_not_a_finite_number_is_refused(tmp_path, value):
+    probs = _problems(tmp_path, MINIMAL.replace("cell_size_m = 50", f"cell_size_m = {value}"))
+    assert any(p.line == 6 and "cell_size_m" in p.message for p in probs), probs
+
+
+def test_whole_numbers_must_be_whole(tmp_path):
+    probs = _problems(tmp_path, MINIMAL + "\n[kriging]\nmax_neighbours = 12.5\n")
+    assert probs[0].line == 19 and "whole number" in probs[0].message
+
+
+def test_section_that_is_not_a_table_is_refused(tmp_path):
+    probs = _problems(tmp_path, "kriging = 5\n" + MINIMAL)
+    assert any(p.line == 1 and "kriging must be a table" in p.message for p in probs)
+
+
+def test_byte_order_mark_is_accepted(tmp_path):
+    _project(tmp_path, MINIMAL)
+    (tmp_path / "project.toml").write_bytes(b"\xef\xbb\xbf" + MINIMAL.encode())
+    assert read_project(tmp_path).name == "Test"
