@@ -922,6 +922,16 @@ def _surface_title(project: Project, name: str) -> str:
         return f"Variogram of {name}"
 
 
+def _refuse_out_over_project(project_dir: str | Path, out_dir: str | Path) -> None:
+    """An output folder that is the project folder, or holds it, would be replaced with the
+    inputs inside: refused before any work."""
+    root, out = Path(project_dir).resolve(), Path(out_dir).resolve()
+    if root == out or root.is_relative_to(out):
+        raise InputError([Problem(str(out), 0, 0, "the output folder is the project folder "
+                                  "or holds it; replacing it would delete the inputs: choose "
+                                  "another --out")])
+
+
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         progress: ProgressFn | None = None, self_contained_map: bool = False,
         compute: ComputeSettings | None = None,
@@ -948,6 +958,8 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         if progress is not None:
             progress(STAGES[i], i + 1, len(STAGES))
 
+    if out_dir is not None:
+        _refuse_out_over_project(project_dir, out_dir)
     if self_contained_map and out_dir is not None:
         find_web_assets()
     started = datetime.now(UTC)

@@ -755,16 +755,22 @@ def project_boreholes(project: Project) -> Boreholes:
     """
     if not has_store(project):
         return read_boreholes(project)
-    b = read_store(project)
-    notes = list(b.warnings)
-    known = set()
-    con = _connect(store_path(project))
     try:
-        known = {r[0] for r in con.execute(
-            "SELECT f.sha256 FROM batch_files f JOIN batches b ON b.fid = f.batch_id "
-            "WHERE b.undone_utc IS NULL")}
-    finally:
-        con.close()
+        b = read_store(project)
+        notes = list(b.warnings)
+        known = set()
+        con = _connect(store_path(project))
+        try:
+            known = {r[0] for r in con.execute(
+                "SELECT f.sha256 FROM batch_files f JOIN batches b ON b.fid = f.batch_id "
+                "WHERE b.undone_utc IS NULL")}
+        finally:
+            con.close()
+    except (sqlite3.Error, pd.errors.DatabaseError) as exc:
+        # not a GeoPackage at all, or one without the store's tables
+        raise InputError([Problem(store_path(project).name, 0, 0, "cannot be read as the "
+                                  f"project's borehole store ({exc}); move it away to read "
+                                  "the CSV files, or restore it from a backup")]) from None
     for src in _project_sources(project):
         if src.sha256 not in known:
             notes.append(Problem(src.path.name, 0, 0, f"{src.path.name} differs from every "

@@ -192,16 +192,23 @@ def specs(draw, max_holes: int = 10) -> Spec:
             "n_lags": draw(st.sampled_from([0, 0, 3, 8])),
             "max_lag_fraction": draw(st.sampled_from([0.25, 0.5, 1.0])),
             "max_neighbours": draw(st.sampled_from([4, 8, 64])),
+            "nested_model": draw(st.sampled_from(["", "", "exponential"])),
+            "anisotropy": draw(st.sampled_from(["none", "none", "auto"])),
         },
         "hydraulics": {
             "groundwater_temp_c": draw(st.sampled_from([0.0, 8.0, 25.0, 40.0])),
             "vertical_gradient": draw(st.sampled_from([0.01, 0.3, 1.0, 5.0])),
             "hazen_c": draw(st.sampled_from([40.0, 100.0, 150.0])),
+            "crust_treatment": draw(st.sampled_from(["raise_k", "not_protective"])),
+            "crust_depth_m": draw(st.sampled_from([0.0, 3.0])),
         },
         "screening": {
             "window_thickness_m": window,
             "thin_thickness_m": window + draw(st.sampled_from([0.0, 4.0, 20.0])),
             "fast_travel_time_yr": draw(st.sampled_from([0.5, 50.0, 1e4])),
+            "zone_basis": draw(st.sampled_from(["probability", "kriged_thickness"])),
+            "probability_draws": draw(st.sampled_from([8, 16])),
+            "probability_seed": draw(st.integers(0, 3)),
         },
         "qa": {"dem_misfit_m": draw(st.sampled_from([0.5, 3.0, 100.0]))},
     }
@@ -427,6 +434,17 @@ def check_result(result) -> None:
     assert np.isfinite(kv[~none]).all() and (kv[~none] > 0).all()
     pt = result.p_thin[m]
     assert np.isfinite(pt).all() and ((pt >= 0) & (pt <= 1)).all(), "P(thin) outside [0, 1]"
+    probs = getattr(result, "probabilities", None)
+    if probs is not None:
+        for name, grid in probs.p_below.items():
+            assert np.isfinite(grid[m]).all() and ((grid[m] >= 0) & (grid[m] <= 1)).all(), \
+                f"P({name}) outside [0, 1] in the study area"
+            assert np.isnan(grid[~m]).all()
+        if {"window", "thin"} <= set(probs.p_below):
+            # the window threshold is below the thin one: P(window) <= P(thin) in every
+            # cell (the same draws are compared with both thresholds)
+            pw, pt2 = probs.p_below["window"], probs.p_below["thin"]
+            assert (pw[m] <= pt2[m] + 1e-12).all(), "P(window) above P(thin)"
     z = result.zones
     assert set(z["kind"]) <= {"window", "thin", "fast"}
     if len(z):

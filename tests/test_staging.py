@@ -177,6 +177,21 @@ def test_a_folder_that_holds_something_else_is_refused_and_kept(tmp_path):
     assert (out / "notes.txt").read_text() == "keep me" and _leftovers(out) == []
 
 
+@pytest.mark.parametrize("where", ["project", "parent"])
+def test_an_output_folder_that_is_or_holds_the_project_is_refused_before_any_work(
+        tmp_path, where):
+    import aquitardmap
+
+    project = _small_project(tmp_path / "p")
+    (project / outputs.SUMMARY).write_text("{}")  # even if it once held a run's summary
+    (tmp_path / outputs.SUMMARY).write_text("{}")
+    before = sorted(p.name for p in project.iterdir())
+    out = project if where == "project" else tmp_path
+    with pytest.raises(InputError, match="would delete the inputs"):
+        aquitardmap.run(project, out)
+    assert sorted(p.name for p in project.iterdir()) == before
+
+
 # ----------------------------------------------------------- whole runs, killed at random
 
 
