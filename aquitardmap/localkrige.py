@@ -419,6 +419,7 @@ def _kernel():
     """The compiled per-target loop (numba imported and the loop compiled on first use;
     numba caches the machine code on disk)."""
     global _COMPILED, _gamma_nb, _pair_gamma_nb, _fresh_inverse_nb, _replace_point_nb
+    global _kth_smallest_nb
     if _COMPILED is None:
         import numba
 
@@ -426,6 +427,7 @@ def _kernel():
             return numba.njit(cache=True, nogil=True, error_model="numpy")(f)
 
         _gamma_nb = jit(_gamma_py)
+        _kth_smallest_nb = jit(_kth_smallest)
         _pair_gamma_nb = jit(_pair_gamma)
         _fresh_inverse_nb = jit(_fresh_inverse)
         _replace_point_nb = jit(_replace_point)
@@ -450,7 +452,45 @@ def _gamma_py(h, nugget, kinds, psills, ranges):  # pragma: no cover - compiled
     return g
 
 
-_gamma_nb = _pair_gamma_nb = _fresh_inverse_nb = _replace_point_nb = None
+_gamma_nb = _pair_gamma_nb = _fresh_inverse_nb = _replace_point_nb = _kth_smallest_nb = None
+
+
+def _kth_smallest(a, n, kth):  # pragma: no cover - compiled
+    """The ``kth`` smallest (from 0) of ``a[:n]``, by quickselect; reorders ``a[:n]``."""
+    lo = 0
+    hi = n - 1
+    while lo < hi:
+        mid = (lo + hi) // 2  # median of three as pivot
+        x0 = a[lo]
+        x1 = a[mid]
+        x2 = a[hi]
+        if x0 > x1:
+            x0, x1 = x1, x0
+        if x1 > x2:
+            x1 = x2
+            if x0 > x1:
+                x1 = x0
+        pivot = x1
+        i = lo
+        j = hi
+        while i <= j:
+            while a[i] < pivot:
+                i += 1
+            while a[j] > pivot:
+                j -= 1
+            if i <= j:
+                tmp = a[i]
+                a[i] = a[j]
+                a[j] = tmp
+                i += 1
+                j -= 1
+        if kth <= j:
+            hi = j
+        elif kth >= i:
+            lo = i
+        else:
+            return a[kth]
+    return a[kth]
 
 
 def _pair_gamma(dxy, qa, qb, nugget, kinds, psills, ranges):  # pragma: no cover - compiled
@@ -598,7 +638,11 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
     delta = np.empty(n1)
     u = np.empty(n1)
     v = np.empty(n1)
-    sel_d2 = np.empty(k)
+    m_max = 0
+    for bn in range(bounds.shape[0] - 1):
+        m_max = max(m_max, cand_bounds[bn + 1] - cand_bounds[bn])
+    dist2 = np.empty(m_max)
+    work = np.empty(m_max)
     sel = np.empty(k, dtype=np.int64)
     gone = np.empty(k, dtype=np.int64)
     came = np.empty(k, dtype=np.int64)
@@ -617,32 +661,32 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
                 for j in range(k):
                     sel[j] = cand[c0 + j]
             else:
-                m = 0
+                # the k nearest: the k-th smallest squared distance by selection, then the
+                # candidates up to it in their (index) order; among equal distances the
+                # lower index wins
                 for j in range(mc):
                     q = cand[c0 + j]
                     dx = dxy[q, 0] - px
                     dy = dxy[q, 1] - py
                     d2 = dx * dx + dy * dy
-                    if m < k:
-                        pos_ = m
+                    dist2[j] = d2
+                    work[j] = d2
+                thr = _kth_smallest_nb(work, mc, k - 1)
+                n_less = 0
+                for j in range(mc):
+                    if dist2[j] < thr:
+                        n_less += 1
+                eq_left = k - n_less
+                m = 0
+                for j in range(mc):
+                    d2 = dist2[j]
+                    if d2 < thr:
+                        sel[m] = cand[c0 + j]
                         m += 1
-                    elif d2 < sel_d2[k - 1]:
-                        pos_ = k - 1
-                    else:
-                        continue
-                    while pos_ > 0 and sel_d2[pos_ - 1] > d2:
-                        sel_d2[pos_] = sel_d2[pos_ - 1]
-                        sel[pos_] = sel[pos_ - 1]
-                        pos_ -= 1
-                    sel_d2[pos_] = d2
-                    sel[pos_] = q
-                for i in range(1, k):  # order the neighbour set by data index
-                    qi = sel[i]
-                    pos_ = i
-                    while pos_ > 0 and sel[pos_ - 1] > qi:
-                        sel[pos_] = sel[pos_ - 1]
-                        pos_ -= 1
-                    sel[pos_] = qi
+                    elif d2 == thr and eq_left > 0:
+                        sel[m] = cand[c0 + j]
+                        m += 1
+                        eq_left -= 1
             key = 0
             for i in range(k):
                 key = key * 1000003 + sel[i]
