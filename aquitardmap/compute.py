@@ -58,7 +58,8 @@ class SerialRunner:
 
 class DaskRunner:
     """Runs tasks on a Dask ``distributed.Client``: ``shared`` is scattered once to every
-    worker, each item becomes a task, results are gathered in order as they are needed."""
+    worker, each item becomes a task, results are gathered in order as they are needed. A
+    single task runs in this process (the same function, so the same numbers)."""
 
     name = "dask"
 
@@ -70,6 +71,9 @@ class DaskRunner:
             ) -> Iterator[Any]:
         items = list(items)
         if not items:
+            return
+        if len(items) == 1:  # one tile: sending it away costs more than it saves
+            yield fn(shared, items[0])
             return
         shared_f = self.client.scatter(shared, broadcast=True, hash=False)
         item_f = self.client.scatter(items, hash=False)

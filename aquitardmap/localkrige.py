@@ -501,21 +501,24 @@ def _pair_gamma(dxy, qa, qb, nugget, kinds, psills, ranges):  # pragma: no cover
     return _gamma_nb(h, nugget, kinds, psills, ranges) if h > 0.0 else 0.0
 
 
-def _fresh_inverse(dxy, sel, k, nugget, kinds, psills, ranges, a, binv, col):
-    """Inverse of the bordered system of neighbour set ``sel`` (positions = order of
-    ``sel``) into ``binv``: LU with partial pivoting of ``a``, then the inverse from the
-    factors.
-    Returns False when the system is singular."""  # pragma: no cover - compiled
+def _fresh_inverse(dxy, sel, k, nugget, kinds, psills, ranges, amat, a, binv, col):
+    """The bordered system of neighbour set ``sel`` (positions = order of ``sel``) into
+    ``amat`` and its inverse into ``binv``: LU with partial pivoting of a copy ``a``, then
+    the inverse from the factors. Returns False when the system is singular."""
+    # pragma: no cover - compiled
     n1 = k + 1
     for i in range(k):
-        a[i, i] = 0.0
+        amat[i, i] = 0.0
         for j in range(i + 1, k):
             g = _pair_gamma_nb(dxy, sel[i], sel[j], nugget, kinds, psills, ranges)
-            a[i, j] = g
-            a[j, i] = g
-        a[i, k] = 1.0
-        a[k, i] = 1.0
-    a[k, k] = 0.0
+            amat[i, j] = g
+            amat[j, i] = g
+        amat[i, k] = 1.0
+        amat[k, i] = 1.0
+    amat[k, k] = 0.0
+    for i in range(n1):
+        for j in range(n1):
+            a[i, j] = amat[i, j]
     piv = np.empty(n1, dtype=np.int64)
     for c in range(n1):
         p = c
@@ -574,7 +577,8 @@ def _fresh_inverse(dxy, sel, k, nugget, kinds, psills, ranges, a, binv, col):
     return True
 
 
-def _replace_point(dxy, binv, pos, i, q, k, nugget, kinds, psills, ranges, delta, u, v):
+def _replace_point(dxy, amat, binv, pos, i, q, k, nugget, kinds, psills, ranges, delta, u,
+                   v):
     """Replace the datum at position ``i`` by datum ``q`` in the inverse ``binv`` of a
     bordered system, by the Woodbury identity for the symmetric rank-2 change
     A' = A + δ e_iᵀ + e_i δᵀ (Hager 1989, SIAM Review 31(2):221-239). Returns False when
@@ -586,9 +590,14 @@ def _replace_point(dxy, binv, pos, i, q, k, nugget, kinds, psills, ranges, delta
             delta[j] = 0.0
         else:
             qj = pos[j]
-            delta[j] = (_pair_gamma_nb(dxy, q, qj, nugget, kinds, psills, ranges)
-                        - _pair_gamma_nb(dxy, p, qj, nugget, kinds, psills, ranges))
+            g_new = _pair_gamma_nb(dxy, q, qj, nugget, kinds, psills, ranges)
+            delta[j] = g_new - _pair_gamma_nb(dxy, p, qj, nugget, kinds, psills, ranges)
+            u[j] = g_new  # (u is free until below)
     delta[k] = 0.0
+    for j in range(k):
+        if j != i:
+            amat[i, j] = u[j]
+            amat[j, i] = u[j]
     for a_ in range(n1):
         u[a_] = 0.0
     for j in range(n1):
@@ -628,6 +637,7 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
     target's γ0."""
     n1 = k + 1
     binv = np.empty((cap, n1, n1))
+    amat = np.empty((cap, n1, n1))  # the systems themselves, for iterative refinement
     pos = np.empty((cap, k), dtype=np.int64)  # datum at each position of a cached system
     srt = np.empty((cap, k), dtype=np.int64)  # the same set, sorted (for matching)
     keys = np.empty(cap, dtype=np.int64)
@@ -761,6 +771,7 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
                 if parent >= 0:
                     if parent != slot:
                         binv[slot, :, :] = binv[parent]
+                        amat[slot, :, :] = amat[parent]
                         for i in range(k):
                             pos[slot, i] = pos[parent, i]
                     d0 = depth[parent]
@@ -769,8 +780,9 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
                         at = 0
                         while pos[slot, at] != gone[r]:
                             at += 1
-                        if not _replace_point_nb(dxy, binv[slot], pos[slot], at, came[r], k,
-                                                 nugget, kinds, psills, ranges, delta, u, v):
+                        if not _replace_point_nb(dxy, amat[slot], binv[slot], pos[slot], at,
+                                                 came[r], k, nugget, kinds, psills, ranges,
+                                                 delta, u, v):
                             ok = False
                             break
                     depth[slot] = d0 + ng
@@ -780,8 +792,8 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
                 if not ok:
                     for i in range(k):
                         pos[slot, i] = sel[i]
-                    ok = _fresh_inverse_nb(dxy, sel, k, nugget, kinds, psills, ranges, a,
-                                           binv[slot], col)
+                    ok = _fresh_inverse_nb(dxy, sel, k, nugget, kinds, psills, ranges,
+                                           amat[slot], a, binv[slot], col)
                     depth[slot] = 0
                 good[slot] = ok
             last = slot
@@ -799,12 +811,27 @@ def _kernel_py(dxy, z, tx, ty, bounds, cand, cand_bounds, k, nugget, kinds, psil
             for i in range(n1):
                 w[i] = 0.0
             bm = binv[slot]
+            am = amat[slot]
             for j in range(n1):  # w = B b, row by row (B is symmetric)
                 bj = b[j]
                 if bj != 0.0:
                     row = bm[j]
                     for i in range(n1):
                         w[i] += bj * row[i]
+            # one step of iterative refinement with the system itself: r = b - A w,
+            # w += B r (keeps the accuracy of a fresh solve after many replacements)
+            for i in range(n1):
+                col[i] = b[i]
+            for j in range(n1):
+                wj = w[j]
+                row = am[j]
+                for i in range(n1):
+                    col[i] -= wj * row[i]
+            for j in range(n1):
+                rj = col[j]
+                row = bm[j]
+                for i in range(n1):
+                    w[i] += rj * row[i]
             e = 0.0
             for j in range(k):
                 e += w[j] * z[pos[slot, j]]

@@ -77,14 +77,19 @@ def test_tile_size_changes_nothing_but_rounding():
 def test_pipeline_on_dask_equals_single_process(cluster, demo_run):
     import aquitardmap
 
-    settings = replace(demo_run.inputs.project.compute, mode="dask",
-                       scheduler=cluster.scheduler_address)
-    res = aquitardmap.run(demo_run.inputs.project.root, None, compute=settings)
-    for name, s in demo_run.surfaces.items():
-        assert np.array_equal(s.thickness_m, res.surfaces[name].thickness_m, equal_nan=True)
-        assert np.array_equal(s.sd_m, res.surfaces[name].sd_m, equal_nan=True)
-    assert res.summary["compute"]["mode"] == "dask"
-    assert res.summary["compute"]["workers"] == 2
+    root = demo_run.inputs.project.root
+    single = replace(demo_run.inputs.project.compute, tile_cells=4096)  # several tiles
+    on_dask = replace(single, mode="dask", scheduler=cluster.scheduler_address)
+    a = aquitardmap.run(root, None, compute=single)
+    b = aquitardmap.run(root, None, compute=on_dask)
+    for name, s in a.surfaces.items():
+        assert np.array_equal(s.thickness_m, b.surfaces[name].thickness_m, equal_nan=True)
+        assert np.array_equal(s.sd_m, b.surfaces[name].sd_m, equal_nan=True)
+        assert np.allclose(s.thickness_m, demo_run.surfaces[name].thickness_m, rtol=1e-9,
+                           atol=1e-9, equal_nan=True)  # other tiles: the same to rounding
+    assert np.array_equal(a.p_thin, b.p_thin, equal_nan=True)
+    assert b.summary["compute"]["mode"] == "dask"
+    assert b.summary["compute"]["workers"] == 2
     assert demo_run.summary["compute"]["mode"] == "single"
     assert set(demo_run.summary["run"]["stage_seconds"]) == {"inputs", "surfaces",
                                                              "hydraulics", "zones"}
