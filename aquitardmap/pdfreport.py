@@ -25,7 +25,6 @@ import os
 import textwrap
 import uuid
 from dataclasses import fields
-from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -49,12 +48,14 @@ from aquitardmap.presentation import (
     ZONE_COLOURS,
     ZONE_OTHER_COLOUR,
     GridStyle,
+    finite_float,
     fmt_area,
     fmt_percent,
     fmt_sig,
     fmt_threshold,
     fmt_years,
     hole_category_of,
+    run_date,
     thresholds,
     zone_labels,
 )
@@ -114,24 +115,6 @@ def _wrap(text: str, width: int) -> str:
     return "\n".join(textwrap.fill(p, width) if p else "" for p in text.split("\n"))
 
 
-def _run_date(started: str) -> str:
-    try:
-        when = datetime.fromisoformat(started.replace("Z", "+00:00"))
-    except ValueError:
-        return started
-    if when.tzinfo is not None:
-        when = when.astimezone(UTC)
-    return when.strftime("%Y-%m-%d %H:%M UTC")
-
-
-def _float(value: Any) -> float | None:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return None
-    return out if math.isfinite(out) else None
-
-
 # --------------------------------------------------------------------------- page frame
 
 
@@ -146,7 +129,7 @@ class _Pages:
         run = section(summary, "run")
         self.name = _plain(str(project.get("name") or "").strip() or "Aquitard screening")
         started = str(run.get("started_utc") or "").strip()
-        self.when = _run_date(started) if started else ""
+        self.when = run_date(started) if started else ""
         caution = str(summary.get("caution") or "").strip() or outputs.CAUTION
         if outputs.CAUTION not in caution:
             caution = f"{caution} {outputs.CAUTION}"
@@ -260,9 +243,9 @@ def _title_page(pages: _Pages, run_dir: Path) -> None:
     if project.get("crs"):
         facts.append(f"Coordinate system: {_plain(project.get('crs'))}")
     if grid:
-        facts.append(f"Grid: {fmt_sig(_float(grid.get('cell_size_m')), 3)} m cells, "
+        facts.append(f"Grid: {fmt_sig(finite_float(grid.get('cell_size_m')), 3)} m cells, "
                      f"{grid.get('cells_in_study_area', 'n/a')} cells in a study area of "
-                     f"{fmt_sig(_float(grid.get('study_area_km2')), 3)} km²")
+                     f"{fmt_sig(finite_float(grid.get('study_area_km2')), 3)} km²")
     version = _plain(run.get("package_version") or __version__)
     facts.append(f"Run: {pages.when or 'n/a'}, aquitardmap {version}")
     flow.para("\n".join(facts), size=9, width=105)
@@ -281,16 +264,16 @@ def _title_page(pages: _Pages, run_dir: Path) -> None:
     zones = section(s, "zones")
     areas = zones.get("area_m2_by_kind") if isinstance(zones.get("area_m2_by_kind"), dict) else {}
     n_by = zones.get("count_by_kind") if isinstance(zones.get("count_by_kind"), dict) else {}
-    rows = [[labels[k], str(n_by.get(k, "n/a")), fmt_area(_float(areas.get(k)))]
+    rows = [[labels[k], str(n_by.get(k, "n/a")), fmt_area(finite_float(areas.get(k)))]
             for k in ("window", "thin", "fast")]
     flow.table(rows, ["Flagged zone kind (threshold)", "Zones", "Area"], [0.64, 0.12, 0.24],
                fontsize=8.5)
     thick = section(s, "aquitard_thickness_m")
     if thick:
         thin = t["thin_thickness_m"]
-        flow.para(f"Kriged total clay thickness: {fmt_sig(_float(thick.get('min')))} to "
-                  f"{fmt_sig(_float(thick.get('max')))} m, mean "
-                  f"{fmt_sig(_float(thick.get('mean')))} m."
+        flow.para(f"Kriged total clay thickness: {fmt_sig(finite_float(thick.get('min')))} to "
+                  f"{fmt_sig(finite_float(thick.get('max')))} m, mean "
+                  f"{fmt_sig(finite_float(thick.get('mean')))} m."
                   + (f" Thin means under {fmt_threshold(thin)} m of clay." if thin else "")
                   + " The thresholds are screening choices set in project.toml, not "
                   "regulatory values.", width=110)
@@ -522,10 +505,10 @@ def _variogram_page(pages: _Pages, run_dir: Path) -> None:
                                                         dict) else {}
         label = "Total clay" if name == "aquitard" else _plain(name)
         rows.append([label, str(surf.get("n_full", "")), str(surf.get("n_lower_bounds", "")),
-                     fmt_sig(_float(cv.get("mean_error")), 2),
-                     fmt_sig(_float(cv.get("rmse")), 3),
-                     fmt_sig(_float(cv.get("mean_standardised_error")), 2),
-                     fmt_sig(_float(cv.get("variance_standardised_error")), 2)])
+                     fmt_sig(finite_float(cv.get("mean_error")), 2),
+                     fmt_sig(finite_float(cv.get("rmse")), 3),
+                     fmt_sig(finite_float(cv.get("mean_standardised_error")), 2),
+                     fmt_sig(finite_float(cv.get("variance_standardised_error")), 2)])
     flow.table(rows, ["Surface", "Full holes", "Lower bounds", "Mean error (m)", "RMSE (m)",
                       "Mean std. error", "Var. std. error"],
                [0.16, 0.11, 0.13, 0.15, 0.13, 0.16, 0.16], fontsize=7.5)
@@ -556,17 +539,17 @@ def _zone_pages(pages: _Pages, run_dir: Path) -> None:
         order = {"window": 0, "thin": 1, "fast": 2}
         recs = zones.drop(columns="geometry").to_dict("records")
         recs.sort(key=lambda r: (order.get(str(r.get("kind")).lower(), 3),
-                                 -(_float(r.get("area_m2")) or 0.0)))
+                                 -(finite_float(r.get("area_m2")) or 0.0)))
         for i, r in enumerate(recs, start=1):
             kind = str(r.get("kind") or "").lower()
-            n_holes = _float(r.get("n_boreholes"))
+            n_holes = finite_float(r.get("n_boreholes"))
             rows.append([str(i), _plain(labels.get(kind, kind).split(" (")[0].split(":")[0]),
-                         fmt_area(_float(r.get("area_m2"))),
-                         fmt_sig(_float(r.get("mean_thickness_m")), 2),
-                         fmt_sig(_float(r.get("min_thickness_m")), 2),
-                         fmt_sig(_float(r.get("mean_sd_m")), 2),
-                         fmt_percent(_float(r.get("mean_p_thin"))),
-                         fmt_years(_float(r.get("mean_travel_time_yr"))),
+                         fmt_area(finite_float(r.get("area_m2"))),
+                         fmt_sig(finite_float(r.get("mean_thickness_m")), 2),
+                         fmt_sig(finite_float(r.get("min_thickness_m")), 2),
+                         fmt_sig(finite_float(r.get("mean_sd_m")), 2),
+                         fmt_percent(finite_float(r.get("mean_p_thin"))),
+                         fmt_years(finite_float(r.get("mean_travel_time_yr"))),
                          "" if n_holes is None else str(int(n_holes))])
     header = ["#", "Kind", "Area", "Clay, mean (m)", "least (m)", "SD (m)", "P(thin)",
               "Travel time", "Holes"]
@@ -617,8 +600,9 @@ def _parameter_pages(pages: _Pages, run_dir: Path) -> None:
         n_used, n_all = u.get("n_used"), u.get("n_samples")
         samples = f"{n_used} of {n_all}" if n_used is not None and n_all is not None else ""
         rows.append([_plain(u.get("code")), _plain(u.get("name")), _plain(u.get("role")),
-                     fmt_sig(_float(u.get("effective_porosity")), 2),
-                     fmt_sig(_float(u.get("k_m_s")), 2), fmt_sig(_float(u.get("kv_m_s")), 2),
+                     fmt_sig(finite_float(u.get("effective_porosity")), 2),
+                     fmt_sig(finite_float(u.get("k_m_s")), 2),
+                     fmt_sig(finite_float(u.get("kv_m_s")), 2),
                      _plain(u.get("k_source") or "default"), samples])
     flow.table(rows, ["Code", "Name", "Role", "nₑ", "K (m/s)", "Kv (m/s)", "K source",
                       "Samples used"], [0.08, 0.27, 0.1, 0.07, 0.11, 0.11, 0.14, 0.12],

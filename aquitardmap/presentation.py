@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from datetime import UTC, datetime
 from typing import Any
 
 from aquitardmap import outputs
@@ -103,7 +104,9 @@ def fmt_threshold(value: float) -> str:
     return f"{value:g}"
 
 
-def _float(value: Any) -> float | None:
+def finite_float(value: Any) -> float | None:
+    """``value`` as a finite float, or None when it is missing, not a number or not finite
+    (values read back from summary.json and GeoPackage columns)."""
     try:
         out = float(value)
     except (TypeError, ValueError):
@@ -111,10 +114,21 @@ def _float(value: Any) -> float | None:
     return out if math.isfinite(out) else None
 
 
+def run_date(started_utc: str) -> str:
+    """An ISO 8601 time as 'YYYY-MM-DD HH:MM UTC'; text that is not ISO 8601 is kept."""
+    try:
+        when = datetime.fromisoformat(started_utc.replace("Z", "+00:00"))
+    except ValueError:
+        return started_utc
+    if when.tzinfo is not None:
+        when = when.astimezone(UTC)
+    return when.strftime("%Y-%m-%d %H:%M UTC")
+
+
 def thresholds(summary: dict[str, Any]) -> dict[str, float | None]:
     """Screening thresholds from the summary (None where missing)."""
     t = summary.get("thresholds") if isinstance(summary.get("thresholds"), dict) else {}
-    return {k: _float(t.get(k)) for k in ("window_thickness_m", "thin_thickness_m",
+    return {k: finite_float(t.get(k)) for k in ("window_thickness_m", "thin_thickness_m",
                                          "fast_travel_time_yr")}
 
 

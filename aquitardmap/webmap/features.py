@@ -5,7 +5,6 @@ handed to the page is escaped HTML built here."""
 from __future__ import annotations
 
 import json
-import math
 from typing import Any
 
 import folium
@@ -22,6 +21,7 @@ from aquitardmap.presentation import (
     HOLE_STYLES,
     ZONE_COLOURS,
     ZONE_OTHER_COLOUR,
+    finite_float,
     fmt_area,
     fmt_m,
     fmt_percent,
@@ -46,14 +46,6 @@ def _missing(value: Any) -> bool:
 def _text(value: Any) -> str:
     """A column value as plain (unescaped) text; missing is ''."""
     return "" if _missing(value) else str(value).strip()
-
-
-def _float(value: Any) -> float | None:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return None
-    return out if math.isfinite(out) else None
 
 
 def _column(gdf: gpd.GeoDataFrame, name: str) -> list[Any]:
@@ -81,21 +73,21 @@ def zone_tooltip(row: dict[str, Any], labels: dict[str, str]) -> str:
     """Tooltip HTML of one zone: kind, area, probability, thickness, reason."""
     kind = _text(row.get("kind")).lower()
     label = esc(labels.get(kind, f"Zone ({_text(row.get('kind')) or 'unspecified'})"))
-    lines = [f"<b>{label}</b>", f"Area: {fmt_area(_float(row.get('area_m2')))}"]
-    p_thin = _float(row.get("mean_p_thin"))
+    lines = [f"<b>{label}</b>", f"Area: {fmt_area(finite_float(row.get('area_m2')))}"]
+    p_thin = finite_float(row.get("mean_p_thin"))
     if p_thin is not None:
         lines.append(f"Chance the clay is thin (mean over the zone): {fmt_percent(p_thin)}")
-    p_window = _float(row.get("mean_p_window"))
+    p_window = finite_float(row.get("mean_p_window"))
     if p_window is not None:
         lines.append(f"Chance the clay is absent (mean over the zone): "
                      f"{fmt_percent(p_window)}")
-    lines.append(f"Clay thickness: mean {fmt_m(_float(row.get('mean_thickness_m')))}, least "
-                 f"{fmt_m(_float(row.get('min_thickness_m')))}, uncertainty ± "
-                 f"{fmt_m(_float(row.get('mean_sd_m')))}")
-    travel = _float(row.get("mean_travel_time_yr"))
+    lines.append(f"Clay thickness: mean {fmt_m(finite_float(row.get('mean_thickness_m')))}, least "
+                 f"{fmt_m(finite_float(row.get('min_thickness_m')))}, uncertainty ± "
+                 f"{fmt_m(finite_float(row.get('mean_sd_m')))}")
+    travel = finite_float(row.get("mean_travel_time_yr"))
     if travel is not None:
         lines.append(f"Travel time to the aquifer (mean): {fmt_years(travel)}")
-    n = _float(row.get("n_boreholes"))
+    n = finite_float(row.get("n_boreholes"))
     lines.append(f"Boreholes inside: {'n/a' if n is None else int(n)}")
     reason = _text(row.get("reason"))
     if reason:
@@ -137,7 +129,7 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
     )
     legend = []
     kinds = [p["kind"] for p in props]
-    areas = [_float(r.get("area_m2")) or 0.0 for r in rows]
+    areas = [finite_float(r.get("area_m2")) or 0.0 for r in rows]
     for k, colour in ZONE_COLOURS.items():
         n = kinds.count(k)
         area = sum(a for kk, a in zip(kinds, areas, strict=True) if kk == k)
@@ -192,15 +184,15 @@ def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
         what = ("Excluded from the estimates" if truthy(row.get("excluded"))
                 else "Suspicious: QA-flagged")
     facts = [
-        f"Clay (aquitard) thickness: <b>{_thickness_text(status, _float(row.get('aquitard_thickness_m')), category)}</b>",  # noqa: E501
+        f"Clay (aquitard) thickness: <b>{_thickness_text(status, finite_float(row.get('aquitard_thickness_m')), category)}</b>",  # noqa: E501
     ]
-    depth_aq = _float(row.get("depth_to_aquifer_m"))
+    depth_aq = finite_float(row.get("depth_to_aquifer_m"))
     facts.append("Reached the aquifer: " + (
         f"yes, at {depth_aq:.1f} m" if reached and depth_aq is not None
         else "yes" if reached else "no"))
-    facts.append(f"Ground elevation: {fmt_m(_float(row.get('ground_elev_m')))}")
-    facts.append(f"Drilled depth: {fmt_m(_float(row.get('total_depth_m')))}")
-    misfit = _float(row.get("dem_misfit_m"))
+    facts.append(f"Ground elevation: {fmt_m(finite_float(row.get('ground_elev_m')))}")
+    facts.append(f"Drilled depth: {fmt_m(finite_float(row.get('total_depth_m')))}")
+    misfit = finite_float(row.get("dem_misfit_m"))
     if misfit is not None:
         facts.append(f"Collar minus DEM: {misfit:+.1f} m")
     if truthy(row.get("pierces_aquitard")):
@@ -213,7 +205,7 @@ def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
         facts.append('<span class="aqm-flag">Not used in the estimates.</span>')
     log_text = _text(row.get("log"))
     svg = strip_log_svg(parse_log(log_text), colours,
-                        total_depth_m=_float(row.get("total_depth_m")),
+                        total_depth_m=finite_float(row.get("total_depth_m")),
                         reached_aquifer=reached, title=f"Log of borehole {hole_id}")
     return (f'<div class="aqm-popup"><div class="aqm-popup-title">{esc(hole_id)}</div>'
             f'<div class="aqm-popup-what">{esc(what)}</div>'
@@ -267,7 +259,7 @@ def suggested_holes_layer(gdf: gpd.GeoDataFrame) -> folium.GeoJson:
     props = []
     for row in gdf.drop(columns="geometry").to_dict("records"):
         rank = esc(_text(row.get("rank")))
-        red = _float(row.get("expected_reduction_m2"))
+        red = finite_float(row.get("expected_reduction_m2"))
         gain = f": expected to settle {esc(fmt_area(red))}" if red is not None else ""
         props.append({"tooltip_html": f"<b>Suggested hole {rank}</b>{gain}",
                       "popup_html": f"<b>Suggested hole {rank}</b><br>"

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import base64
 import math
-from datetime import UTC, datetime
 from importlib.resources import files
 from typing import Any
 
@@ -23,6 +22,7 @@ from aquitardmap.presentation import (
     UNCERTAINTY,
     GridStyle,
     fmt_threshold,
+    run_date,
     thresholds,
 )
 from aquitardmap.runfolder import GridData, section
@@ -36,17 +36,6 @@ MAIN_GROUPS = (PROTECTION, UNCERTAINTY)
 def static_text(name: str) -> str:
     """A file shipped beside this module (``page.css``, ``page.js``)."""
     return files("aquitardmap.webmap").joinpath(name).read_text(encoding="utf-8")
-
-
-def run_date(started_utc: str) -> str:
-    """An ISO 8601 time as 'YYYY-MM-DD HH:MM UTC'; text that is not ISO 8601 is kept."""
-    try:
-        when = datetime.fromisoformat(started_utc.replace("Z", "+00:00"))
-    except ValueError:
-        return started_utc
-    if when.tzinfo is not None:
-        when = when.astimezone(UTC)
-    return when.strftime("%Y-%m-%d %H:%M UTC")
 
 
 def crs_label(crs: CRS | None) -> str:
