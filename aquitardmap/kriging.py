@@ -1,4 +1,5 @@
-"""Ordinary kriging of point data onto points or a grid, with its variance.
+"""Ordinary kriging of point data onto points or a grid, with its variance (and kriging with
+an external drift, for weights reused over many value vectors: :func:`kriging_weights`).
 
 Ordinary kriging as in Isaaks & Srivastava (1989, ch. 12), with a moving neighbourhood: each
 target uses its nearest ``max_neighbours`` data (all data when there are fewer), which
@@ -202,7 +203,9 @@ class KrigingWeights:
 
 def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
                     xt_m: np.ndarray, yt_m: np.ndarray, *, max_neighbours: int = 64,
-                    exclude_coincident: bool = False, chunk: int = 1024) -> KrigingWeights:
+                    exclude_coincident: bool = False, chunk: int = 1024,
+                    drift: np.ndarray | None = None, target_drift: np.ndarray | None = None
+                    ) -> KrigingWeights:
     """Ordinary kriging weights and variances at targets from data locations alone.
 
     The system is the ordinary kriging system in variogram form (Isaaks & Srivastava 1989,
@@ -212,6 +215,18 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
     target's own location is left out (leave-one-out cross-validation at data points).
     Weights do not depend on the data values, so one set serves many value vectors (e.g.
     draws of censored data).
+
+    With ``drift`` (a value per datum, e.g. ground elevation) and ``target_drift`` (a value
+    per target), the weights are those of kriging with an external drift: the local mean
+    is ``a + b·f(x)`` with ``a`` and ``b`` unknown in each neighbourhood, and the system
+    gains the constraint ``Σλᵢ fᵢ = f₀`` (Wackernagel 2003, *Multivariate Geostatistics*,
+    3rd ed., the chapter on external drift, from memory; Hengl et al. 2007, Computers &
+    Geosciences 33:1301–1315), ``[Γ 1 f; 1ᵀ 0 0; fᵀ 0 0][λ; μ₀; μ₁] =
+    [γ₀; 1; f₀]``, variance ``λᵀγ₀ + μ₀ + μ₁f₀``; ``model`` is then the variogram of the
+    residual from the drift. A neighbourhood whose drift values are all equal cannot
+    estimate ``b``; its target gets the ordinary kriging weights. The drift is centred and
+    scaled by the data's mean and SD first (the weights are invariant to that, given
+    ``Σλᵢ = 1``), which keeps the system well conditioned.
     """
     from scipy.spatial import cKDTree
 
@@ -236,6 +251,18 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
         on_target = d[:, 0] <= 1e-9
         d = np.where(on_target[:, None], d[:, 1:], d[:, :-1])
         idx = np.where(on_target[:, None], idx[:, 1:], idx[:, :-1])
+    f = ft = None
+    if drift is not None:
+        if target_drift is None:
+            raise ValueError("kriging with an external drift needs its value at the targets")
+        f = np.asarray(drift, float).ravel()
+        ft = np.asarray(target_drift, float).ravel()
+        if f.size != n or ft.size != tx.size:
+            raise ValueError("one drift value per datum and per target is needed")
+        if not (np.all(np.isfinite(f)) and np.all(np.isfinite(ft))):
+            raise ValueError("the external drift has missing values at data or targets")
+        centre, scale = float(f.mean()), float(f.std()) or 1.0
+        f, ft = (f - centre) / scale, (ft - centre) / scale
     weights = np.empty((tx.size, k))
     variance = np.empty(tx.size)
     # Semivariances between data: one matrix looked up when it is small enough.
@@ -259,6 +286,39 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
             sol = np.linalg.solve(a, b[..., None])[..., 0]
         except np.linalg.LinAlgError:  # coincident data or a degenerate model
             sol = np.einsum("tij,tj->ti", np.linalg.pinv(a), b)
+        if f is not None:
+            sol, b = _with_external_drift(a, b, sol, f[ii], ft[sl])
         weights[sl] = sol[:, :k]
         variance[sl] = np.einsum("ti,ti->t", sol, b)
     return KrigingWeights(idx, weights, np.maximum(variance, 0.0))
+
+
+#: Spread of the (scaled) drift within a neighbourhood below which it cannot be estimated.
+DRIFT_SPREAD_MIN = 1e-6
+
+
+def _with_external_drift(a_ok: np.ndarray, b_ok: np.ndarray, sol_ok: np.ndarray,
+                         f_nb: np.ndarray, f_target: np.ndarray
+                         ) -> tuple[np.ndarray, np.ndarray]:
+    """Extend ordinary kriging systems (t, k+1, k+1) by the external-drift row and column
+    and solve them; rows whose neighbours' drift is constant keep the ordinary solution
+    (padded with a zero multiplier). Returns (solution, right-hand side), both (t, k+2)."""
+    t, k1, _ = a_ok.shape
+    k = k1 - 1
+    a = np.zeros((t, k + 2, k + 2))
+    a[:, :k1, :k1] = a_ok
+    a[:, :k, k + 1] = f_nb
+    a[:, k + 1, :k] = f_nb
+    b = np.zeros((t, k + 2))
+    b[:, :k1] = b_ok
+    b[:, k + 1] = f_target
+    sol = np.zeros((t, k + 2))
+    sol[:, :k1] = sol_ok
+    ok = np.ptp(f_nb, axis=1) > DRIFT_SPREAD_MIN
+    if ok.any():
+        try:
+            sol[ok] = np.linalg.solve(a[ok], b[ok][..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            sol[ok] = np.einsum("tij,tj->ti", np.linalg.pinv(a[ok]), b[ok])
+    b[~ok, k + 1] = 0.0  # ordinary rows: no drift term in the variance
+    return sol, b

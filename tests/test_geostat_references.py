@@ -87,6 +87,38 @@ def test_kriging_equals_gstools_to_1e8(m):
     assert np.allclose(r.variance, var, rtol=1e-8, atol=0)
 
 
+@pytest.mark.parametrize("m", MODELS, ids=lambda m: f"{m.model}+{m.model2 or '-'}"
+                         f"-ratio{m.anisotropy_ratio:g}")
+def test_external_drift_kriging_equals_gstools_to_1e8(m):
+    # Reference: gstools.krige.ExtDrift (kriging with an external drift), all data in the
+    # system, the drift a smooth "ground elevation" known at data and targets.
+    x, y, z, xt, yt = _data()
+    ground = 50.0 + 0.004 * x - 0.002 * y + 3.0 * np.sin(x / 400.0)
+    ground_t = 50.0 + 0.004 * xt - 0.002 * yt + 3.0 * np.sin(xt / 400.0)
+    zd = z - 0.8 * ground
+    krig = gs.krige.ExtDrift(_gs_model(m), [x, y], zd, ext_drift=ground, exact=False)
+    est, var = krig([xt, yt], mesh_type="unstructured", ext_drift=ground_t, return_var=True)
+    w = kriging_weights(x, y, m, xt, yt, max_neighbours=100, drift=ground,
+                        target_drift=ground_t)
+    assert np.allclose(w.apply(zd), est, rtol=1e-8, atol=0)
+    assert np.allclose(w.variance, var, rtol=1e-8, atol=0)
+    # The weights honour both unbiasedness conditions (definition of the method).
+    assert np.allclose(w.weights.sum(axis=1), 1.0)
+    assert np.allclose(np.einsum("tk,tk->t", w.weights, ground[w.index]), ground_t)
+
+
+def test_external_drift_with_a_flat_neighbourhood_falls_back_to_ordinary_kriging():
+    # A drift that does not vary among the neighbours cannot be estimated (common
+    # practice): those targets get the ordinary kriging weights and variance.
+    m = MODELS[0]
+    x, y, z, xt, yt = _data()
+    ok = kriging_weights(x, y, m, xt, yt, max_neighbours=100)
+    flat = kriging_weights(x, y, m, xt, yt, max_neighbours=100, drift=np.full(x.size, 60.0),
+                           target_drift=np.full(xt.size, 61.0))
+    assert np.allclose(flat.weights, ok.weights, rtol=1e-12)
+    assert np.allclose(flat.variance, ok.variance, rtol=1e-12)
+
+
 @pytest.mark.parametrize("m", MODELS[:3], ids=lambda m: m.model)
 def test_weights_equal_pykrige_moving_neighbourhood(m):
     # Reference: pykrige's compiled moving-window solver (n_closest_points) behind
