@@ -13,7 +13,7 @@ import time
 import warnings
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -29,9 +29,10 @@ from shapely.ops import unary_union
 from aquitardmap import __version__, outputs, tilecache
 from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
+from aquitardmap.drift import choose_drift
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.figures import variogram_figure
-from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
+from aquitardmap.grid import Grid, make_grid, resample_to_grid, snapped_bounds, write_raster
 from aquitardmap.hazards import (
     annotate_zones,
     hazard_table,
@@ -422,7 +423,7 @@ def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
 def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
                                 hyd: Hydraulics) -> ThicknessProbabilities:
     """Stage 4a: P(window) and P(thin) of the protective aquitard thickness on the grid
-    (:mod:`aquitardmap.probability`), with the total thickness's variogram.
+    (:func:`aquitard_probabilities`).
 
     Where hazards (or a non-protective weathered crust) cut the column, the protective
     thickness is max(0, T − c), with c the depth the hazard removes below the top of the
@@ -431,7 +432,6 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
     """
     p = inputs.project
     th = p.screening
-    total = surfaces["aquitard"]
     cut = np.zeros(inputs.grid.mask.shape)
     if hyd.hazard_removed_m is not None:
         cover = sum((np.nan_to_num(surfaces[u.code].thickness_m) for u in p.column_units
@@ -439,15 +439,37 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
         cut = np.maximum(np.nan_to_num(hyd.hazard_removed_m) - cover, 0.0)
     if p.hydraulics.crust_treatment == "not_protective":
         cut = cut + p.hydraulics.crust_depth_m
+    return aquitard_probabilities(inputs, surfaces["aquitard"],
+                                  {"window": th.window_thickness_m + cut,
+                                   "thin": th.thin_thickness_m + cut})
+
+
+def aquitard_probabilities(inputs: Inputs, total: Surface,
+                           thresholds_m: dict[str, float | np.ndarray]
+                           ) -> ThicknessProbabilities:
+    """P(total aquitard thickness < threshold) grids (:mod:`aquitardmap.probability`), with
+    the ground elevation as an external drift when ``[kriging] external_drift`` and the
+    cross-validation say so (:mod:`aquitardmap.drift`); otherwise with the total thickness's
+    variogram. The variance level comes from the cross-validation of the model used."""
+    p = inputs.project
+    th = p.screening
     used = inputs.columns[~inputs.columns["excluded"]]
-    return thickness_probabilities(
-        used["x"].to_numpy(float), used["y"].to_numpy(float),
-        used["aquitard_thickness_m"].to_numpy(float), used["status_aquitard"].to_numpy(),
-        total.variogram, inputs.grid,
-        {"window": th.window_thickness_m + cut, "thin": th.thin_thickness_m + cut},
-        max_neighbours=p.kriging.max_neighbours, n_draws=th.probability_draws,
-        seed=th.probability_seed,
-        variance_scale=cv_variance_scale(total.cv) if th.probability_variance_from_cv else 1.0)
+    x, y = used["x"].to_numpy(float), used["y"].to_numpy(float)
+    t, status = used["aquitard_thickness_m"].to_numpy(float), used["status_aquitard"].to_numpy()
+    ground = used["dem_elev_m"].to_numpy(float)
+    dem_path = p.file("dem")
+    grid_ground = resample_to_grid(dem_path, inputs.grid) if dem_path is not None else None
+    drift = choose_drift(x, y, t, status, ground, grid_ground, inputs.grid, p.kriging,
+                         total.variogram)
+    model, cv = (drift.model, drift.cv_drift) if drift.used else (total.variogram, total.cv)
+    probs = thickness_probabilities(
+        x, y, t, status, model, inputs.grid, thresholds_m,
+        max_neighbours=drift.max_neighbours if drift.used else p.kriging.max_neighbours,
+        n_draws=th.probability_draws, seed=th.probability_seed,
+        variance_scale=cv_variance_scale(cv) if th.probability_variance_from_cv else 1.0,
+        drift=ground if drift.used else None,
+        grid_drift=grid_ground if drift.used else None)
+    return replace(probs, drift=drift.as_dict())
 
 
 def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:

@@ -84,6 +84,8 @@ class CensoredData:
         cx_m, cy_m: holes that give an inequality.
         low_m, high_m: the interval of each inequality (``-inf``/``inf`` when open, m).
         notes: what was merged or dropped, in plain words.
+        drift, c_drift: the external drift (ground elevation, m) at the equality and the
+            inequality data; empty when there is no drift.
     """
 
     x_m: np.ndarray
@@ -94,6 +96,18 @@ class CensoredData:
     low_m: np.ndarray
     high_m: np.ndarray
     notes: list[str] = field(default_factory=list)
+    drift: np.ndarray = field(default_factory=lambda: np.empty(0))
+    c_drift: np.ndarray = field(default_factory=lambda: np.empty(0))
+
+    @property
+    def has_drift(self) -> bool:
+        """Whether the data carry an external drift."""
+        return self.drift.size + self.c_drift.size > 0
+
+    @property
+    def all_drift(self) -> np.ndarray:
+        """Drift at all data, equalities first (as in :func:`gibbs_draws`)."""
+        return np.concatenate([self.drift, self.c_drift])
 
     @property
     def n_absent(self) -> int:
@@ -106,24 +120,31 @@ class CensoredData:
 
 
 def censored_data(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
-                  status: np.ndarray) -> CensoredData:
+                  status: np.ndarray, drift: np.ndarray | None = None) -> CensoredData:
     """Sort borehole thicknesses into equality and inequality data of the latent thickness.
 
     ``status`` is ``"full"``, ``"lower_bound"`` or ``"unknown"`` per hole (as in
     :func:`aquitardmap.logs.column_table`). Full holes at one location are averaged; an
     inequality at the location of an equality datum is dropped (the full thickness says
-    more), and of several inequalities at one location the tightest is kept.
+    more), and of several inequalities at one location the tightest is kept. ``drift`` (an
+    external drift per hole, e.g. ground elevation) is carried along, averaged where holes
+    are merged.
     """
     x, y, t = (np.asarray(a, dtype=float) for a in (x_m, y_m, thickness_m))
+    f = None if drift is None else np.asarray(drift, dtype=float)
     status = np.asarray(status)
     notes: list[str] = []
     full = status == "full"
     fx, fy, ft = merge_coincident(x[full], y[full], t[full], COINCIDENT_M)
+    ff = (merge_coincident(x[full], y[full], f[full], COINCIDENT_M)[2] if f is not None
+          else np.empty(0))
     pos = ft > 0
     ex, ey, ev = fx[pos], fy[pos], ft[pos]
     # Inequalities: windows (Z <= 0) then partial holes (Z >= bound).
     cx = np.concatenate([fx[~pos], x[status == "lower_bound"]])
     cy = np.concatenate([fy[~pos], y[status == "lower_bound"]])
+    cf = (np.concatenate([ff[~pos], f[status == "lower_bound"]]) if f is not None
+          else np.empty(0))
     low = np.concatenate([np.full(int((~pos).sum()), -np.inf),
                           t[status == "lower_bound"]])
     high = np.concatenate([np.zeros(int((~pos).sum())),
@@ -155,7 +176,9 @@ def censored_data(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                 notes.append(f"contradictory logs at ({cx[members[0]]:.1f}, "
                              f"{cy[members[0]]:.1f}): a hole proves no clay where another "
                              "stopped in it; the lower bound was kept")
-    return CensoredData(ex, ey, ev, cx[keep], cy[keep], low[keep], high[keep], notes)
+    return CensoredData(ex, ey, ev, cx[keep], cy[keep], low[keep], high[keep], notes,
+                        ff[pos] if f is not None else np.empty(0),
+                        cf[keep] if f is not None else np.empty(0))
 
 
 def gibbs_draws(data: CensoredData, model: VariogramModel, *, n_draws: int = 64,
@@ -178,8 +201,10 @@ def gibbs_draws(data: CensoredData, model: VariogramModel, *, n_draws: int = 64,
     if ax.size < 2:  # a single censored datum and nothing else: its interval alone
         start = np.where(np.isfinite(data.low_m), data.low_m, data.high_m)
         return np.repeat(start[:, None], n_draws, axis=1)
+    drift = ({"drift": data.all_drift, "target_drift": data.c_drift} if data.has_drift
+             else {})
     w = kriging_weights(ax, ay, model, data.cx_m, data.cy_m, max_neighbours=max_neighbours,
-                        exclude_coincident=True)
+                        exclude_coincident=True, **drift)
     sd = np.sqrt(w.variance)
     state = np.empty((ax.size, n_draws))
     state[:ne] = data.value_m[:, None]
@@ -216,6 +241,7 @@ class ThicknessProbabilities:
     seed: int
     notes: list[str]
     variance_scale: float = 1.0
+    drift: dict[str, object] = field(default_factory=lambda: {"used": False})
 
     def as_dict(self) -> dict[str, object]:
         return {"method": METHOD, "n_full_positive": self.n_equal,
@@ -223,23 +249,32 @@ class ThicknessProbabilities:
                 "n_draws": self.n_draws, "gibbs_sweeps": self.sweeps, "seed": self.seed,
                 "variance_scale": self.variance_scale,
                 "monte_carlo_sd_at_p_0_5": float(0.5 / np.sqrt(self.n_draws)),
-                "notes": list(self.notes)}
+                "external_drift": dict(self.drift), "notes": list(self.notes)}
 
 
 def probability_below_grid(data: CensoredData, draws: np.ndarray, model: VariogramModel,
                            grid: Grid, thresholds_m: dict[str, float | np.ndarray], *,
-                           max_neighbours: int = 64) -> dict[str, np.ndarray]:
+                           max_neighbours: int = 64, grid_drift: np.ndarray | None = None
+                           ) -> dict[str, np.ndarray]:
     """P(T < t) on the cells of ``grid`` for each threshold ``t`` (a number, or a grid for a
     threshold that varies by cell), averaged over the ``draws`` of the censored values.
 
-    ``T = max(0, Z)``, so a threshold of 0 gives P(T = 0) = P(Z ≤ 0).
+    ``T = max(0, Z)``, so a threshold of 0 gives P(T = 0) = P(Z ≤ 0). When the data carry
+    an external drift, ``grid_drift`` gives it on the grid (finite on every cell of the
+    study area).
     """
     xs, ys = grid.cell_centres()
     xx, yy = np.meshgrid(xs, ys)
     inside = grid.mask
     ax = np.concatenate([data.x_m, data.cx_m])
     ay = np.concatenate([data.y_m, data.cy_m])
-    w = kriging_weights(ax, ay, model, xx[inside], yy[inside], max_neighbours=max_neighbours)
+    drift = {}
+    if data.has_drift:
+        if grid_drift is None:
+            raise ValueError("the data carry an external drift but the grid has none")
+        drift = {"drift": data.all_drift, "target_drift": np.asarray(grid_drift)[inside]}
+    w = kriging_weights(ax, ay, model, xx[inside], yy[inside], max_neighbours=max_neighbours,
+                        **drift)
     sd = np.sqrt(w.variance)
     n_draws = draws.shape[1] if draws.size else 1
     values = np.empty((ax.size, n_draws))
@@ -300,7 +335,9 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
                             status: np.ndarray, model: VariogramModel, grid: Grid,
                             thresholds_m: dict[str, float | np.ndarray], *,
                             max_neighbours: int = 64, n_draws: int = 64, sweeps: int = 30,
-                            seed: int = 0, variance_scale: float = 1.0
+                            seed: int = 0, variance_scale: float = 1.0,
+                            drift: np.ndarray | None = None,
+                            grid_drift: np.ndarray | None = None
                             ) -> ThicknessProbabilities:
     """P(total aquitard thickness < threshold) grids from borehole columns (module
     docstring): full positive thicknesses as data, holes proving a window as ``Z ≤ 0``,
@@ -317,15 +354,18 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
             of it, at least 8).
         n_draws, sweeps, seed: Monte Carlo settings; the same seed gives the same grids.
         variance_scale: factor on the variogram's sills (see :func:`cv_variance_scale`).
+        drift, grid_drift: an external drift (ground elevation, m) per hole and on the grid;
+            ``model`` is then the variogram of the residual from the drift
+            (:mod:`aquitardmap.drift`).
     """
     model = scaled_variogram(model, variance_scale)
-    data = censored_data(x_m, y_m, thickness_m, status)
+    data = censored_data(x_m, y_m, thickness_m, status, drift)
     if data.x_m.size + data.cx_m.size == 0:
         raise ValueError("no borehole gives the total aquitard thickness or a bound on it")
     rng = np.random.default_rng(seed)
     draws = gibbs_draws(data, model, n_draws=n_draws, sweeps=sweeps,
                         max_neighbours=max(8, max_neighbours // 2), rng=rng)
     p = probability_below_grid(data, draws, model, grid, thresholds_m,
-                               max_neighbours=max_neighbours)
+                               max_neighbours=max_neighbours, grid_drift=grid_drift)
     return ThicknessProbabilities(p, int(data.x_m.size), data.n_absent, data.n_lower_bounds,
                                   n_draws, sweeps, seed, list(data.notes), variance_scale)

@@ -46,6 +46,10 @@ K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
 CRUST_TREATMENTS = ("raise_k", "not_protective")
 VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
 ANISOTROPY_CHOICES = ("none", "auto")
+#: [kriging] external_drift: the ground elevation (DEM) as an external drift of the total
+#: aquitard thickness behind the probability maps: never, always, or when cross-validation
+#: says it helps.
+EXTERNAL_DRIFT_CHOICES = ("none", "ground", "auto")
 ZONE_BASES = ("probability", "kriged_thickness")
 DRILLING_TARGETS = ("thin", "window", "both")
 COMPUTE_MODES = ("single", "dask")
@@ -117,6 +121,10 @@ class KrigingSettings:
         direction_tolerance_deg: angular half-width of each direction class (degrees).
         variograms: manual variograms by surface name (``"aquitard"`` or a unit code), from
             ``[variograms.<name>]`` tables; used as given, never re-fitted.
+        external_drift: ground elevation as an external drift of the total aquitard
+            thickness behind ``p_window``/``p_thin`` and the zones: ``"none"``, ``"ground"``
+            or ``"auto"`` (used when leave-one-out cross-validation of the full holes gives
+            a lower RMSE with it; :mod:`aquitardmap.drift`).
     """
 
     variogram_model: str = "spherical"
@@ -129,6 +137,7 @@ class KrigingSettings:
     n_directions: int = 4
     direction_tolerance_deg: float = 22.5
     variograms: dict[str, VariogramModel] = field(default_factory=dict)
+    external_drift: str = "auto"
 
 
 @dataclass(frozen=True)
@@ -192,7 +201,7 @@ class ScreeningThresholds:
     piercing_flag_per_km2: float = 10.0
     zone_basis: str = "probability"
     p_window_threshold: float = 0.5
-    p_thin_threshold: float = 0.5
+    p_thin_threshold: float = 0.6
     probability_draws: int = 64
     probability_seed: int = 0
     probability_variance_from_cv: bool = True
@@ -838,7 +847,9 @@ def read_project(folder: str | Path) -> Project:
         direction_tolerance_deg=_number(problems, path, text, kr, "direction_tolerance_deg",
                                         22.5, "kriging", low=1.0, high=90.0),
         variograms=_read_variograms(problems, path, text, cfg.get("variograms", {}),
-                                    ["aquitard", *column_codes]),
+                                    ["aquitard", *column_codes, "aquitard_residual"]),
+        external_drift=_choice(problems, path, text, kr, "external_drift", "auto", "kriging",
+                               EXTERNAL_DRIFT_CHOICES),
     )
     hy = _section(problems, path, text, cfg, "hydraulics", tables)
     hydraulics = HydraulicSettings(
@@ -879,7 +890,7 @@ def read_project(folder: str | Path) -> Project:
                            ZONE_BASES),
         p_window_threshold=_number(problems, path, text, sc, "p_window_threshold", 0.5,
                                    "screening", low=0, low_open=True, high=1.0),
-        p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold", 0.5,
+        p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold", 0.6,
                                  "screening", low=0, low_open=True, high=1.0),
         probability_draws=int(_number(problems, path, text, sc, "probability_draws", 64,
                                       "screening", low=8, high=5000, integer=True)),
