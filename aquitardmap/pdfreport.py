@@ -98,8 +98,14 @@ METHODS: tuple[tuple[str, str], ...] = (
      "advective time t = Σ nₑ b / (Kv i)"),
     ("Vulnerability class", "Aquifer Vulnerability Index from log10 of c in years (Van "
      "Stempvoort, Ewert & Wassenaar 1993, Canadian Water Resources Journal 18(1))"),
-    ("Chance of thin clay", "Gaussian error of the kriged thickness, P = Φ((T* − t)/σ) "
-     "(approximate; p_thin.tif when the run wrote it)"),
+    ("Chance of thin clay (approx.)", "Gaussian error of the kriged thickness, "
+     "P = Φ((T* − t)/σ) (p_thin_approx.tif)"),
+    ("Chance of thin clay or a window", "latent Gaussian thickness with inequality data: "
+     "window holes Z ≤ 0, holes stopped in the clay Z ≥ depth, drawn by a Gibbs sampler "
+     "(Freulon & de Fouquet 1993) and kriged (Verly 1983); p_thin.tif, p_window.tif"),
+    ("Ground as external drift", "kriging with an external drift (Wackernagel 2003, "
+     "Multivariate Geostatistics; Hengl et al. 2007), used for the probabilities when "
+     "cross-validation favours it"),
 )
 
 
@@ -628,6 +634,9 @@ def _parameter_pages(pages: _Pages, run_dir: Path) -> None:
     avi = section(s, "avi")
     if avi.get("source"):
         rows.append(["AVI classes used", _plain(avi["source"])])
+    drift = section(section(s, "probability"), "external_drift")
+    if drift.get("reason"):
+        rows.append(["External drift in this run", _plain(drift["reason"])])
     flow.table(rows, ["What", "Method and published source"], [0.25, 0.75], fontsize=7.5,
                wrap=[30, 88])
     warnings = [w for w in s.get("warnings") or [] if isinstance(w, str)]

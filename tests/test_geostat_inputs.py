@@ -166,7 +166,8 @@ def test_defaults_of_the_new_keys(tmp_path):
     assert p.kriging.nested_model == "" and p.kriging.anisotropy == "none"
     assert p.kriging.variograms == {}
     assert p.screening.zone_basis == "probability"
-    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.5)
+    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.6)
+    assert p.kriging.external_drift == "auto"
     assert p.screening.probability_variance_from_cv is True
     assert p.qa.cv_standardised_error_max == 3.0
 
@@ -176,6 +177,7 @@ def test_bad_variogram_tables_are_reported_with_line_and_column(tmp_path):
         read_project(_project(tmp_path, """
 [kriging]
 nested_model = "cubic"
+external_drift = "dem"
 
 [variograms.aquitard]
 model = "linear"
@@ -201,6 +203,7 @@ probability_variance_from_cv = "yes"
     text = "\n".join(str(p) for p in exc.value.problems)
     lines = (tmp_path / "project.toml").read_text().splitlines()
     assert "nested_model must be" in text
+    assert "[kriging] external_drift must be one of none, ground, auto, got 'dem'" in text
     assert "[variograms.aquitard] model must be one of" in text
     n_model = next(i for i, ln in enumerate(lines, 1) if ln.startswith('model = "linear"'))
     assert f"project.toml, line {n_model}, column 1: [variograms.aquitard] model" in text
