@@ -104,19 +104,8 @@ _NOISE_STEP_M = 50.0  # lattice spacing of the smooth random fields
 _NOISE_PAD_M = 600.0  # lattice margin around the extent
 _LINE_STEP_M = 10.0  # vertex spacing of feature centre lines
 
-_PROJECT_TOML = """\
-# {name} — an INVENTED, synthetic region written by aquitardmap.synthetic (seed {seed},
-# character "{character}"). Every place, borehole and value here is synthetic; the truth it
-# was drawn from is in truth/.
-
-[project]
-name = "{name}"
-crs = "{crs}"
-
-[grid]
-cell_size_m = {cell_size_m:g}
-buffer_m = 250
-
+#: The demo's stack of units as ``project.toml`` text (also used by the tests).
+DEMO_STACK_TOML = """\
 [[units]]
 code = "SAND"
 name = "Surficial sand"
@@ -157,7 +146,22 @@ role = "aquifer"
 effective_porosity = 0.25
 k_default_m_s = 1e-3
 k_method = "hazen"
+"""
 
+_PROJECT_TOML = """\
+# {name} — an INVENTED, synthetic region written by aquitardmap.synthetic (seed {seed},
+# character "{character}"). Every place, borehole and value here is synthetic; the truth it
+# was drawn from is in truth/.
+
+[project]
+name = "{name}"
+crs = "{crs}"
+
+[grid]
+cell_size_m = {cell_size_m:g}
+buffer_m = 250
+
+""" + DEMO_STACK_TOML + """
 [kriging]
 variogram_model = "spherical"
 n_lags = 12

@@ -10,6 +10,27 @@ import pytest
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "demo_region"
 
+#: The smallest valid project.toml: one clay over one aquifer (tests of the project reader).
+MINIMAL_PROJECT_TOML = """\
+[project]
+name = "Test"
+crs = "EPSG:32632"
+
+[grid]
+cell_size_m = 50
+
+[[units]]
+code = "CLAY"
+name = "Clay"
+role = "aquitard"
+
+[[units]]
+code = "GRAV"
+name = "Gravel"
+role = "aquifer"
+"""
+
+
 
 @pytest.fixture(scope="session")
 def demo_run(tmp_path_factory):

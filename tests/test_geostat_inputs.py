@@ -21,27 +21,11 @@ from aquitardmap.suspicious import suspicious_columns
 from aquitardmap.synthetic import make_synthetic_region
 from aquitardmap.variogram import VariogramModel
 
+from conftest import MINIMAL_PROJECT_TOML as MINIMAL
+
 CRS_M = CRS.from_epsg(32632)
 GRID = make_grid(box(0, 0, 3000, 3000), 100.0, CRS_M)
 
-MINIMAL = """\
-[project]
-name = "Test"
-crs = "EPSG:32632"
-
-[grid]
-cell_size_m = 50
-
-[[units]]
-code = "CLAY"
-name = "Clay"
-role = "aquitard"
-
-[[units]]
-code = "GRAV"
-name = "Gravel"
-role = "aquifer"
-"""
 
 
 def _holes(n, seed=0, mean=15.0, sd=3.0):

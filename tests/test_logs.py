@@ -24,8 +24,9 @@ from aquitardmap.logs import (
     read_boreholes,
 )
 from aquitardmap.project import Project, read_project
+from aquitardmap.synthetic import DEMO_STACK_TOML
 
-# The stack of the demo project (copied from demo_region/project.toml).
+# The stack of the demo project.
 PROJECT_TOML = """
 [project]
 name = "Test valley (invented)"
@@ -34,47 +35,7 @@ crs = "EPSG:32632"
 [grid]
 cell_size_m = 50
 
-[[units]]
-code = "SAND"
-name = "Surficial sand"
-role = "cover"
-effective_porosity = 0.30
-k_default_m_s = 1e-4
-k_method = "hazen"
-
-[[units]]
-code = "UMC"
-name = "Upper marine clay"
-role = "aquitard"
-effective_porosity = 0.40
-k_default_m_s = 5e-10
-k_method = "kozeny_carman"
-
-[[units]]
-code = "LMC"
-name = "Lower marine clay"
-role = "aquitard"
-effective_porosity = 0.40
-k_default_m_s = 2e-10
-k_method = "kozeny_carman"
-
-[[units]]
-code = "LAM"
-name = "Laminated lake clay"
-role = "aquitard"
-effective_porosity = 0.35
-k_default_m_s = 1e-9
-k_method = "kozeny_carman"
-anisotropy_kh_kv = 4.0
-
-[[units]]
-code = "GRAV"
-name = "Buried sand and gravel aquifer"
-role = "aquifer"
-effective_porosity = 0.25
-k_default_m_s = 1e-3
-k_method = "hazen"
-"""
+""" + DEMO_STACK_TOML
 
 COLLARS_OK = """borehole_id,x,y,ground_elev_m,total_depth_m
 BH-A,500100,6600100,42.0,20.0

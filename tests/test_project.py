@@ -7,26 +7,10 @@ import pytest
 from aquitardmap.errors import InputError
 from aquitardmap.project import read_project
 
+from conftest import MINIMAL_PROJECT_TOML as MINIMAL
+
 DEMO = Path(__file__).resolve().parents[1] / "demo_region"
 
-MINIMAL = """\
-[project]
-name = "Test"
-crs = "EPSG:32632"
-
-[grid]
-cell_size_m = 50
-
-[[units]]
-code = "CLAY"
-name = "Clay"
-role = "aquitard"
-
-[[units]]
-code = "GRAV"
-name = "Gravel"
-role = "aquifer"
-"""
 
 
 def _project(tmp_path: Path, text: str) -> Path:
