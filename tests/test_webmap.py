@@ -455,3 +455,21 @@ def test_unit_colours_follow_roles() -> None:
                             {"code": "X", "role": "bedrock"}])
     assert len({colours["C1"], colours["C2"], colours["S"], colours["G"]}) == 4
     assert colours["X"] == "#bdbdbd"
+
+
+def test_about_this_run_says_how_the_zones_were_drawn() -> None:
+    # The decision behind the zones is on the page (thresholds, method, drift), escaped.
+    from aquitardmap.webmap.page import header_html, zone_method_html
+
+    summary = {"zones": {"basis": "probability", "p_window_threshold": 0.5,
+                         "p_thin_threshold": 0.6},
+               "probability": {"method": "latent <Gaussian>",
+                               "external_drift": {"used": True, "reason": "used: RMSE 2.97 m"}}}
+    text = zone_method_html(summary)
+    assert "P(window) is at least</td><td>0.5" in text
+    assert "P(thin) is at least</td><td>0.6" in text
+    assert "latent &lt;Gaussian&gt;" in text and "used: RMSE 2.97 m" in text
+    assert "How the zones were drawn" in header_html(summary, "")
+    assert "kriged total thickness" in zone_method_html({"zones": {"basis":
+                                                                   "kriged_thickness"}})
+    assert zone_method_html({}) == ""

@@ -21,6 +21,7 @@ from aquitardmap.presentation import (
     PROTECTION,
     UNCERTAINTY,
     GridStyle,
+    finite_float,
     fmt_threshold,
     run_date,
     thresholds,
@@ -76,6 +77,9 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
                    for label, v, u in named if v is not None)
     if rows:
         about.append(f"<b>Screening thresholds</b><table>{rows}</table>")
+    zones_how = zone_method_html(summary)
+    if zones_how:
+        about.append(zones_how)
     counts = section(summary, "counts")
     if counts:
         rows = "".join(f"<tr><td>{esc(COUNT_WORDS.get(k, str(k).replace('_', ' ')))}</td>"
@@ -87,6 +91,31 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
                       + "".join(about) + "</div></details>")
     return (f'<header id="aqm-header"><span class="aqm-name">{esc(name)}</span>'
             f'<span class="aqm-details">{" · ".join(details)}</span>{about_html}</header>')
+
+
+def zone_method_html(summary: dict[str, Any]) -> str:
+    """How the window and thin zones were drawn: from the kriged thickness, or from the
+    probabilities with their thresholds, method and the external-drift decision ("" when
+    the summary does not say)."""
+    zones = section(summary, "zones")
+    basis = zones.get("basis")
+    if basis == "kriged_thickness":
+        return ("<b>How the zones were drawn</b><p>Window and thin zones: cells where the "
+                "kriged total thickness is below the thresholds.</p>")
+    if basis != "probability":
+        return ""
+    prob = section(summary, "probability")
+    rows = [("Window where P(window) is at least", finite_float(zones.get("p_window_threshold"))),
+            ("Thin where P(thin) is at least", finite_float(zones.get("p_thin_threshold")))]
+    body = "".join(f"<tr><td>{label}</td><td>{v:g}</td></tr>" for label, v in rows
+                   if v is not None)
+    if prob.get("method"):
+        body += f"<tr><td>Probabilities from</td><td>{esc(prob['method'])}</td></tr>"
+    drift = section(prob, "external_drift")
+    if drift.get("reason"):
+        body += (f"<tr><td>Ground elevation as external drift</td>"
+                 f"<td>{esc(drift['reason'])}</td></tr>")
+    return f"<b>How the zones were drawn</b><table>{body}</table>"
 
 
 def caution_html(summary: dict[str, Any]) -> str:
