@@ -268,31 +268,35 @@ def probability_below_grid(data: CensoredData, draws: np.ndarray, model: Variogr
     inside = grid.mask
     ax = np.concatenate([data.x_m, data.cx_m])
     ay = np.concatenate([data.y_m, data.cy_m])
-    drift = {}
-    if data.has_drift:
-        if grid_drift is None:
-            raise ValueError("the data carry an external drift but the grid has none")
-        drift = {"drift": data.all_drift, "target_drift": np.asarray(grid_drift)[inside]}
-    w = kriging_weights(ax, ay, model, xx[inside], yy[inside], max_neighbours=max_neighbours,
-                        **drift)
-    sd = np.sqrt(w.variance)
+    if data.has_drift and grid_drift is None:
+        raise ValueError("the data carry an external drift but the grid has none")
+    tx, ty = xx[inside], yy[inside]
+    tf = np.asarray(grid_drift)[inside] if data.has_drift else None
     n_draws = draws.shape[1] if draws.size else 1
     values = np.empty((ax.size, n_draws))
     values[:data.x_m.size] = data.value_m[:, None]
     if draws.size:
         values[data.x_m.size:] = draws
     thr = {k: (np.broadcast_to(np.asarray(v, float), inside.shape)[inside]
-               if np.ndim(v) else np.full(sd.size, float(v)))
+               if np.ndim(v) else np.full(tx.size, float(v)))
            for k, v in thresholds_m.items()}
-    acc = {k: np.zeros(sd.size) for k in thresholds_m}
-    on_datum = sd <= 0
-    safe_sd = np.where(on_datum, 1.0, sd)
-    for k in range(n_draws):
-        est = np.einsum("tk,tk->t", w.weights, values[w.index, k])
-        for name, t in thr.items():
-            p = np.where(on_datum, (est < np.maximum(t, 0.0)) | ((t <= 0) & (est <= 0)),
-                         ndtr((np.maximum(t, 0.0) - est) / safe_sd))
-            acc[name] += p
+    acc = {k: np.zeros(tx.size) for k in thresholds_m}
+    # Cells in blocks: the weights of one block at a time bound the memory.
+    for start in range(0, tx.size, CELLS_PER_BLOCK):
+        sl = slice(start, start + CELLS_PER_BLOCK)
+        drift = ({"drift": data.all_drift, "target_drift": tf[sl]} if tf is not None
+                 else {})
+        w = kriging_weights(ax, ay, model, tx[sl], ty[sl], max_neighbours=max_neighbours,
+                            **drift)
+        sd = np.sqrt(w.variance)
+        on_datum = sd <= 0
+        safe_sd = np.where(on_datum, 1.0, sd)
+        for k in range(n_draws):
+            est = np.einsum("tk,tk->t", w.weights, values[w.index, k])
+            for name, t in thr.items():
+                tb = np.maximum(t[sl], 0.0)
+                acc[name][sl] += np.where(on_datum, (est < tb) | ((t[sl] <= 0) & (est <= 0)),
+                                          ndtr((tb - est) / safe_sd))
     out = {}
     for name, a in acc.items():
         g = np.full(inside.shape, np.nan)
@@ -301,6 +305,8 @@ def probability_below_grid(data: CensoredData, draws: np.ndarray, model: Variogr
     return out
 
 
+#: Grid cells whose kriging weights are held at once in :func:`probability_below_grid`.
+CELLS_PER_BLOCK = 65_536
 #: Cross-validated holes needed before the variance scale is taken from them.
 MIN_HOLES_FOR_VARIANCE_SCALE = 20
 #: Range the variance scale is kept in.

@@ -169,3 +169,25 @@ def test_coincident_inequality_and_full_hole_keeps_the_full_thickness():
     assert data.x_m.size == 1 and data.cx_m.size == 1
     assert data.low_m[0] == 8.0  # the tighter of two bounds at one place
     assert any("share a location" in n for n in data.notes)
+
+
+def test_cells_in_blocks_give_the_same_grids(monkeypatch):
+    # Memory is bounded by computing the weights block by block; the numbers must not
+    # depend on the block size (same kriging systems, same draws).
+    import aquitardmap.probability as prob
+
+    g = _grid()
+    x, y, t = _full_holes()
+    status = np.full(t.size, "full")
+    t = t.copy()
+    t[:3] = 0.0  # three holes proving a window: draws are used
+    status[5:8] = "lower_bound"
+    one = thickness_probabilities(x, y, t, status, MODEL, g, {"thin": 18.0, "window": 0.0},
+                                  n_draws=8, seed=3)
+    monkeypatch.setattr(prob, "CELLS_PER_BLOCK", 7)
+    many = thickness_probabilities(x, y, t, status, MODEL, g, {"thin": 18.0, "window": 0.0},
+                                   n_draws=8, seed=3)
+    for k in ("thin", "window"):
+        assert np.allclose(one.p_below[k], many.p_below[k], rtol=1e-12, atol=1e-14,
+                           equal_nan=True)
+    assert np.nanmax(one.p_below["window"]) > 0.5
