@@ -33,8 +33,8 @@ import numpy as np
 from aquitardmap.grid import Grid
 from aquitardmap.kriging import KrigingResult, kriging_weights
 from aquitardmap.project import KrigingSettings
-from aquitardmap.surfaces import choose_variogram, group_coincident
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.surfaces import Surface, choose_variogram, group_coincident
+from aquitardmap.variogram import ExperimentalVariogram, VariogramModel
 
 #: Relative RMSE gain the drift must bring in cross-validation for ``"auto"`` to use it.
 MIN_RMSE_GAIN = 0.02
@@ -58,6 +58,8 @@ class DriftChoice:
         reason: the decision in plain words.
         max_neighbours: neighbourhood of the drift, the one of
             :func:`drift_neighbourhoods` with the lowest cross-validation RMSE.
+        residual: the residual "surface" for the record (its experimental variogram,
+            model and cross-validation; no grid), drawn like every variogram of the run.
     """
 
     used: bool
@@ -69,6 +71,7 @@ class DriftChoice:
     cv_drift: dict[str, float] = field(default_factory=dict)
     reason: str = ""
     max_neighbours: int = 0
+    residual: Surface | None = None
 
     def as_dict(self) -> dict[str, object]:
         """What ``summary.json`` records."""
@@ -146,7 +149,7 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     a = np.column_stack([np.ones_like(gf), gf])
     (b0, b1), *_ = np.linalg.lstsq(a, t, rcond=None)
     resid = t - (b0 + b1 * gf)
-    model, *_ = choose_variogram(RESIDUAL_NAME, x, y, resid, settings, grid)
+    model, exp, _, source, _ = choose_variogram(RESIDUAL_NAME, x, y, resid, settings, grid)
     w_ok = kriging_weights(x, y, ordinary_model, x, y, max_neighbours=settings.max_neighbours,
                            exclude_coincident=True)
     cv_ok = _cv(t, KrigingResult(w_ok.apply(t), w_ok.variance))
@@ -155,14 +158,25 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     k = min(trials, key=lambda kk: trials[kk]["rmse"])
     cv_d = trials[k]
     gain = 1.0 - cv_d["rmse"] / cv_ok["rmse"] if cv_ok["rmse"] > 0 else 0.0
+    residual = residual_record(model, exp, source, cv_d, t.size)
     figures = (f"leave-one-out RMSE {cv_d['rmse']:.2f} m with the ground as drift "
                f"({k} neighbours), {cv_ok['rmse']:.2f} m without ({100 * gain:+.1f} %)")
     if setting == "auto" and gain < MIN_RMSE_GAIN:
         return DriftChoice(False, setting, model, float(b0), float(b1), cv_ok, cv_d,
                            f"not used: {figures}; the drift must gain at least "
-                           f"{100 * MIN_RMSE_GAIN:.0f} %", k)
+                           f"{100 * MIN_RMSE_GAIN:.0f} %", k, residual)
     return DriftChoice(True, setting, model, float(b0), float(b1), cv_ok, cv_d,
-                       f"used: {figures}", k)
+                       f"used: {figures}", k, residual)
+
+
+def residual_record(model: VariogramModel, experimental: ExperimentalVariogram, source: str,
+                    cv: dict[str, float], n_full: int) -> Surface:
+    """The residual from the drift as a :class:`Surface` without a grid, so that its
+    variogram is drawn and summarised like every other one."""
+    empty = np.empty((0, 0))
+    return Surface(name=RESIDUAL_NAME, thickness_m=empty, sd_m=empty, variogram=model,
+                   experimental=experimental, n_full=n_full, n_lower_bounds=0,
+                   n_bounds_active=0, cv=dict(cv), variogram_source=source)
 
 
 def drift_neighbourhoods(max_neighbours: int) -> list[int]:

@@ -29,7 +29,7 @@ from shapely.ops import unary_union
 from aquitardmap import __version__, outputs, tilecache
 from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
-from aquitardmap.drift import choose_drift
+from aquitardmap.drift import RESIDUAL_NAME, choose_drift
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.figures import variogram_figure
 from aquitardmap.grid import Grid, make_grid, resample_to_grid, snapped_bounds, write_raster
@@ -469,7 +469,8 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
         variance_scale=cv_variance_scale(cv) if th.probability_variance_from_cv else 1.0,
         drift=ground if drift.used else None,
         grid_drift=grid_ground if drift.used else None)
-    return replace(probs, drift=drift.as_dict())
+    return replace(probs, drift=drift.as_dict(),
+                   residual=drift.residual if drift.used else None)
 
 
 def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydraulics:
@@ -698,7 +699,7 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         },
         "cross_validation_file": outputs.CV_RESIDUALS,
         "figures": {"variograms": {name: outputs.variogram_figure(name)
-                                   for name in surfaces}},
+                                   for name in _figure_surfaces(surfaces, probabilities)}},
         "probability": _probability_summary(inputs, probabilities),
         "suspicious_boreholes": (suspicious_list(boreholes) if "suspicious" in boreholes
                                  else []),
@@ -826,6 +827,16 @@ def _piercing_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
     }
 
 
+def _figure_surfaces(surfaces: dict[str, Surface],
+                     probabilities: ThicknessProbabilities | None) -> dict[str, Surface]:
+    """Surfaces that get a variogram figure: every kriged one, and the residual from the
+    external drift when the probabilities used it."""
+    out = dict(surfaces)
+    if probabilities is not None and probabilities.residual is not None:
+        out[probabilities.residual.name] = probabilities.residual
+    return out
+
+
 def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
                   hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
                   boreholes: gpd.GeoDataFrame, summary: dict, *,
@@ -887,7 +898,7 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         else pd.DataFrame(columns=list(CV_COLUMNS))
     cv.to_csv(folder / outputs.CV_RESIDUALS, index=False, float_format="%.10g")
     extra.append(outputs.CV_RESIDUALS)
-    for name, s in surfaces.items():
+    for name, s in _figure_surfaces(surfaces, probabilities).items():
         variogram_figure(s, folder / outputs.variogram_figure(name),
                          title=_surface_title(p, name))
         extra.append(outputs.variogram_figure(name))
@@ -938,6 +949,8 @@ def _surface_cache(project: Project, setting: str | Path | bool | None
 def _surface_title(project: Project, name: str) -> str:
     if name == "aquitard":
         return "Variogram of the total aquitard thickness"
+    if name == RESIDUAL_NAME:
+        return "Variogram of the total thickness less its drift on the ground"
     try:
         return f"Variogram of the thickness of {project.unit(name).name} ({name})"
     except KeyError:

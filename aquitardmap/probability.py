@@ -39,6 +39,7 @@ about ``sqrt(p(1 − p)/n_draws)`` at most (0.06 for 64 draws at p = 0.5).
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy.special import ndtr, ndtri
@@ -46,6 +47,9 @@ from scipy.special import ndtr, ndtri
 from aquitardmap.grid import Grid
 from aquitardmap.kriging import kriging_weights, merge_coincident
 from aquitardmap.variogram import VariogramModel
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from aquitardmap.surfaces import Surface
 
 #: Data closer than this are taken as one location (m).
 COINCIDENT_M = 0.01
@@ -242,6 +246,7 @@ class ThicknessProbabilities:
     notes: list[str]
     variance_scale: float = 1.0
     drift: dict[str, object] = field(default_factory=lambda: {"used": False})
+    residual: Surface | None = None
 
     def as_dict(self) -> dict[str, object]:
         return {"method": METHOD, "n_full_positive": self.n_equal,

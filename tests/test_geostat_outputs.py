@@ -99,6 +99,20 @@ def test_a_variogram_figure_per_surface_listed_in_the_summary(demo_run, summary)
                                               "variance_standardised_error"}
 
 
+def test_the_drift_residual_variogram_is_drawn_and_linked_when_used(demo_run, summary):
+    drift = summary["probability"]["external_drift"]
+    assert drift["used"]  # the demo's ground explains part of the thickness (README)
+    assert drift["cross_validation_with_drift"]["rmse"] < drift["cross_validation_ordinary"][
+        "rmse"]
+    fname = outputs.variogram_figure("aquitard_residual")
+    assert summary["figures"]["variograms"]["aquitard_residual"] == fname
+    assert fname in summary["outputs"]
+    assert (demo_run.out_dir / fname).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (demo_run.out_dir / "map.html").read_text(encoding="utf-8")
+    for name in [*SURFACES, "aquitard_residual"]:
+        assert f'href="{outputs.variogram_figure(name)}"' in page
+
+
 def test_suspicious_logs_are_listed_with_reasons(demo_run, summary):
     bh = gpd.read_file(demo_run.out_dir / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER)
     for col in ("cv_error_m", "cv_standardised_error", "suspicious", "suspicious_reasons"):

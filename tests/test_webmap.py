@@ -473,3 +473,21 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
     assert "kriged total thickness" in zone_method_html({"zones": {"basis":
                                                                    "kriged_thickness"}})
     assert zone_method_html({}) == ""
+
+
+def test_variogram_figures_are_linked_and_odd_names_are_not() -> None:
+    # The figures sit beside map.html: plain relative links; anything that is not a plain
+    # PNG file name (a path, a script URL) is left out.
+    from aquitardmap.webmap.page import figure_links_html, header_html
+
+    summary = {"figures": {"variograms": {
+        "aquitard": "variogram_aquitard.png", "UMC": "variogram_UMC.png",
+        "aquitard_residual": "variogram_aquitard_residual.png",
+        "evil": "javascript:alert(1).png", "up": "../secret.png"}}}
+    text = figure_links_html(summary)
+    assert '<a href="variogram_aquitard.png" target="_blank"' in text
+    assert "total aquitard thickness" in text and "UMC thickness" in text
+    assert "residual from the ground drift" in text
+    assert "javascript" not in text and "secret" not in text
+    assert "Variograms (figures beside this map)" in header_html(summary, "")
+    assert figure_links_html({}) == ""

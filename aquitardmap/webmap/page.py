@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import base64
 import math
+import re
 from importlib.resources import files
 from typing import Any
 
@@ -80,6 +81,9 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
     zones_how = zone_method_html(summary)
     if zones_how:
         about.append(zones_how)
+    figures = figure_links_html(summary)
+    if figures:
+        about.append(figures)
     counts = section(summary, "counts")
     if counts:
         rows = "".join(f"<tr><td>{esc(COUNT_WORDS.get(k, str(k).replace('_', ' ')))}</td>"
@@ -116,6 +120,25 @@ def zone_method_html(summary: dict[str, Any]) -> str:
         body += (f"<tr><td>Ground elevation as external drift</td>"
                  f"<td>{esc(drift['reason'])}</td></tr>")
     return f"<b>How the zones were drawn</b><table>{body}</table>"
+
+
+def figure_links_html(summary: dict[str, Any]) -> str:
+    """Links to the run's variogram figures (PNG files beside the map), from
+    ``summary["figures"]["variograms"]``; "" when there are none."""
+    figures = section(section(summary, "figures"), "variograms")
+    items = []
+    for name, file in figures.items():
+        file = str(file)
+        if not re.fullmatch(r"[\w.-]+\.png", file):  # a plain file name beside the map
+            continue
+        label = ("total aquitard thickness" if name == "aquitard" else
+                 "residual from the ground drift" if name == "aquitard_residual" else
+                 f"{name} thickness")
+        items.append(f'<li><a href="{esc(file)}" target="_blank" rel="noopener">'
+                     f"{esc(label)}</a></li>")
+    if not items:
+        return ""
+    return f"<b>Variograms (figures beside this map)</b><ul>{''.join(items)}</ul>"
 
 
 def caution_html(summary: dict[str, Any]) -> str:
