@@ -26,6 +26,7 @@ _SOURCE_WORDS = {
     "default": "default: too few holes to fit one",
     "constant": "none needed: every hole gives the same value",
     "given": "given by the caller",
+    "reused": "kept from the previous run (this run's fit agrees with it)",
 }
 
 

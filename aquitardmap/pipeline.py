@@ -26,7 +26,7 @@ from pyproj import CRS, Transformer
 from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
-from aquitardmap import __version__, outputs, tilecache
+from aquitardmap import __version__, outputs, tilecache, variogramreuse
 from aquitardmap.compute import compute_session, describe
 from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
 from aquitardmap.drift import RESIDUAL_NAME, choose_drift
@@ -691,7 +691,9 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                     "anisotropy": p.kriging.anisotropy,
                     "n_directions": p.kriging.n_directions,
                     "direction_tolerance_deg": p.kriging.direction_tolerance_deg,
-                    "manual_variograms": sorted(p.kriging.variograms)},
+                    "manual_variograms": sorted(p.kriging.variograms),
+                    "reuse_variogram_within": p.kriging.reuse_variogram_within,
+                    "reuse_variogram_angle_deg": p.kriging.reuse_variogram_angle_deg},
         "surfaces": {
             name: {**surface_summary(s),
                    "figure": outputs.variogram_figure(name)}
@@ -837,16 +839,11 @@ def _figure_surfaces(surfaces: dict[str, Surface],
     return out
 
 
-def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
-                  hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
-                  boreholes: gpd.GeoDataFrame, summary: dict, *,
-                  self_contained_map: bool = False,
-                  probabilities: ThicknessProbabilities | None = None) -> list[str]:
-    """Stage 5: write every output file into ``folder``; returns the file names.
-
-    ``self_contained_map`` writes a map that needs no network (see
-    :func:`aquitardmap.webmap.write_map`)."""
-    g = inputs.grid
+def output_grids(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
+                 p_thin: np.ndarray, probabilities: ThicknessProbabilities | None = None
+                 ) -> dict[str, tuple[np.ndarray, str, str]]:
+    """The float GeoTIFFs a run writes: file name -> (grid, description, units). (The AVI
+    class grid, written as integers, comes from ``hyd.avi_class``.)"""
     p = inputs.project
     total = surfaces["aquitard"]
     grids = {
@@ -892,6 +889,21 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         grids[outputs.P_WINDOW_PROB] = (probabilities.p_below["window"], "probability that "
                                         "the protective aquitard is thinner than "
                                         f"{th.window_thickness_m:g} m (absent)", "1")
+    return grids
+
+
+def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
+                  hyd: Hydraulics, p_thin: np.ndarray, zones: gpd.GeoDataFrame,
+                  boreholes: gpd.GeoDataFrame, summary: dict, *,
+                  self_contained_map: bool = False,
+                  probabilities: ThicknessProbabilities | None = None) -> list[str]:
+    """Stage 5: write every output file into ``folder``; returns the file names.
+
+    ``self_contained_map`` writes a map that needs no network (see
+    :func:`aquitardmap.webmap.write_map`)."""
+    g = inputs.grid
+    p = inputs.project
+    grids = output_grids(inputs, surfaces, hyd, p_thin, probabilities)
     extra: list[str] = []
     cv = pd.concat([s.cv_table for s in surfaces.values() if len(s.cv_table)],
                    ignore_index=True) if any(len(s.cv_table) for s in surfaces.values()) \
@@ -934,16 +946,26 @@ TILE_CACHE_DIR = ".aquitardmap-cache/tiles"
 
 
 @contextmanager
-def _surface_cache(project: Project, setting: str | Path | bool | None
-                   ) -> Iterator[tilecache.TileCache | None]:
-    """The tile cache for this run: ``None`` (default) uses ``PROJECT/.aquitardmap-cache/
-    tiles`` when the project has a store, ``False`` none, a path that folder."""
+def _surface_cache(project: Project, setting: str | Path | bool | None, *,
+                   refit_variograms: bool = False
+                   ) -> Iterator[tuple[tilecache.TileCache | None,
+                                       variogramreuse.VariogramBook]]:
+    """The project cache for this run: the tile cache and the book of kept variograms
+    (``variograms.json`` beside the tile folder). ``setting`` ``None`` (default) uses
+    ``PROJECT/.aquitardmap-cache/tiles`` when the project has a store, ``False`` none, a
+    path that folder. Without a cache the book keeps nothing (every surface is fitted
+    afresh) and only records the decisions."""
+    k = project.kriging
+    reuse = {"within": k.reuse_variogram_within, "angle_deg": k.reuse_variogram_angle_deg,
+             "refit": refit_variograms}
     if setting is False or (setting is None and not has_store(project)):
-        yield None
+        with variogramreuse.variogram_book(None, **reuse) as book:
+            yield None, book
         return
     folder = project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
-    with tilecache.tile_cache(folder) as cache:
-        yield cache
+    with tilecache.tile_cache(folder) as cache, variogramreuse.variogram_book(
+            folder.parent / variogramreuse.KEPT_FILE, **reuse) as book:
+        yield cache, book
 
 
 def _surface_title(project: Project, name: str) -> str:
@@ -970,7 +992,8 @@ def _refuse_out_over_project(project_dir: str | Path, out_dir: str | Path) -> No
 def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         progress: ProgressFn | None = None, self_contained_map: bool = False,
         compute: ComputeSettings | None = None,
-        tile_cache: str | Path | bool | None = None) -> RunResult:
+        tile_cache: str | Path | bool | None = None,
+        refit_variograms: bool = False) -> RunResult:
     """Run the whole screening on a project folder and write every output to ``out_dir``.
 
     With ``out_dir=None`` nothing is written (the result is returned in memory only).
@@ -988,6 +1011,11 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     (:mod:`aquitardmap.tilecache`; same numbers as without it). By default (None) this is
     on for a project with a store, in ``PROJECT/.aquitardmap-cache/tiles``; False turns it
     off; a path names the folder. ``summary.json`` then counts tiles reused and kriged.
+
+    Variograms: with the cache, a surface reuses the model the previous run used while a
+    fresh fit differs from it by less than ``[kriging] reuse_variogram_within``
+    (:mod:`aquitardmap.variogramreuse`); ``refit_variograms=True`` always uses the fresh
+    fit. ``summary.json`` records each surface's decision (``variogram_reuse``).
     """
     def step(i: int) -> None:
         if progress is not None:
@@ -1011,7 +1039,8 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     t = lap("inputs", t0)
     with compute_session(compute or inputs.project.compute) as runner:
         step(1)
-        with _surface_cache(inputs.project, tile_cache) as cache:
+        with _surface_cache(inputs.project, tile_cache,
+                            refit_variograms=refit_variograms) as (cache, book):
             surfaces = build_surfaces(inputs)
         t = lap("surfaces", t)
         step(2)
@@ -1030,6 +1059,10 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     summary["run"]["stage_seconds"] = seconds
     if cache is not None:
         summary["tile_cache"] = {"folder": str(cache.folder), **cache.stats.as_dict()}
+    summary["variogram_reuse"] = book.summary()
+    for name, decision in book.decisions.items():
+        if name in summary["surfaces"]:
+            summary["surfaces"][name]["variogram_reuse"] = decision.as_dict()
     written = None
     if out_dir is not None:
         step(4)
@@ -1040,5 +1073,6 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         written = Path(out_dir).resolve()
     if cache is not None:
         cache.prune()  # keep only the tiles of this (successful) run
+        book.save()  # and the variograms it used
     return RunResult(written, inputs, surfaces, hyd, p_thin, zones, boreholes, summary,
                      probabilities)

@@ -125,6 +125,12 @@ class KrigingSettings:
             thickness behind ``p_window``/``p_thin`` and the zones: ``"none"``, ``"ground"``
             or ``"auto"`` (used when leave-one-out cross-validation of the full holes gives
             a lower RMSE with it; :mod:`aquitardmap.drift`).
+        reuse_variogram_within: a run with a project cache reuses the variogram the
+            previous run used for a surface while this run's fit differs from it by less
+            than this (relative; nugget and sills against the kept sill); 0 = always use
+            the fresh fit (:mod:`aquitardmap.variogramreuse`).
+        reuse_variogram_angle_deg: largest change of the major axis (degrees) for reuse,
+            checked when either model is anisotropic.
     """
 
     variogram_model: str = "spherical"
@@ -138,6 +144,8 @@ class KrigingSettings:
     direction_tolerance_deg: float = 22.5
     variograms: dict[str, VariogramModel] = field(default_factory=dict)
     external_drift: str = "auto"
+    reuse_variogram_within: float = 0.1
+    reuse_variogram_angle_deg: float = 10.0
 
 
 @dataclass(frozen=True)
@@ -850,6 +858,11 @@ def read_project(folder: str | Path) -> Project:
                                     ["aquitard", *column_codes, "aquitard_residual"]),
         external_drift=_choice(problems, path, text, kr, "external_drift", "auto", "kriging",
                                EXTERNAL_DRIFT_CHOICES),
+        reuse_variogram_within=_number(problems, path, text, kr, "reuse_variogram_within",
+                                       0.1, "kriging", low=0.0, high=1.0),
+        reuse_variogram_angle_deg=_number(problems, path, text, kr,
+                                          "reuse_variogram_angle_deg", 10.0, "kriging",
+                                          low=0.0, high=90.0),
     )
     hy = _section(problems, path, text, cfg, "hydraulics", tables)
     hydraulics = HydraulicSettings(

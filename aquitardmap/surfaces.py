@@ -45,6 +45,7 @@ from aquitardmap.variogram import (
     fit_variogram,
     with_anisotropy,
 )
+from aquitardmap.variogramreuse import settle_variogram
 
 #: Full-penetration holes needed to fit a variogram; with fewer a default model is used.
 MIN_HOLES_FOR_VARIOGRAM = 8
@@ -79,8 +80,9 @@ class Surface:
         data_x_m, data_y_m: locations of the data the final kriging used (full holes and
             active lower bounds, coincident ones merged), m; empty when not recorded.
         variogram_source: ``"fitted"``, ``"manual"`` (from ``project.toml``), ``"default"``
-            (too few holes to fit), ``"constant"`` (all holes equal) or ``"given"`` (passed
-            in by the caller).
+            (too few holes to fit), ``"constant"`` (all holes equal), ``"given"`` (passed
+            in by the caller) or ``"reused"`` (kept from the previous run while this run's
+            fit agrees with it; :mod:`aquitardmap.variogramreuse`).
         directional: directional variograms and the anisotropy they suggest (None with
             fewer than :data:`MIN_HOLES_FOR_DIRECTIONS` full holes).
         cv_table: per-hole leave-one-out residuals (:data:`CV_COLUMNS`).
@@ -296,6 +298,8 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         model, exp, directional, source, more = choose_variogram(name, fx, fy, ft, settings,
                                                                  grid)
         notes.extend(more)
+        # the model kept from the previous run, while this fit agrees with it
+        model, source = settle_variogram(name, model, source)
 
     def krige_data(active: np.ndarray):
         dx = np.concatenate([fx, bx[active]])

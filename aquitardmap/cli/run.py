@@ -31,9 +31,13 @@ from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
                    "--compute dask). Without it, dask mode starts local worker processes.")
 @click.option("--workers", type=click.IntRange(min=0), default=None,
               help="Local Dask worker processes when no scheduler is given (0: one per core).")
+@click.option("--refit-variograms", "refit_variograms", is_flag=True,
+              help="Use this run's fitted variograms even where they agree with the ones "
+                   "kept from the previous run (see [kriging] reuse_variogram_within).")
 @click.option("--debug", is_flag=True, help="Show the traceback of an internal error.")
 def run_command(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | None,
-                scheduler: str | None, workers: int | None, debug: bool) -> None:
+                scheduler: str | None, workers: int | None, refit_variograms: bool,
+                debug: bool) -> None:
     """Run every stage on the PROJECT folder and write grids, zones, boreholes, summary and
     the planners' map to --out."""
     overrides: dict[str, object] = {}
@@ -64,7 +68,8 @@ def run_command(project: Path, out_dir: Path, offline_map: bool, compute_mode: s
 
         result = guarded(lambda: run(project, out_dir, progress=progress,
                                      self_contained_map=offline_map,
-                                     compute=compute_settings()), debug)
+                                     compute=compute_settings(),
+                                     refit_variograms=refit_variograms), debug)
         bar.update(task, description="Done", completed=5)
     s = result.summary
     areas = s["zones"]["area_m2_by_kind"]
