@@ -3,34 +3,47 @@
 With a moving neighbourhood of the ``k`` nearest data (ordinary kriging as in Isaaks &
 Srivastava 1989, ch. 12, with the neighbourhood search of their ch. 14), the estimate and
 variance at a cell depend only on the variogram model, ``k``, the cell's position and its
-``k`` nearest data (with their values). After boreholes are added, removed or changed, a
-cell's ``k`` nearest data can change only if a changed datum lies within the cell's
-``k``-th neighbour distance ``d_k`` (in the data set that holds that datum: the new one for
-an added datum, the old one for a removed datum, either for a changed value).
+``k`` nearest data (with their values). Neighbours are the nearest in the frame where the
+variogram is isotropic (rotation and stretch of the minor axis by the anisotropy ratio;
+plain distance without anisotropy); all distances below are in that frame. After boreholes
+are added, removed or changed, a cell ``c``'s ``k`` nearest data can change only if a
+changed datum ``p`` lies within the cell's ``k``-th neighbour distance ``d_k(c)`` (in the
+data set that holds that datum: the new one for an added datum, the old one for a removed
+datum, either for a changed value).
 
 The grid is cut into *tiles*: squares of ``tile_cells`` × ``tile_cells`` cells on the
 absolute lattice of the CRS (so they line up between runs even when the study area grows).
-``d_k`` of every cell of a tile is bounded by the triangle inequality: with ``r_k`` the
-``k``-th neighbour distance at the tile centre and ``h`` its half-diagonal,
-``d_k(c) <= r_k + h`` for every cell ``c`` of the tile, and ``|c - centre| <= h``; so if no
-changed datum lies within ``r_k + 2h`` of the centre, no cell of the tile changed. (With
-geometric anisotropy the neighbours are the nearest after a rotation and a stretch of one
-axis by the ratio ``a``; distances then change by a factor between ``min(1, a)`` and
-``max(1, a)``, and the bound is widened by those factors, whatever the rotation convention
-of the engine.)
+For a tile with centre ``m``, half-diagonal ``h`` and ``r_k = d_k(m)``, every point ``c`` of
+the tile has ``d_k(c) <= r_k + h`` (``d_k`` is 1-Lipschitz) and ``|c - p| >= |m - p| - h``;
+so if ``|m - p| > r_k + 2h`` no point of the tile has ``p`` among its neighbours.
+
+Which tiles to test: ``g(c) = d_k(c) − |c − p|`` never increases along a ray leaving ``p``
+(both terms change at the same rate at most), so the cells that can see ``p`` form a region
+that is star-shaped about ``p``. The search starts at ``p``'s tile and tests square rings of
+tiles of growing size; once every tile of a ring (a closed band around ``p``) fails the test,
+every point beyond it fails too — the segment from ``p`` to such a point crosses the ring
+where ``g < 0`` already. For ``p`` inside the grid only the part of a ring inside the grid
+is needed (the segment from ``p`` to a grid cell stays in the grid, a rectangle); for ``p``
+outside the grid every tile of the grid is tested. The work is proportional to the area a
+changed hole reaches, not to the grid.
 
 So the cache keeps, per variogram model and ``k``, the data and the kriged grid of the last
-run. The next run compares the data (added, removed and changed points), marks the tiles
-that a changed point can reach, and kriges only their cells and the cells new to the study
-area — in one call of the engine with all the data, exactly as a run without cache would
-krige them. Every other cell keeps its cached estimate and variance: it has the same
-neighbours with the same values, hence the same kriging system (equal to a full re-run to
-rounding, e.g. from the centre of the engine's anisotropy frame moving with the data's
-extent; tested to 1e-9). A different model or ``k`` never reuses anything.
+run. The next run compares the data (added, removed and changed points), finds the tiles a
+changed point can reach, and kriges only their cells and the cells new to the study area —
+in one call of the engine with all the data, exactly as a run without cache would krige
+them. Every other cell keeps its cached estimate and variance: it has the same neighbours
+with the same values, hence the same kriging system (equal to a full re-run to rounding,
+e.g. from the centre of the engine's anisotropy frame moving with the data's extent; tested
+to 1e-9). A different model or ``k`` never reuses anything.
 
-Entries are folders of ``.npy`` arrays written under a temporary name and renamed into
-place (a killed run leaves no half-written entry); :meth:`TileCache.prune` removes entries
-a successful run did not write.
+Entries are folders written under a temporary name and renamed into place (a killed run
+leaves no half-written entry). A *full* entry holds the whole grid (``estimate.npy``,
+``variance.npy``, ``mask.npy``); when the grid is unchanged an entry is a *patch* of the
+entry it was made from: only the cells kriged again (``index.npy`` and their values), so a
+run after a few new holes writes kilobytes, not the whole grid. A patch is read by reading
+its chain back to a full entry; after :data:`MAX_CHAIN` patches, or when a patch would hold
+more than :data:`PATCH_FRACTION` of the cells, a full entry is written instead.
+:meth:`TileCache.prune` removes the entries a successful run neither wrote nor builds on.
 """
 
 from __future__ import annotations
@@ -39,6 +52,7 @@ import contextlib
 import contextvars
 import hashlib
 import json
+import math
 import os
 import shutil
 import tempfile
@@ -53,13 +67,18 @@ from aquitardmap.grid import Grid
 from aquitardmap.variogram import VariogramModel
 
 #: Version of the entry format (change it when the kriging itself changes).
-CACHE_FORMAT = "regrid-v2"
+CACHE_FORMAT = "regrid-v3"
 #: Default tile side (grid cells).
 TILE_CELLS = 4
-#: Every COARSE-th tile (in each direction) gets an exact k-th neighbour distance first.
-COARSE = 4
+#: Longest chain of patch entries before a full entry is written.
+MAX_CHAIN = 8
+#: A patch holding more than this fraction of the grid's cells is written as a full entry.
+PATCH_FRACTION = 0.25
+#: Relative and absolute (m) slack of the reach test (ties, rounding, the engine's frame).
+_REL_SLACK = 1e-9
+_ABS_SLACK = 1e-6
 
-_ENTRY_ARRAYS = ("x", "y", "z", "estimate", "variance", "mask", "origin")
+_META = "meta.json"
 
 #: ``krige(x, y, values, model, xt, yt, max_neighbours=k) -> (estimate, variance)``
 KrigeFn = Callable[..., tuple[np.ndarray, np.ndarray]]
@@ -87,10 +106,173 @@ def _rows(x: np.ndarray, y: np.ndarray, z: np.ndarray) -> np.ndarray:
     return a.view(np.dtype((np.void, 24))).ravel()
 
 
+def _differ(new: np.ndarray, old: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Which items of ``new`` are not in ``old``, and which of ``old`` are not in ``new``
+    (rows of :func:`_rows`)."""
+    a, b = new.tolist(), old.tolist()
+    in_a, in_b = set(a), set(b)
+    return (np.fromiter((r not in in_b for r in a), dtype=bool, count=len(a)),
+            np.fromiter((r not in in_a for r in b), dtype=bool, count=len(b)))
+
+
+def frame_matrix(model: VariogramModel) -> np.ndarray:
+    """The linear map (2, 2) into the frame where the model is isotropic: rotation by minus
+    the major-axis angle, then the minor axis stretched by the ratio (the map of
+    :func:`aquitardmap.variogram.anisotropic_coordinates`)."""
+    a = math.radians(float(model.anisotropy_angle_deg))
+    c, s = math.cos(a), math.sin(a)
+    r = float(model.anisotropy_ratio)
+    return np.array([[c, s], [-s * r, c * r]])
+
+
+@dataclass(frozen=True)
+class _Lattice:
+    """The tiles of a grid: absolute tile indices (row ``i`` down, column ``j``) of tiles of
+    ``side`` cells, the range of them that meets the grid, and their geometry relative to
+    the grid's top-left corner (for precision)."""
+
+    grid: Grid
+    side: int
+
+    @property
+    def cell(self) -> float:
+        return float(self.grid.transform.a)
+
+    @property
+    def row0(self) -> int:
+        return int(round(-self.grid.transform.f / self.cell))
+
+    @property
+    def col0(self) -> int:
+        return int(round(self.grid.transform.c / self.cell))
+
+    @property
+    def tile_range(self) -> tuple[int, int, int, int]:
+        """(first i, last i, first j, last j) of the tiles that meet the grid."""
+        g, s = self.grid, self.side
+        return (self.row0 // s, (self.row0 + g.height - 1) // s,
+                self.col0 // s, (self.col0 + g.width - 1) // s)
+
+    def centres(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        """Tile centres (n, 2), m east and north of the grid's top-left corner."""
+        s, cell = self.side, self.cell
+        return np.column_stack([((j * s + s / 2.0) - self.col0) * cell,
+                                -((i * s + s / 2.0) - self.row0) * cell])
+
+    def tile_of(self, xy: np.ndarray) -> tuple[int, int]:
+        """Tile holding the point ``xy`` (project CRS)."""
+        cell = self.cell
+        return (int(math.floor(-xy[1] / cell / self.side)),
+                int(math.floor(xy[0] / cell / self.side)))
+
+    def inside(self, xy: np.ndarray) -> bool:
+        """True when the point lies inside the grid's rectangle (not on its edge)."""
+        t, g = self.grid.transform, self.grid
+        return (t.c < xy[0] < t.c + g.width * self.cell
+                and t.f - g.height * self.cell < xy[1] < t.f)
+
+    def cells(self, i: np.ndarray, j: np.ndarray
+              ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Rows and columns of the grid cells of tiles (i, j) inside the grid, and the
+        position in (i, j) of each cell's tile."""
+        s = self.side
+        off = np.arange(s)
+        rr = (i[:, None] * s - self.row0 + off[None, :])[:, :, None]
+        cc = (j[:, None] * s - self.col0 + off[None, :])[:, None, :]
+        which = np.broadcast_to(np.arange(i.size)[:, None, None], (i.size, s, s)).ravel()
+        rr, cc = np.broadcast_arrays(rr, cc)
+        rr, cc = rr.ravel(), cc.ravel()
+        ok = (rr >= 0) & (rr < self.grid.height) & (cc >= 0) & (cc < self.grid.width)
+        return rr[ok], cc[ok], which[ok]
+
+
+def reached_cells(lattice: _Lattice, k: int, model: VariogramModel, data_xy: np.ndarray,
+                  points_xy: np.ndarray) -> np.ndarray:
+    """Flat indices (row * width + column, sorted) of the grid cells that may have one of
+    ``points_xy`` among their ``k`` nearest of ``data_xy`` (which holds those points).
+
+    Tiles are found by the ring search of the module docstring; inside a reached tile with
+    centre ``m`` a cell ``c`` is kept when ``|c − p| <= r_k + |c − m|`` (its own ``d_k`` is
+    at most that), which needs no further neighbour search.
+    """
+    i0, i1, j0, j1 = lattice.tile_range
+    if len(points_xy) == 0:
+        return np.empty(0, dtype=np.int64)
+    t = lattice.grid.transform
+    ref = np.array([t.c, t.f])
+    a = frame_matrix(model)
+    half = lattice.side * lattice.cell / 2.0
+    h = max(float(np.hypot(*(a @ [half, half]))), float(np.hypot(*(a @ [half, -half]))))
+    stretch_min = min(1.0, float(model.anisotropy_ratio))
+    tree = cKDTree((np.asarray(data_xy, float) - ref) @ a.T)
+    kk = int(min(k, len(data_xy)))
+    r_k = np.full((i1 - i0 + 1, j1 - j0 + 1), np.nan)  # at tile centres, as needed
+
+    def within(dist: np.ndarray, bound: np.ndarray) -> np.ndarray:
+        return dist <= bound * (1.0 + _REL_SLACK) + _ABS_SLACK  # ties, rounding
+
+    def reach(ii: np.ndarray, jj: np.ndarray, pa: np.ndarray) -> tuple[np.ndarray, ...]:
+        """The tile test for tiles (ii, jj) and a point at ``pa`` (frame); also returns
+        the tiles' centres (frame) and r_k."""
+        li, lj = ii - i0, jj - j0
+        centres = lattice.centres(ii, jj) @ a.T
+        need = np.isnan(r_k[li, lj])
+        if need.any():
+            d, _ = tree.query(centres[need], k=kk)
+            r_k[li[need], lj[need]] = d[:, -1] if d.ndim == 2 else d
+        rk = r_k[li, lj]
+        return within(np.hypot(*(centres - pa).T), rk + 2.0 * h), centres, rk
+
+    every = (np.repeat(np.arange(i0, i1 + 1), j1 - j0 + 1),
+             np.tile(np.arange(j0, j1 + 1), i1 - i0 + 1))
+    found = []
+    for p in np.asarray(points_xy, float):
+        pa = a @ (p - ref)
+        if not lattice.inside(p):  # rays from p may enter the grid anywhere: test it all
+            ii, jj = every
+            got, centres, rk = reach(ii, jj, pa)
+        else:
+            ip, jp = lattice.tile_of(p)
+            d0, _ = tree.query(pa, k=kk)
+            rk_p = float(np.atleast_1d(d0)[-1])
+            radius = (rk_p + 2.0 * h) / (2.0 * half * stretch_min) + 1.5  # tiles
+            while True:
+                # tiles of a disc about p's tile (inside the grid), and its ring: the tiles
+                # of the disc with a neighbour (sides and corners) outside it
+                r = int(math.ceil(radius))
+                bi = np.arange(max(ip - r, i0), min(ip + r, i1) + 1) - ip
+                bj = np.arange(max(jp - r, j0), min(jp + r, j1) + 1) - jp
+                di, dj = np.repeat(bi, bj.size), np.tile(bj, bi.size)
+                disc = di * di + dj * dj <= radius * radius
+                di, dj = di[disc], dj[disc]
+                ii, jj = di + ip, dj + jp
+                got, centres, rk = reach(ii, jj, pa)
+                ring = (np.abs(di) + 1) ** 2 + (np.abs(dj) + 1) ** 2 > radius * radius
+                whole = ii.size == (i1 - i0 + 1) * (j1 - j0 + 1)
+                if whole or not (got & ring).any():
+                    break
+                radius *= 1.3
+        found.append((ii[got], jj[got], centres[got], rk[got],
+                      np.broadcast_to(pa, (int(got.sum()), 2))))
+    # the cells of the reached tiles, each tested against its tile's r_k
+    ii, jj, centres, rk, pa = (np.concatenate(f) for f in zip(*found, strict=True))
+    rr, cc, which = lattice.cells(ii, jj)
+    ca = np.column_stack([(cc + 0.5) * lattice.cell, -(rr + 0.5) * lattice.cell]) @ a.T
+    keep = within(np.hypot(*(ca - pa[which]).T),
+                  rk[which] + np.hypot(*(ca - centres[which]).T))
+    return _unique(rr[keep].astype(np.int64) * lattice.grid.width + cc[keep])
+
+
+def _unique(a: np.ndarray) -> np.ndarray:
+    """Sorted distinct values of an integer array."""
+    a = np.sort(a)
+    return a[np.r_[True, a[1:] != a[:-1]]] if a.size else a
+
+
 @dataclass
 class TileCache:
-    """A folder of kriged grids, one per variogram model and ``k`` (see the module
-    docstring)."""
+    """A folder of kriged grids, one chain of entries per variogram model and ``k`` (see the
+    module docstring)."""
 
     folder: Path
     tile_cells: int = TILE_CELLS
@@ -101,53 +283,92 @@ class TileCache:
         self.folder = Path(self.folder)
         self.folder.mkdir(parents=True, exist_ok=True)
 
-    # ---------------------------------------------------------------------------------------
-    def _entries(self, model_key: str) -> list[Path]:
-        return sorted(p for p in self.folder.glob(f"{model_key}-*") if p.is_dir())
+    # --------------------------------------------------------------------------- entries
+    def _meta(self, name: str) -> dict | None:
+        try:
+            meta = json.loads((self.folder / name / _META).read_text())
+        except (OSError, ValueError):
+            return None
+        return meta if isinstance(meta, dict) and meta.get("format") == CACHE_FORMAT else None
 
-    def _best(self, model_key: str, rows: np.ndarray) -> dict | None:
-        """The entry of this model whose data differ least from ``rows`` (its grids are
-        memory-mapped, read only where reused)."""
+    def _chain(self, name: str) -> list[tuple[str, dict]] | None:
+        """The entry and the entries it builds on, down to a full one (None if broken)."""
+        out: list[tuple[str, dict]] = []
+        while len(out) <= MAX_CHAIN + 1:
+            meta = self._meta(name)
+            if meta is None:
+                return None
+            out.append((name, meta))
+            if meta["kind"] == "full":
+                return out
+            name = meta["base"]
+        return None
+
+    def _grids(self, chain: list[tuple[str, dict]]
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """Estimate, variance and mask of an entry (its chain applied in order)."""
+        try:
+            full = self.folder / chain[-1][0]
+            est = np.load(full / "estimate.npy")
+            var = np.load(full / "variance.npy")
+            mask = np.load(full / "mask.npy")
+            for name, _ in reversed(chain[:-1]):
+                idx = np.load(self.folder / name / "index.npy")
+                est.flat[idx] = np.load(self.folder / name / "estimate.npy")
+                var.flat[idx] = np.load(self.folder / name / "variance.npy")
+        except (OSError, ValueError, IndexError):
+            return None
+        return est, var, mask
+
+    def _best(self, model_key: str, rows: np.ndarray):
+        """The entry of this model whose data differ least from ``rows``: (name, chain,
+        its x, y, z, which of ``rows`` it lacks, which of its rows ``rows`` lacks)."""
         best, best_diff = None, None
-        for path in self._entries(model_key):
-            if path.name in self.written:
+        for path in sorted(self.folder.glob(f"{model_key}-*")):
+            if path.name in self.written or not path.is_dir():
                 continue  # another grid of this run, same model: not ours
+            chain = self._chain(path.name)
+            if chain is None:
+                continue
             try:
-                entry = {name: np.load(path / f"{name}.npy", mmap_mode="r")
-                         for name in _ENTRY_ARRAYS}
-                old = _rows(entry["x"], entry["y"], entry["z"])
+                x, y, z = (np.load(path / f"{a}.npy") for a in ("x", "y", "z"))
+                old = _rows(x, y, z)
             except (OSError, ValueError):
                 continue
-            diff = old.size + rows.size - 2 * int(np.isin(old, rows).sum())
+            added, removed = _differ(rows, old)
+            diff = int(added.sum()) + int(removed.sum())
             if best_diff is None or diff < best_diff:
-                best_diff, best = diff, entry
+                best_diff, best = diff, (path.name, chain, x, y, z, added, removed)
         return best
 
-    def _save(self, model_key: str, **arrays: np.ndarray) -> None:
+    def _save(self, name: str, meta: dict, arrays: dict[str, np.ndarray]) -> None:
         """Write an entry folder under a temporary name and rename it into place."""
-        data_key = hashlib.sha256(_rows(arrays["x"], arrays["y"], arrays["z"]).tobytes()
-                                  + np.packbits(arrays["mask"]).tobytes()
-                                  + np.asarray(arrays["origin"]).tobytes()).hexdigest()[:24]
-        name = f"{model_key}-{data_key}"
         self.written.add(name)
         target = self.folder / name
-        if target.is_dir():
+        if target.is_dir() and self._chain(name) is not None:
             return  # the same data on the same grid: the same numbers are there already
         tmp = Path(tempfile.mkdtemp(prefix=".entry-", dir=self.folder))
         try:
             for key, arr in arrays.items():
                 np.save(tmp / f"{key}.npy", np.ascontiguousarray(arr))
+            (tmp / _META).write_text(json.dumps({"format": CACHE_FORMAT, **meta}))
+            if target.exists():
+                shutil.rmtree(target, ignore_errors=True)
             os.replace(tmp, target)
         except BaseException:
             shutil.rmtree(tmp, ignore_errors=True)
             raise
 
     def prune(self) -> int:
-        """Delete the entries this cache did not write since it was opened (and leftovers
-        of killed runs); returns how many."""
+        """Delete the entries this cache neither wrote since it was opened nor builds on
+        (and leftovers of killed runs); returns how many."""
+        keep = set()
+        for name in self.written:
+            for base, _ in self._chain(name) or [(name, {})]:
+                keep.add(base)
         n = 0
         for p in self.folder.iterdir():
-            if p.name not in self.written:
+            if p.name not in keep:
                 if p.is_dir():
                     shutil.rmtree(p, ignore_errors=True)
                 else:
@@ -155,62 +376,7 @@ class TileCache:
                 n += 1
         return n
 
-    # ---------------------------------------------------------------------------------------
-    def _changed_tiles(self, grid: Grid, k: int, ratio: float, new_xy: np.ndarray,
-                       old_xy: np.ndarray, added: np.ndarray, removed: np.ndarray
-                       ) -> np.ndarray:
-        """Boolean (height, width): cells of tiles that a changed datum can reach."""
-        t = grid.transform
-        cell = float(t.a)
-        side = self.tile_cells
-        col0 = int(round(t.c / cell))
-        row0 = int(round(-t.f / cell))
-        pr0, pc0 = row0 // side, col0 // side
-        prs = np.arange(pr0, (row0 + grid.height - 1) // side + 1)
-        pcs = np.arange(pc0, (col0 + grid.width - 1) // side + 1)
-        ra = np.clip(prs * side - row0, 0, grid.height)
-        rb = np.clip((prs + 1) * side - row0, 0, grid.height)
-        ca = np.clip(pcs * side - col0, 0, grid.width)
-        cb = np.clip((pcs + 1) * side - col0, 0, grid.width)
-        cy = t.f - cell * (ra + rb) / 2.0
-        cx = t.c + cell * (ca + cb) / 2.0
-        hy, hx = cell * (rb - ra) / 2.0, cell * (cb - ca) / 2.0
-        centres = np.column_stack([np.tile(cx, cy.size), np.repeat(cy, cx.size)])
-        h = np.hypot(np.tile(hx, hy.size), np.repeat(hy, hx.size))
-        s_lo, s_hi = min(1.0, ratio), max(1.0, ratio)
-        hit = np.zeros(len(centres), dtype=bool)
-        # r_k at every COARSE-th tile centre bounds it everywhere (r_k is 1-Lipschitz), which
-        # picks the few candidate tiles whose exact r_k is then needed
-        ny, nx = cy.size, cx.size
-        iy, ix = np.divmod(np.arange(ny * nx), nx)
-        qy = np.minimum((iy // COARSE) * COARSE + COARSE // 2, ny - 1)
-        qx = np.minimum((ix // COARSE) * COARSE + COARSE // 2, nx - 1)
-        q = qy * nx + qx
-        coarse = (np.unique(qy[::nx])[:, None] * nx + np.unique(qx[:nx])[None, :]).ravel()
-        for pts, data_xy in ((added, new_xy), (removed, old_xy)):
-            if pts.size == 0:
-                continue
-            d_near, _ = cKDTree(pts).query(centres, k=1)
-            kk = min(k, len(data_xy))
-            tree = cKDTree(data_xy)
-
-            def kth(idx: np.ndarray, tree: cKDTree = tree, kk: int = kk) -> np.ndarray:
-                d, _ = tree.query(centres[idx], k=kk)
-                return d[:, -1] if d.ndim == 2 else d
-
-            r_q = np.empty(len(centres))
-            r_q[coarse] = kth(coarse)
-            upper = r_q[q] + np.hypot(*(centres - centres[q]).T)
-            cand = np.nonzero(d_near <= (s_hi * (upper + h) / s_lo + h) * (1.0 + 1e-9)
-                              + 1e-6)[0]
-            if cand.size:
-                reach = s_hi * (kth(cand) + h[cand]) / s_lo + h[cand]
-                hit[cand] |= d_near[cand] <= reach * (1.0 + 1e-9) + 1e-6  # ties, rounding
-        hit = hit.reshape(cy.size, cx.size)
-        full = np.repeat(np.repeat(hit, side, axis=0), side, axis=1)
-        r_off, c_off = row0 - pr0 * side, col0 - pc0 * side
-        return full[r_off:r_off + grid.height, c_off:c_off + grid.width]
-
+    # --------------------------------------------------------------------------- kriging
     def krige_grid(self, x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
                    model: VariogramModel, grid: Grid, max_neighbours: int,
                    krige: KrigeFn) -> tuple[np.ndarray, np.ndarray]:
@@ -223,58 +389,96 @@ class TileCache:
         Returns (height, width) arrays, NaN outside the mask.
         """
         x, y, z = (np.asarray(a, dtype=float).ravel() for a in (x_m, y_m, values))
-        n = x.size
-        if n == 0:
+        if x.size == 0:
             raise ValueError("no data to krige")
-        k = int(min(max_neighbours, n))
+        k = int(min(max_neighbours, x.size))
         t = grid.transform
         cell = float(t.a)
+        origin = [float(t.c), float(t.f)]
         model_key = hashlib.sha256(json.dumps(
             [CACHE_FORMAT, model.as_dict(), k, cell, self.tile_cells], sort_keys=True,
             default=str).encode()).hexdigest()[:16]
         rows = _rows(x, y, z)
-        est = np.full(grid.mask.shape, np.nan)
-        var = np.full(grid.mask.shape, np.nan)
-        todo = grid.mask.copy()
+        mask = grid.mask
         old = self._best(model_key, rows)
-        if old is not None:
-            dr = (t.f - float(old["origin"][1])) / cell  # new row = old row + dr
-            dc = (float(old["origin"][0]) - t.c) / cell  # new col = old col + dc
-            if abs(dr - round(dr)) < 1e-6 and abs(dc - round(dc)) < 1e-6:
-                dr, dc = int(round(dr)), int(round(dc))
-                old_mask = old["mask"]
-                # overlap of the old grid, shifted by (dr, dc), with the new one
-                r1, r2 = max(dr, 0), min(dr + old_mask.shape[0], grid.height)
-                c1, c2 = max(dc, 0), min(dc + old_mask.shape[1], grid.width)
-                window = (slice(r1, r2), slice(c1, c2))
-                sl_old = (slice(r1 - dr, r2 - dr), slice(c1 - dc, c2 - dc))
-                old_rows = _rows(old["x"], old["y"], old["z"])
-                added = ~np.isin(rows, old_rows)
-                removed = ~np.isin(old_rows, rows)
-                changed = self._changed_tiles(
-                    grid, k, float(model.anisotropy_ratio), np.column_stack([x, y]),
-                    np.column_stack([old["x"], old["y"]]),
-                    np.column_stack([x[added], y[added]]),
-                    np.column_stack([old["x"][removed], old["y"][removed]]))
-                n_keep = 0
-                if r1 < r2 and c1 < c2:
-                    keep = grid.mask[window] & old_mask[sl_old] & ~changed[window]
-                    est[window][keep] = old["estimate"][sl_old][keep]
-                    var[window][keep] = old["variance"][sl_old][keep]
-                    todo[window] &= ~keep
-                    n_keep = int(keep.sum())
-                self.stats.cells_reused += n_keep
-                self.stats.surfaces_reused += int(n_keep > 0)
-        if todo.any():
-            rr, cc = np.nonzero(todo)
+        grids = self._grids(old[1]) if old is not None else None
+        base = None  # the entry this run's entry can be a patch of
+        if old is None or grids is None:
+            est = np.full(mask.shape, np.nan)
+            var = np.full(mask.shape, np.nan)
+            rr, cc = np.nonzero(mask)
+        else:
+            name, chain, ox, oy, oz, added, removed = old
+            old_est, old_var, old_mask = grids
+            lattice = _Lattice(grid, self.tile_cells)
+            reached = _unique(np.concatenate([
+                reached_cells(lattice, k, model, np.column_stack([x, y]),
+                              np.column_stack([x[added], y[added]])),
+                reached_cells(lattice, k, model, np.column_stack([ox, oy]),
+                              np.column_stack([ox[removed], oy[removed]]))]))
+            meta = chain[0][1]
+            if (meta["origin"] == origin and tuple(meta["shape"]) == mask.shape
+                    and np.array_equal(old_mask, mask)):
+                # the same grid: start from the cached one, krige the reached cells
+                est, var = old_est, old_var
+                reached = reached[mask.flat[reached]]
+                rr, cc = np.divmod(reached, mask.shape[1])
+                if len(chain) <= MAX_CHAIN:
+                    base = name
+            else:
+                est, var, (rr, cc) = self._shifted(grid, reached, old_est, old_var,
+                                                   old_mask, meta)
+            n_keep = int(mask.sum()) - rr.size
+            self.stats.cells_reused += n_keep
+            self.stats.surfaces_reused += int(n_keep > 0)
+        if rr.size:
             e, v = krige(x, y, z, model, t.c + cell * (cc + 0.5), t.f - cell * (rr + 0.5),
                          max_neighbours=k)
-            est[todo] = np.asarray(e, dtype=float)
-            var[todo] = np.asarray(v, dtype=float)
-            self.stats.cells_computed += int(todo.sum())
-        self._save(model_key, x=x, y=y, z=z, estimate=est, variance=var, mask=grid.mask,
-                   origin=np.array([t.c, t.f]))
+            est[rr, cc] = np.asarray(e, dtype=float)
+            var[rr, cc] = np.asarray(v, dtype=float)
+            self.stats.cells_computed += int(rr.size)
+        data_key = hashlib.sha256(rows.tobytes() + np.packbits(mask).tobytes()
+                                  + np.asarray(origin).tobytes()).hexdigest()[:24]
+        meta = {"origin": origin, "shape": list(mask.shape)}
+        arrays = {"x": x, "y": y, "z": z}
+        if base is not None and rr.size <= PATCH_FRACTION * mask.size:
+            index = (rr.astype(np.int64) * mask.shape[1] + cc).astype(np.int64)
+            arrays.update(index=index, estimate=est.flat[index], variance=var.flat[index])
+            meta.update(kind="patch", base=base)
+        else:
+            arrays.update(estimate=est, variance=var, mask=mask)
+            meta.update(kind="full")
+        self._save(f"{model_key}-{data_key}", meta, arrays)
         return est, var
+
+    @staticmethod
+    def _shifted(grid: Grid, reached: np.ndarray, old_est: np.ndarray, old_var: np.ndarray,
+                 old_mask: np.ndarray, meta: dict):
+        """A grid whose extent or mask changed: the cached cells it shares with the old
+        grid, other than the ``reached`` ones (flat indices), are kept; returns (estimate,
+        variance, (rows, columns) of the cells to krige)."""
+        mask = grid.mask
+        changed = np.zeros(mask.shape, dtype=bool)
+        changed.flat[reached] = True
+        t = grid.transform
+        cell = float(t.a)
+        est = np.full(mask.shape, np.nan)
+        var = np.full(mask.shape, np.nan)
+        todo = mask.copy()
+        dr = (t.f - float(meta["origin"][1])) / cell  # new row = old row + dr
+        dc = (float(meta["origin"][0]) - t.c) / cell  # new col = old col + dc
+        if abs(dr - round(dr)) < 1e-6 and abs(dc - round(dc)) < 1e-6:
+            dr, dc = int(round(dr)), int(round(dc))
+            r1, r2 = max(dr, 0), min(dr + old_mask.shape[0], grid.height)
+            c1, c2 = max(dc, 0), min(dc + old_mask.shape[1], grid.width)
+            if r1 < r2 and c1 < c2:
+                window = (slice(r1, r2), slice(c1, c2))
+                sl_old = (slice(r1 - dr, r2 - dr), slice(c1 - dc, c2 - dc))
+                keep = mask[window] & old_mask[sl_old] & ~changed[window]
+                est[window][keep] = old_est[sl_old][keep]
+                var[window][keep] = old_var[sl_old][keep]
+                todo[window] &= ~keep
+        return est, var, np.nonzero(todo)
 
 
 def current_tile_cache() -> TileCache | None:
@@ -294,4 +498,4 @@ def tile_cache(folder: str | Path, *, tile_cells: int = TILE_CELLS) -> Iterator[
 
 
 __all__ = ["CACHE_FORMAT", "TILE_CELLS", "TileCache", "TileStats", "current_tile_cache",
-           "tile_cache"]
+           "frame_matrix", "reached_cells", "tile_cache"]
