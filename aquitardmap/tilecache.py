@@ -69,7 +69,7 @@ from aquitardmap.variogram import VariogramModel
 #: Version of the entry format (change it when the kriging itself changes).
 CACHE_FORMAT = "regrid-v3"
 #: Default tile side (grid cells).
-TILE_CELLS = 4
+TILE_CELLS = 6
 #: Longest chain of patch entries before a full entry is written.
 MAX_CHAIN = 8
 #: A patch holding more than this fraction of the grid's cells is written as a full entry.
@@ -191,76 +191,81 @@ def reached_cells(lattice: _Lattice, k: int, model: VariogramModel, data_xy: np.
     """Flat indices (row * width + column, sorted) of the grid cells that may have one of
     ``points_xy`` among their ``k`` nearest of ``data_xy`` (which holds those points).
 
-    Tiles are found by the ring search of the module docstring; inside a reached tile with
-    centre ``m`` a cell ``c`` is kept when ``|c − p| <= r_k + |c − m|`` (its own ``d_k`` is
-    at most that), which needs no further neighbour search.
+    Tiles are found by the flood fill of the module docstring, for all points at once;
+    inside a reached tile with centre ``m`` a cell ``c`` is kept when ``|c − p| <= r_k +
+    |c − m|`` (its own ``d_k`` is at most that), which needs no further neighbour search.
     """
-    i0, i1, j0, j1 = lattice.tile_range
-    if len(points_xy) == 0:
+    points = np.asarray(points_xy, float).reshape(-1, 2)
+    if len(points) == 0:
         return np.empty(0, dtype=np.int64)
+    i0, i1, j0, j1 = lattice.tile_range
+    ni, nj = i1 - i0 + 1, j1 - j0 + 1
     t = lattice.grid.transform
     ref = np.array([t.c, t.f])
     a = frame_matrix(model)
     half = lattice.side * lattice.cell / 2.0
     h = max(float(np.hypot(*(a @ [half, half]))), float(np.hypot(*(a @ [half, -half]))))
-    stretch_min = min(1.0, float(model.anisotropy_ratio))
     tree = cKDTree((np.asarray(data_xy, float) - ref) @ a.T)
     kk = int(min(k, len(data_xy)))
-    r_k = np.full((i1 - i0 + 1, j1 - j0 + 1), np.nan)  # at tile centres, as needed
+    r_k = np.full(ni * nj, np.nan)  # at tile centres (local index i * nj + j), as needed
+    pa = (points - ref) @ a.T
 
-    def within(dist: np.ndarray, bound: np.ndarray) -> np.ndarray:
-        return dist <= bound * (1.0 + _REL_SLACK) + _ABS_SLACK  # ties, rounding
-
-    def reach(ii: np.ndarray, jj: np.ndarray, pa: np.ndarray) -> tuple[np.ndarray, ...]:
-        """The tile test for tiles (ii, jj) and a point at ``pa`` (frame); also returns
-        the tiles' centres (frame) and r_k."""
-        li, lj = ii - i0, jj - j0
-        centres = lattice.centres(ii, jj) @ a.T
-        need = np.isnan(r_k[li, lj])
-        if need.any():
+    def reach(tile: np.ndarray, point: np.ndarray) -> np.ndarray:
+        """The tile test for (local tile index, point index) pairs."""
+        li, lj = np.divmod(tile, nj)
+        centres = lattice.centres(li + i0, lj + j0) @ a.T
+        need = np.flatnonzero(np.isnan(r_k[tile]))
+        if need.size:
             d, _ = tree.query(centres[need], k=kk)
-            r_k[li[need], lj[need]] = d[:, -1] if d.ndim == 2 else d
-        rk = r_k[li, lj]
-        return within(np.hypot(*(centres - pa).T), rk + 2.0 * h), centres, rk
+            r_k[tile[need]] = d[:, -1] if d.ndim == 2 else d
+        dist = np.hypot(*(centres - pa[point]).T)
+        return _within(dist, r_k[tile] + 2.0 * h)
 
-    every = (np.repeat(np.arange(i0, i1 + 1), j1 - j0 + 1),
-             np.tile(np.arange(j0, j1 + 1), i1 - i0 + 1))
-    found = []
-    for p in np.asarray(points_xy, float):
-        pa = a @ (p - ref)
-        if not lattice.inside(p):  # rays from p may enter the grid anywhere: test it all
-            ii, jj = every
-            got, centres, rk = reach(ii, jj, pa)
-        else:
-            ip, jp = lattice.tile_of(p)
-            d0, _ = tree.query(pa, k=kk)
-            rk_p = float(np.atleast_1d(d0)[-1])
-            radius = (rk_p + 2.0 * h) / (2.0 * half * stretch_min) + 1.5  # tiles
-            while True:
-                # tiles of a disc about p's tile (inside the grid), and its ring: the tiles
-                # of the disc with a neighbour (sides and corners) outside it
-                r = int(math.ceil(radius))
-                bi = np.arange(max(ip - r, i0), min(ip + r, i1) + 1) - ip
-                bj = np.arange(max(jp - r, j0), min(jp + r, j1) + 1) - jp
-                di, dj = np.repeat(bi, bj.size), np.tile(bj, bi.size)
-                disc = di * di + dj * dj <= radius * radius
-                di, dj = di[disc], dj[disc]
-                ii, jj = di + ip, dj + jp
-                got, centres, rk = reach(ii, jj, pa)
-                ring = (np.abs(di) + 1) ** 2 + (np.abs(dj) + 1) ** 2 > radius * radius
-                whole = ii.size == (i1 - i0 + 1) * (j1 - j0 + 1)
-                if whole or not (got & ring).any():
-                    break
-                radius *= 1.3
-        found.append((ii[got], jj[got], centres[got], rk[got],
-                      np.broadcast_to(pa, (int(got.sum()), 2))))
+    # points outside the grid: rays from them may enter it anywhere, so every tile
+    outside = np.array([not lattice.inside(p) for p in points])
+    every = np.arange(ni * nj)
+    pairs_t = [np.tile(every, int(outside.sum()))]
+    pairs_p = [np.repeat(np.flatnonzero(outside), every.size)]
+    hits_t = [pairs_t[0][reach(pairs_t[0], pairs_p[0])]] if outside.any() else []
+    hits_p = [pairs_p[0][reach(pairs_t[0], pairs_p[0])]] if outside.any() else []
+    # points inside: flood from each point's tile through reached tiles (8 neighbours)
+    inner = np.flatnonzero(~outside)
+    start = np.array([lattice.tile_of(p) for p in points[inner]], dtype=np.int64
+                     ).reshape(-1, 2)
+    key_t = (start[:, 0] - i0) * nj + (start[:, 1] - j0)
+    key_p = inner
+    seen = np.sort(key_p * (ni * nj) + key_t)
+    steps = np.array([(di, dj) for di in (-1, 0, 1) for dj in (-1, 0, 1) if di or dj])
+    while key_t.size:
+        got = reach(key_t, key_p)
+        key_t, key_p = key_t[got], key_p[got]
+        hits_t.append(key_t)
+        hits_p.append(key_p)
+        li, lj = np.divmod(key_t, nj)
+        ni_ = (li[:, None] + steps[:, 0]).ravel()
+        nj_ = (lj[:, None] + steps[:, 1]).ravel()
+        pp = np.repeat(key_p, len(steps))
+        ok = (ni_ >= 0) & (ni_ < ni) & (nj_ >= 0) & (nj_ < nj)
+        key = _unique(pp[ok] * (ni * nj) + ni_[ok] * nj + nj_[ok])
+        pos = np.searchsorted(seen, key)
+        new = key[(pos >= seen.size) | (seen[np.minimum(pos, seen.size - 1)] != key)]
+        seen = _unique(np.concatenate([seen, new]))
+        key_p, key_t = np.divmod(new, ni * nj)
+    tile = np.concatenate(hits_t)
+    point = np.concatenate(hits_p)
     # the cells of the reached tiles, each tested against its tile's r_k
-    ii, jj, centres, rk, pa = (np.concatenate(f) for f in zip(*found, strict=True))
-    rr, cc, which = lattice.cells(ii, jj)
+    li, lj = np.divmod(tile, nj)
+    centres = lattice.centres(li + i0, lj + j0) @ a.T
+    rr, cc, which = lattice.cells(li + i0, lj + j0)
     ca = np.column_stack([(cc + 0.5) * lattice.cell, -(rr + 0.5) * lattice.cell]) @ a.T
-    keep = within(np.hypot(*(ca - pa[which]).T),
-                  rk[which] + np.hypot(*(ca - centres[which]).T))
+    keep = _within(np.hypot(*(ca - pa[point[which]]).T),
+                   r_k[tile[which]] + np.hypot(*(ca - centres[which]).T))
     return _unique(rr[keep].astype(np.int64) * lattice.grid.width + cc[keep])
+
+
+def _within(dist: np.ndarray, bound: np.ndarray) -> np.ndarray:
+    """``dist <= bound`` with room for ties and rounding."""
+    return dist <= bound * (1.0 + _REL_SLACK) + _ABS_SLACK
 
 
 def _unique(a: np.ndarray) -> np.ndarray:
