@@ -7,6 +7,9 @@ nearest ``k`` data), and a run with an empty cache. Data here are random (no mea
 
 from __future__ import annotations
 
+import json
+import shutil
+
 import numpy as np
 import pytest
 from affine import Affine
@@ -137,3 +140,112 @@ def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
         np.testing.assert_allclose(again.surfaces[name].thickness_m, s.thickness_m, rtol=0,
                                    atol=1e-9)
         np.testing.assert_allclose(again.surfaces[name].sd_m, s.sd_m, rtol=0, atol=1e-9)
+
+
+# --------------------------------------------------------------------------------------------
+# The reach of a changed hole, against brute force: every cell whose k nearest data (in the
+# variogram's isotropic frame, scipy's cKDTree on all cells) differ between the old and the
+# new data set must be among the cells the cache kriges again.
+
+def _knn_sets(xy, grid, model, k):
+    from scipy.spatial import cKDTree
+
+    from aquitardmap.tilecache import frame_matrix
+
+    a = frame_matrix(model)
+    xs, ys = grid.cell_centres()
+    gx, gy = np.meshgrid(xs, ys)
+    cells = np.column_stack([gx.ravel(), gy.ravel()])
+    _, idx = cKDTree(xy @ a.T).query(cells @ a.T, k=k)
+    return idx
+
+
+@pytest.mark.parametrize("case", range(12))
+def test_reached_cells_hold_every_cell_whose_neighbours_changed(case):
+    from aquitardmap.tilecache import _Lattice, reached_cells
+
+    rng = np.random.default_rng(100 + case)
+    g = _grid(width=int(rng.integers(20, 60)), height=int(rng.integers(20, 60)), hole=False)
+    n = int(rng.integers(20, 200))
+    k = int(rng.integers(1, 20))
+    ratio = float(rng.choice([1.0, 1.0, 2.5, 6.0]))
+    model = VariogramModel("spherical", 0.2, 3.0, 2000.0, anisotropy_ratio=ratio,
+                           anisotropy_angle_deg=float(rng.uniform(-90, 90)))
+    x0, y0 = g.transform.c, g.transform.f
+    span_x, span_y = g.width * CELL, g.height * CELL
+    # data around and beyond the grid; some changed holes outside it
+    old = np.column_stack([rng.uniform(x0 - 0.3 * span_x, x0 + 1.3 * span_x, n),
+                           rng.uniform(y0 - 1.3 * span_y, y0 + 0.3 * span_y, n)])
+    n_add = int(rng.integers(1, 6))
+    added = np.column_stack([rng.uniform(x0 - 0.2 * span_x, x0 + 1.2 * span_x, n_add),
+                             rng.uniform(y0 - 1.2 * span_y, y0 + 0.2 * span_y, n_add)])
+    removed = rng.choice(n, int(rng.integers(0, 4)), replace=False)
+    new = np.concatenate([np.delete(old, removed, axis=0), added])
+    kk_old, kk_new = min(k, len(old)), min(k, len(new))
+    # neighbour sets as hole numbers, comparable between the two data sets
+    old_id = np.arange(n)
+    new_id = np.concatenate([np.delete(old_id, removed), n + np.arange(n_add)])
+    before = np.sort(old_id[_knn_sets(old, g, model, kk_old).reshape(-1, kk_old)], axis=1)
+    after = np.sort(new_id[_knn_sets(new, g, model, kk_new).reshape(-1, kk_new)], axis=1)
+    truly = np.flatnonzero(~(before == after).all(axis=1)) if kk_old == kk_new \
+        else np.arange(g.width * g.height)
+    assert truly.size > 0
+    lat = _Lattice(g, 6)
+    got = np.union1d(reached_cells(lat, k, model, new, added),
+                     reached_cells(lat, k, model, old, old[removed]))
+    assert np.isin(truly, got).all()
+    assert got.size <= g.width * g.height
+
+
+def test_a_chain_of_small_changes_equals_full_kriging_each_time(tmp_path):
+    from aquitardmap.tilecache import MAX_CHAIN
+
+    g = _grid(hole=False)
+    x, y, z = _data(500, 8)
+    rng = np.random.default_rng(9)
+    with tile_cache(tmp_path / "c") as cache:
+        krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    kinds = []
+    for step in range(MAX_CHAIN + 3):
+        if step % 3 == 2:  # remove two holes (as an undo does)
+            x, y, z = x[2:], y[2:], z[2:]
+        else:  # add three
+            x = np.concatenate([x, rng.uniform(500000.0, 509000.0, 3)])
+            y = np.concatenate([y, rng.uniform(6695000.0, 6702000.0, 3)])
+            z = np.concatenate([z, rng.normal(10.0, 2.0, 3)])
+        with tile_cache(tmp_path / "c") as cache:
+            got = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+        assert cache.stats.cells_reused > 0.5 * g.mask.size
+        cache.prune()
+        full = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+        np.testing.assert_allclose(got.estimate, full.estimate, rtol=0, atol=1e-9)
+        np.testing.assert_allclose(got.variance, full.variance, rtol=0, atol=1e-9)
+        entries = [p for p in (tmp_path / "c").iterdir()]
+        metas = [json.loads((p / "meta.json").read_text()) for p in entries]
+        kinds.append(sorted(m["kind"] for m in metas))
+        assert sum(m["kind"] == "full" for m in metas) == 1  # one full entry, its patches
+        assert len(entries) <= MAX_CHAIN + 1
+    # a full entry again once the chain reached its longest
+    assert kinds[MAX_CHAIN] == ["full"]
+
+
+def test_a_broken_chain_is_not_used(tmp_path):
+    g = _grid(hole=False)
+    x, y, z = _data(300, 10)
+    with tile_cache(tmp_path / "c"):
+        krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    x2, y2, z2 = (np.concatenate([a, [b]]) for a, b in ((x, 503000.0), (y, 6699000.0),
+                                                        (z, 30.0)))
+    with tile_cache(tmp_path / "c") as cache:
+        krige_grid(x2, y2, z2, MODEL, g, max_neighbours=12)
+    # the full entry the patch builds on disappears (a user cleaning up by hand)
+    for p in (tmp_path / "c").iterdir():
+        if json.loads((p / "meta.json").read_text())["kind"] == "full":
+            shutil.rmtree(p)
+    z3 = z2.copy()
+    z3[0] += 1.0
+    with tile_cache(tmp_path / "c") as cache:
+        got = krige_grid(x2, y2, z3, MODEL, g, max_neighbours=12)
+    assert cache.stats.cells_reused == 0
+    full = krige_grid(x2, y2, z3, MODEL, g, max_neighbours=12)
+    np.testing.assert_allclose(got.estimate, full.estimate, rtol=0, atol=1e-9)
