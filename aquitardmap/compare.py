@@ -86,7 +86,13 @@ def _problem(path: Path, message: str) -> InputError:
     return InputError([Problem(str(path), 0, 0, message)])
 
 
-def _check_run(run: Path) -> dict:
+def check_run(run: str | Path) -> dict:
+    """The summary of an output folder of :func:`aquitardmap.run`.
+
+    Raises:
+        InputError: the folder is not a run, or a file the comparison reads is missing.
+    """
+    run = Path(run)
     if not (run / outputs.SUMMARY).is_file():
         raise _problem(run, "not an aquitardmap output folder (no summary.json)")
     for name in (outputs.AQUITARD_THICKNESS, outputs.ZONES, outputs.BOREHOLES):
@@ -214,14 +220,25 @@ def _influence_m(summary_b: dict, cell_size_m: float) -> float:
     return 20.0 * cell_size_m
 
 
-def compare_runs(run_a: str | Path, run_b: str | Path) -> Comparison:
+def default_changes_dir(run_b: str | Path) -> Path:
+    """Where a comparison goes when no folder is named: beside the later run, named after
+    it with ``_changes``."""
+    run_b = Path(run_b)
+    return run_b.parent / f"{run_b.name}_changes"
+
+
+def compare_runs(run_a: str | Path, run_b: str | Path, *, name_a: str | None = None
+                 ) -> Comparison:
     """Compare two output folders of :func:`aquitardmap.run` (A earlier, B later).
+
+    ``name_a`` is how run A is named in the summary (default: its folder), e.g. for a copy
+    of a run taken before a new run replaced it.
 
     Raises:
         InputError: a folder is not a run, a file is missing, or the grids do not line up.
     """
     run_a, run_b = Path(run_a), Path(run_b)
-    sa, sb = _check_run(run_a), _check_run(run_b)
+    sa, sb = check_run(run_a), check_run(run_b)
     ta_arr, ta, crs_a, _ = read_raster(run_a / outputs.AQUITARD_THICKNESS)
     tb_arr, tb, crs_b, _ = read_raster(run_b / outputs.AQUITARD_THICKNESS)
     if crs_a is not None and crs_b is not None and not crs_a.equals(crs_b):
@@ -256,6 +273,8 @@ def compare_runs(run_a: str | Path, run_b: str | Path) -> Comparison:
                           grid.cell_area_m2, grid.crs)
     cmp = Comparison(run_a, run_b, zones, holes, grid, change, avi_change, influence)
     cmp.summary = _summary(cmp, sa, sb, avi_counts, both)
+    if name_a is not None:
+        cmp.summary["run_a"]["folder"] = name_a
     cmp.text = _plain_text(cmp.summary)
     return cmp
 
@@ -414,4 +433,5 @@ def write_comparison(cmp: Comparison, out_dir: str | Path) -> list[str]:
     return sorted(names)
 
 
-__all__ = ["Comparison", "compare_runs", "write_comparison"]
+__all__ = ["Comparison", "check_run", "compare_runs", "default_changes_dir",
+           "write_comparison"]

@@ -183,3 +183,47 @@ def test_compare_command_after_adding_holes_that_open_a_window(tmp_path, demo_ru
     win = z[(z["kind"] == "window") & (z["change"] == "gained")]
     hit = win[win.intersects(Point(x, y).buffer(1.0))]
     assert len(hit) == 1 and "WIN-1 (new)" in hit["holes_nearby"].iloc[0]
+
+
+@pytest.mark.slow
+def test_run_since_compares_with_the_earlier_run_even_when_it_replaces_it(tmp_path):
+    """``run --since``: the run, then what ``compare`` writes; with ``--since`` equal to
+    ``--out`` the earlier run is compared as it was before the new one replaced it."""
+    import os
+
+    proj = tmp_path / "proj"
+    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
+    (tmp_path / "collars_n.csv").write_text(
+        "borehole_id,x,y,ground_elev_m,total_depth_m\nSN-1,551000.0,6716000.0,55.0,30.0\n")
+    (tmp_path / "intervals_n.csv").write_text(
+        "borehole_id,from_m,to_m,unit\nSN-1,0,3,SAND\nSN-1,3,4,UMC\nSN-1,4,30,GRAV\n")
+
+    def cli(*args):
+        return subprocess.run([sys.executable, "-m", "aquitardmap", *map(str, args)],
+                              capture_output=True, text=True, timeout=600,
+                              env={**os.environ, "COLUMNS": "250"})
+
+    out = tmp_path / "results"
+    r = cli("run", proj, "--out", out)
+    assert r.returncode == 0, r.stderr
+    before = json.loads((out / outputs.SUMMARY).read_text())
+    r = cli("add", proj, tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv")
+    assert r.returncode == 0, r.stderr
+    # a folder that is not a run: bad input before any work, nothing written
+    r = cli("run", proj, "--out", tmp_path / "other", "--since", tmp_path / "nowhere")
+    assert r.returncode == 2 and "summary.json" in r.stderr
+    assert not (tmp_path / "other").exists()
+    r = cli("run", proj, "--out", out, "--since", out, "--refit-variograms")
+    assert r.returncode == 0, r.stderr
+    after = json.loads((out / outputs.SUMMARY).read_text())
+    assert after["counts"]["boreholes"] == before["counts"]["boreholes"] + 1
+    assert after["variogram_reuse"]["forced_refit"] is True
+    changes = tmp_path / "results_changes"
+    summary = json.loads((changes / CHANGES_JSON).read_text())
+    assert summary["boreholes"]["new"] == ["SN-1"]
+    assert summary["run_a"]["folder"].endswith("(before this run)")
+    assert summary["run_a"]["boreholes"] == before["counts"]["boreholes"]
+    assert "1 new" in r.stdout and "Wrote the comparison" in r.stderr
+    assert r.stderr.count("Caution") == 1
+    # the same files as `aquitardmap compare` writes
+    assert {CHANGES_GPKG, THICKNESS_CHANGE, CHANGES_MAP} <= {p.name for p in changes.iterdir()}

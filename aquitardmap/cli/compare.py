@@ -8,7 +8,29 @@ import click
 
 from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.compare import CHANGES_MAP, compare_runs, write_comparison
+from aquitardmap.compare import (
+    CHANGES_MAP,
+    Comparison,
+    compare_runs,
+    default_changes_dir,
+    write_comparison,
+)
+
+
+def compare_and_report(run_a: Path, run_b: Path, out: Path, *, debug: bool = False,
+                       name_a: str | None = None) -> Comparison:
+    """Compare two runs, write the comparison into ``out`` and print its summary (shared
+    by ``compare`` and ``run --since``)."""
+    def work() -> Comparison:
+        cmp = compare_runs(run_a, run_b, name_a=name_a)
+        write_comparison(cmp, out)
+        return cmp
+
+    cmp = guarded(work, debug)
+    click.echo(cmp.text, nl=False)
+    console.print(f"Wrote the comparison to {out.resolve()}; open {CHANGES_MAP} in a browser.",
+                  markup=False)
+    return cmp
 
 
 @click.command("compare")
@@ -22,15 +44,5 @@ def compare_command(run_a: Path, run_b: Path, out_dir: Path | None, debug: bool)
     """Compare two output folders of `aquitardmap run` (RUN_A earlier, RUN_B later): zones
     gained and lost, AVI class changes, thickness change and the boreholes that caused
     them."""
-    out = out_dir or run_b.parent / f"{run_b.name}_changes"
-
-    def work():
-        cmp = compare_runs(run_a, run_b)
-        write_comparison(cmp, out)
-        return cmp
-
-    cmp = guarded(work, debug)
-    click.echo(cmp.text, nl=False)
-    console.print(f"Wrote the comparison to {out.resolve()}; open {CHANGES_MAP} in a browser.",
-                  markup=False)
+    compare_and_report(run_a, run_b, out_dir or default_changes_dir(run_b), debug=debug)
     console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")

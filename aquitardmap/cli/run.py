@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import shutil
+import tempfile
 from dataclasses import replace
 from pathlib import Path
 
@@ -10,6 +12,8 @@ from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeEl
 
 from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
+from aquitardmap.cli.compare import compare_and_report
+from aquitardmap.compare import check_run, default_changes_dir
 from aquitardmap.pipeline import run
 from aquitardmap.project import ComputeSettings, read_project
 from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
@@ -34,12 +38,40 @@ from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
 @click.option("--refit-variograms", "refit_variograms", is_flag=True,
               help="Use this run's fitted variograms even where they agree with the ones "
                    "kept from the previous run (see [kriging] reuse_variogram_within).")
+@click.option("--since", "since", type=click.Path(path_type=Path), default=None,
+              metavar="RUN_DIR",
+              help="After the run, compare it with the earlier run in RUN_DIR (it may be "
+                   "--out itself, compared as it was before this run) and write what "
+                   "changed as `aquitardmap compare RUN_DIR OUT` does, into OUT_changes "
+                   "beside --out.")
 @click.option("--debug", is_flag=True, help="Show the traceback of an internal error.")
 def run_command(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | None,
                 scheduler: str | None, workers: int | None, refit_variograms: bool,
-                debug: bool) -> None:
+                since: Path | None, debug: bool) -> None:
     """Run every stage on the PROJECT folder and write grids, zones, boreholes, summary and
     the planners' map to --out."""
+    if since is None:
+        _run(project, out_dir, offline_map, compute_mode, scheduler, workers,
+             refit_variograms, debug)
+        return
+    guarded(lambda: check_run(since), debug)  # not a run: bad input, before any work
+    with tempfile.TemporaryDirectory(prefix="aquitardmap-since-") as tmp:
+        earlier, name = since, None
+        if since.resolve() == out_dir.resolve():  # the run replaces it: keep a copy first
+            earlier = Path(tmp) / "earlier"
+            guarded(lambda: shutil.copytree(since, earlier), debug)
+            name = f"{since} (before this run)"
+        _run(project, out_dir, offline_map, compute_mode, scheduler, workers,
+             refit_variograms, debug, caution=False)
+        compare_and_report(earlier, out_dir, default_changes_dir(out_dir), debug=debug,
+                           name_a=name)
+    console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")
+
+
+def _run(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | None,
+         scheduler: str | None, workers: int | None, refit_variograms: bool, debug: bool,
+         *, caution: bool = True) -> None:
+    """The run itself, with its progress bar and closing lines."""
     overrides: dict[str, object] = {}
     if compute_mode is not None:
         overrides["mode"] = compute_mode
@@ -79,5 +111,13 @@ def run_command(project: Path, out_dir: Path, offline_map: bool, compute_mode: s
     times = ", ".join(f"{k} {v:.1f} s" for k, v in s["run"].get("stage_seconds", {}).items())
     if times:
         console.print(f"Time per stage: {times}", markup=False)
+    reuse, tiles = s.get("variogram_reuse", {}), s.get("tile_cache")
+    if tiles is not None:
+        n = tiles["cells_computed"] + tiles["cells_reused"]
+        console.print(f"Project cache: variograms reused for {len(reuse.get('reused', []))}, "
+                      f"refit for {len(reuse.get('refit', []))} surface(s); "
+                      f"{tiles['cells_computed'] / max(n, 1):.1%} of the grid cells kriged "
+                      "again", markup=False)
     console.print(f"Open {result.out_dir / outputs.MAP} in a browser.", markup=False)
-    console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")
+    if caution:
+        console.print(f"[yellow]Caution:[/] {outputs.CAUTION}")

@@ -1,0 +1,107 @@
+"""Benchmark: a whole ``run`` after ``add`` against a whole run without cache, stage by stage.
+
+A synthetic region (``make_synthetic_region``: invented data from a known truth) with a
+project store: the region's holes but ``--added`` of them are the store's first batch;
+
+1. ``run`` (fills the project cache: kriged tiles and kept variograms);
+2. ``add`` the held-out holes as one batch;
+3. ``run`` again (the variograms are reused while a fresh fit agrees with the kept ones,
+   and only the cells the new holes can reach are kriged again);
+4. a full ``run`` of the same data without any cache (``tile_cache=False``).
+
+Prints the seconds of each stage of 3 and 4 and their ratio, the cache counts and the
+variogram decisions, and, last, ``whole_run_after_add_over_full=<ratio>``. Every run writes
+its outputs (map, report and all). Not a test: it never asserts on time.
+
+    python benchmarks/bench_rerun.py            # 5,000 holes, cells of 25 m
+    python benchmarks/bench_rerun.py --quick    # 2,000 holes, cells of 50 m
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+import aquitardmap
+from aquitardmap.project import read_project
+from aquitardmap.store import add_files, create_store
+from aquitardmap.synthetic import make_synthetic_region
+
+STAGES = ("inputs", "surfaces", "hydraulics", "zones", "outputs")
+
+
+def _timed_run(project: Path, out: Path, **kw) -> tuple[dict[str, float], dict]:
+    t = time.perf_counter()
+    result = aquitardmap.run(project, out, **kw)
+    total = time.perf_counter() - t
+    stages = dict(result.summary["run"]["stage_seconds"])
+    stages["outputs"] = total - sum(stages.values())  # writing grids, zones, map, report
+    stages["total"] = total
+    return stages, result.summary
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--holes", type=int, default=5000)
+    ap.add_argument("--cell", type=float, default=25.0, help="cell size (m)")
+    ap.add_argument("--extent-km", type=float, nargs=2, default=(20.0, 14.0))
+    ap.add_argument("--added", type=int, default=10)
+    ap.add_argument("--k", type=int, default=16, help="[kriging] max_neighbours")
+    ap.add_argument("--quick", action="store_true", help="2,000 holes, 10 x 7 km, 50 m cells")
+    ap.add_argument("--seed", type=int, default=11)
+    a = ap.parse_args()
+    if a.quick:
+        a.holes, a.cell, a.extent_km = 2000, 50.0, (10.0, 7.0)
+    with tempfile.TemporaryDirectory() as tmp:
+        root = Path(tmp)
+        proj = root / "proj"
+        make_synthetic_region(proj, seed=a.seed, n_holes=a.holes, cell_size_m=a.cell,
+                              extent_m=(a.extent_km[0] * 1000, a.extent_km[1] * 1000),
+                              write_project_toml=True)
+        toml = proj / "project.toml"
+        toml.write_text(re.sub(r"max_neighbours = \d+", f"max_neighbours = {a.k}",
+                               toml.read_text()))
+        tables = {n: pd.read_csv(proj / f"{n}.csv", dtype=str)
+                  for n in ("collars", "intervals", "samples")}
+        ids = tables["collars"]["borehole_id"].to_numpy()
+        new = set(np.random.default_rng(a.seed).choice(ids, a.added, replace=False))
+        incoming = root / "incoming"
+        incoming.mkdir()
+        for name, df in tables.items():
+            df[~df["borehole_id"].isin(new)].to_csv(proj / f"{name}.csv", index=False)
+            df[df["borehole_id"].isin(new)].to_csv(incoming / f"{name}_new.csv", index=False)
+        create_store(read_project(proj))
+        aquitardmap.run(proj, tile_cache=False)  # compile the kernels, warm the file cache
+        first, _ = _timed_run(proj, root / "run1")
+        t = time.perf_counter()
+        add_files(read_project(proj), sorted(incoming.iterdir()), note="benchmark")
+        t_add = time.perf_counter() - t
+        after, s_after = _timed_run(proj, root / "run2")
+        full, s_full = _timed_run(proj, root / "run3", tile_cache=False)
+    g = s_full["grid"]
+    print(f"region: {a.holes} holes ({a.added} added), {g['width']} x {g['height']} grid of "
+          f"{a.cell:g} m, {g['cells_in_study_area']:,} cells in the study area, "
+          f"{len(s_full['surfaces'])} kriged surfaces, k = {a.k}")
+    print(f"first run (empty cache): {first['total']:.1f} s; add: {t_add:.2f} s")
+    tiles = s_after["tile_cache"]
+    share = tiles["cells_computed"] / max(1, tiles["cells_computed"] + tiles["cells_reused"])
+    print(f"after add: {tiles['cells_computed']:,} cells kriged, {tiles['cells_reused']:,} "
+          f"reused ({share:.1%} kriged)")
+    reuse = s_after["variogram_reuse"]
+    print(f"variograms reused: {', '.join(reuse['reused']) or '-'}; refit: "
+          f"{', '.join(reuse['refit']) or '-'}")
+    print(f"{'stage':<12}{'full, no cache':>16}{'after add':>12}{'ratio':>8}")
+    for stage in (*STAGES, "total"):
+        ratio = after[stage] / full[stage] if full[stage] > 0 else float("nan")
+        print(f"{stage:<12}{full[stage]:>14.2f} s{after[stage]:>10.2f} s{ratio:>8.2f}")
+    print(f"whole_run_after_add_over_full={after['total'] / full['total']:.4f}")
+
+
+if __name__ == "__main__":
+    main()
