@@ -127,6 +127,30 @@ def _structure(model: str, h: np.ndarray, range_m: float) -> np.ndarray:
     raise ValueError(f"unknown variogram model {model!r}")
 
 
+def _mix64(v: np.ndarray) -> np.ndarray:
+    """The splitmix64 finaliser (Steele, Lea & Flood 2014, OOPSLA, "Fast splittable
+    pseudorandom number generators"): a bijection of uint64 that scatters nearby inputs."""
+    v = v ^ (v >> np.uint64(30))
+    v = v * np.uint64(0xBF58476D1CE4E5B9)
+    v = v ^ (v >> np.uint64(27))
+    v = v * np.uint64(0x94D049BB133111EB)
+    return v ^ (v >> np.uint64(31))
+
+
+def stable_subset(x_m: np.ndarray, y_m: np.ndarray, n: int, *, seed: int = 0) -> np.ndarray:
+    """Indices (ascending) of ``n`` of the points, chosen by a hash of their coordinates:
+    a pseudo-random subset that depends on the points themselves, not on their number or
+    order, so that adding a few points changes it by at most as many points (a subset drawn
+    with ``rng.choice(len(x), n)`` is a different one after every addition, and a variogram
+    fitted to it moves by its sampling noise)."""
+    with np.errstate(over="ignore"):
+        bits = np.ascontiguousarray(np.column_stack([np.asarray(x_m, float),
+                                                     np.asarray(y_m, float)])
+                                    ).view(np.uint64)
+        key = _mix64(bits[:, 0] ^ _mix64(bits[:, 1] + np.uint64(seed)))
+    return np.sort(np.argsort(key, kind="stable")[:n])
+
+
 def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, *,
                            n_lags: int = 12, max_lag_m: float | None = None,
                            max_lag_fraction: float = 0.5, seed: int = 0,
@@ -138,11 +162,13 @@ def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     field size is the usual rule, Journel & Huijbregts 1978). Classes without pairs are
     dropped. With ``direction_deg`` (degrees counter-clockwise from east) only pairs whose
     separation direction lies within ``tolerance_deg`` of it (either way along the line) are
-    used: a directional variogram (Isaaks & Srivastava 1989, ch. 7).
+    used: a directional variogram (Isaaks & Srivastava 1989, ch. 7). Above
+    :data:`MAX_POINTS_FOR_PAIRS` points the pairs of a subset are used
+    (:func:`stable_subset`, which adding a few points hardly changes).
     """
     x, y, z = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
     if x.size > MAX_POINTS_FOR_PAIRS:
-        idx = np.random.default_rng(seed).choice(x.size, MAX_POINTS_FOR_PAIRS, replace=False)
+        idx = stable_subset(x, y, MAX_POINTS_FOR_PAIRS, seed=seed)
         x, y, z = x[idx], y[idx], z[idx]
     pts = np.column_stack([x, y])
     d = pdist(pts)

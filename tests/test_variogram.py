@@ -156,3 +156,23 @@ def test_isotropic_field_shows_no_strong_anisotropy():
     d = fit_anisotropy(x, y, z, fit_variogram(exp, "exponential"), n_lags=15,
                        max_lag_m=1200.0)
     assert d.ratio < 1.6
+
+
+def test_pair_subset_depends_on_the_points_not_on_their_number_or_order():
+    """Above MAX_POINTS_FOR_PAIRS the experimental variogram uses a subset; adding 10 holes
+    to 5,000 must change it by at most 10 points, whatever the order of the holes, so that
+    a refit after a few new holes does not move by sampling noise (common practice: a
+    variogram should not jump when a few data are added)."""
+    from aquitardmap.variogram import MAX_POINTS_FOR_PAIRS, stable_subset
+
+    rng = np.random.default_rng(3)
+    x, y = rng.uniform(0, 2e4, 5000), rng.uniform(0, 2e4, 5000)
+    first = stable_subset(x, y, MAX_POINTS_FOR_PAIRS)
+    assert first.size == MAX_POINTS_FOR_PAIRS and np.all(np.diff(first) > 0)
+    x2, y2 = np.r_[x, rng.uniform(0, 2e4, 10)], np.r_[y, rng.uniform(0, 2e4, 10)]
+    order = rng.permutation(x2.size)
+    again = stable_subset(x2[order], y2[order], MAX_POINTS_FOR_PAIRS)
+    before = set(zip(x[first], y[first], strict=True))
+    after = set(zip(x2[order][again], y2[order][again], strict=True))
+    assert len(before - after) <= 10 and len(after - before) <= 10
+    assert set(stable_subset(x, y, MAX_POINTS_FOR_PAIRS, seed=1)) != set(first)
