@@ -166,34 +166,68 @@ def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     :data:`MAX_POINTS_FOR_PAIRS` points the pairs of a subset are used
     (:func:`stable_subset`, which adding a few points hardly changes).
     """
-    x, y, z = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
-    if x.size > MAX_POINTS_FOR_PAIRS:
-        idx = stable_subset(x, y, MAX_POINTS_FOR_PAIRS, seed=seed)
-        x, y, z = x[idx], y[idx], z[idx]
-    pts = np.column_stack([x, y])
-    d = pdist(pts)
-    sq = pdist(z[:, None], metric="sqeuclidean")
-    if max_lag_m is None:
-        max_lag_m = max_lag_fraction * (d.max() if d.size else 0.0)
-    if direction_deg is not None and d.size:
-        i, j = np.triu_indices(x.size, k=1)  # the pair order of pdist
-        dx, dy = x[j] - x[i], y[j] - y[i]
-        theta = np.rad2deg(np.arctan2(dy, dx))
-        diff = np.abs((theta - direction_deg + 90.0) % 180.0 - 90.0)
-        keep_dir = diff <= tolerance_deg
-        d, sq = d[keep_dir], sq[keep_dir]
-    if d.size == 0 or max_lag_m <= 0:
-        return ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
-    edges = np.linspace(0.0, max_lag_m, n_lags + 1)
-    which = np.digitize(d, edges) - 1
-    keep = (which >= 0) & (which < n_lags)
-    counts = np.bincount(which[keep], minlength=n_lags)
-    sums = np.bincount(which[keep], weights=sq[keep], minlength=n_lags)
-    dsum = np.bincount(which[keep], weights=d[keep], minlength=n_lags)
-    ok = counts > 0
-    return ExperimentalVariogram(
-        lag_m=dsum[ok] / counts[ok], gamma=0.5 * sums[ok] / counts[ok], n_pairs=counts[ok]
-    )
+    pairs = _Pairs.of(x_m, y_m, values, n_lags=n_lags, max_lag_m=max_lag_m,
+                      max_lag_fraction=max_lag_fraction, seed=seed,
+                      directions=direction_deg is not None)
+    return pairs.variogram(direction_deg, tolerance_deg)
+
+
+@dataclass(frozen=True)
+class _Pairs:
+    """The pairs of a data set that fall in the lag classes: lag class, distance (m) and
+    squared difference of each (in the pair order of ``pdist``), and their direction
+    (degrees counter-clockwise from east) when asked for; shared by the omnidirectional
+    and the directional variograms of one data set."""
+
+    n_lags: int
+    which: np.ndarray
+    d: np.ndarray
+    sq: np.ndarray
+    theta_deg: np.ndarray | None
+
+    @classmethod
+    def of(cls, x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, *, n_lags: int,
+           max_lag_m: float | None, max_lag_fraction: float, seed: int,
+           directions: bool) -> _Pairs:
+        x, y, z = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
+        if x.size > MAX_POINTS_FOR_PAIRS:
+            idx = stable_subset(x, y, MAX_POINTS_FOR_PAIRS, seed=seed)
+            x, y, z = x[idx], y[idx], z[idx]
+        d = pdist(np.column_stack([x, y]))
+        sq = pdist(z[:, None], metric="sqeuclidean")
+        if max_lag_m is None:
+            max_lag_m = max_lag_fraction * (d.max() if d.size else 0.0)
+        empty = np.array([], dtype=int)
+        if d.size == 0 or max_lag_m <= 0:
+            return cls(n_lags, empty, np.array([]), np.array([]), None)
+        edges = np.linspace(0.0, max_lag_m, n_lags + 1)
+        which = np.digitize(d, edges) - 1
+        keep = np.flatnonzero((which >= 0) & (which < n_lags))
+        theta = None
+        if directions:
+            i, j = np.triu_indices(x.size, k=1)  # the pair order of pdist
+            i, j = i[keep], j[keep]
+            theta = np.rad2deg(np.arctan2(y[j] - y[i], x[j] - x[i]))
+        return cls(n_lags, which[keep], d[keep], sq[keep], theta)
+
+    def variogram(self, direction_deg: float | None = None, tolerance_deg: float = 22.5
+                  ) -> ExperimentalVariogram:
+        """Semivariance per lag class of all pairs, or of the pairs within
+        ``tolerance_deg`` of ``direction_deg``."""
+        which, d, sq = self.which, self.d, self.sq
+        if direction_deg is not None and d.size:
+            diff = np.abs((self.theta_deg - direction_deg + 90.0) % 180.0 - 90.0)
+            sel = diff <= tolerance_deg
+            which, d, sq = which[sel], d[sel], sq[sel]
+        if d.size == 0:
+            return ExperimentalVariogram(np.array([]), np.array([]), np.array([], dtype=int))
+        counts = np.bincount(which, minlength=self.n_lags)
+        sums = np.bincount(which, weights=sq, minlength=self.n_lags)
+        dsum = np.bincount(which, weights=d, minlength=self.n_lags)
+        ok = counts > 0
+        return ExperimentalVariogram(
+            lag_m=dsum[ok] / counts[ok], gamma=0.5 * sums[ok] / counts[ok],
+            n_pairs=counts[ok])
 
 
 def default_lags(x_m: np.ndarray, y_m: np.ndarray, *, max_lag_fraction: float = 0.5,
@@ -355,9 +389,9 @@ def fit_anisotropy(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     Srivastava 1989, ch. 16). The ratio is capped at :data:`MAX_ANISOTROPY_RATIO`.
     """
     dirs = tuple(float(180.0 * k / n_directions) for k in range(n_directions))
-    exps = tuple(experimental_variogram(x_m, y_m, values, n_lags=n_lags, max_lag_m=max_lag_m,
-                                        direction_deg=d, tolerance_deg=tolerance_deg)
-                 for d in dirs)
+    pairs = _Pairs.of(x_m, y_m, values, n_lags=n_lags, max_lag_m=max_lag_m,
+                      max_lag_fraction=0.5, seed=0, directions=True)
+    exps = tuple(pairs.variogram(d, tolerance_deg) for d in dirs)
     iso = replace(model, anisotropy_ratio=1.0, anisotropy_angle_deg=0.0)
     ranges = np.array([_apparent_range(e, iso) for e in exps])
     ok = np.isfinite(ranges)
