@@ -329,12 +329,19 @@ class TileCache:
         """The entry of this model whose data differ least from ``rows``: (name, chain,
         its x, y, z, which of ``rows`` it lacks, which of its rows ``rows`` lacks)."""
         best, best_diff = None, None
+        chains = {}
         for path in sorted(self.folder.glob(f"{model_key}-*")):
             if path.name in self.written or not path.is_dir():
                 continue  # another grid of this run, same model: not ours
             chain = self._chain(path.name)
-            if chain is None:
+            if chain is not None:
+                chains[path.name] = chain
+        # the last entries of chains (the entries they build on hold older data)
+        bases = {meta.get("base") for chain in chains.values() for _, meta in chain[:1]}
+        for name, chain in chains.items():
+            if name in bases:
                 continue
+            path = self.folder / name
             try:
                 x, y, z = (np.load(path / f"{a}.npy") for a in ("x", "y", "z"))
                 old = _rows(x, y, z)

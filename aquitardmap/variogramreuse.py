@@ -281,6 +281,8 @@ class VariogramBook:
         except BaseException:
             Path(tmp).unlink(missing_ok=True)
             raise
+        for left in self.path.parent.glob(f".{self.path.name}.*"):
+            left.unlink(missing_ok=True)  # temporary files of killed runs
         return self.path
 
     def summary(self) -> dict[str, object]:
