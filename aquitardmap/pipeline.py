@@ -12,7 +12,7 @@ import platform
 import time
 import warnings
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import AbstractContextManager, contextmanager
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from pathlib import Path
@@ -945,27 +945,33 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
 TILE_CACHE_DIR = ".aquitardmap-cache/tiles"
 
 
-@contextmanager
-def _surface_cache(project: Project, setting: str | Path | bool | None, *,
-                   refit_variograms: bool = False
-                   ) -> Iterator[tuple[tilecache.TileCache | None,
-                                       variogramreuse.VariogramBook]]:
-    """The project cache for this run: the tile cache and the book of kept variograms
-    (``variograms.json`` beside the tile folder). ``setting`` ``None`` (default) uses
+def _tile_folder(project: Project, setting: str | Path | bool | None) -> Path | None:
+    """The tile cache folder of this run: ``setting`` ``None`` (default) is
     ``PROJECT/.aquitardmap-cache/tiles`` when the project has a store, ``False`` none, a
-    path that folder. Without a cache the book keeps nothing (every surface is fitted
-    afresh) and only records the decisions."""
-    k = project.kriging
-    reuse = {"within": k.reuse_variogram_within, "angle_deg": k.reuse_variogram_angle_deg,
-             "refit": refit_variograms}
+    path that folder. The kept variograms live beside it."""
     if setting is False or (setting is None and not has_store(project)):
-        with variogramreuse.variogram_book(None, **reuse) as book:
-            yield None, book
+        return None
+    return project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
+
+
+@contextmanager
+def _surface_cache(folder: Path | None) -> Iterator[tilecache.TileCache | None]:
+    """The tile cache in ``folder`` for the grid kriging inside the block (none without)."""
+    if folder is None:
+        yield None
         return
-    folder = project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
-    with tilecache.tile_cache(folder) as cache, variogramreuse.variogram_book(
-            folder.parent / variogramreuse.KEPT_FILE, **reuse) as book:
-        yield cache, book
+    with tilecache.tile_cache(folder) as cache:
+        yield cache
+
+
+def _variogram_book(project: Project, folder: Path | None, refit: bool
+                    ) -> AbstractContextManager[variogramreuse.VariogramBook]:
+    """The book of variograms kept beside the tile folder (without a cache it keeps
+    nothing: every surface is fitted afresh, and the decisions are still recorded)."""
+    k = project.kriging
+    return variogramreuse.variogram_book(
+        folder.parent / variogramreuse.KEPT_FILE if folder is not None else None,
+        within=k.reuse_variogram_within, angle_deg=k.reuse_variogram_angle_deg, refit=refit)
 
 
 def _surface_title(project: Project, name: str) -> str:
@@ -1037,10 +1043,12 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     step(0)
     inputs = load_inputs(project_dir)
     t = lap("inputs", t0)
-    with compute_session(compute or inputs.project.compute) as runner:
+    folder = _tile_folder(inputs.project, tile_cache)
+    # the kept variograms serve the surfaces and the probabilities (residual from the drift)
+    with compute_session(compute or inputs.project.compute) as runner, \
+            _variogram_book(inputs.project, folder, refit_variograms) as book:
         step(1)
-        with _surface_cache(inputs.project, tile_cache,
-                            refit_variograms=refit_variograms) as (cache, book):
+        with _surface_cache(folder) as cache:
             surfaces = build_surfaces(inputs)
         t = lap("surfaces", t)
         step(2)
@@ -1063,6 +1071,9 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     for name, decision in book.decisions.items():
         if name in summary["surfaces"]:
             summary["surfaces"][name]["variogram_reuse"] = decision.as_dict()
+    drift = summary.get("probability", {}).get("external_drift")
+    if isinstance(drift, dict) and RESIDUAL_NAME in book.decisions:
+        drift["variogram_reuse"] = book.decisions[RESIDUAL_NAME].as_dict()
     written = None
     if out_dir is not None:
         step(4)

@@ -205,8 +205,23 @@ def choose_variogram(name: str, x_m: np.ndarray, y_m: np.ndarray, values: np.nda
                                 str, list[str]]:
     """The variogram of surface ``name`` from its full-hole values (module docstring).
 
+    Within a run with a project cache, a fitted model gives way to the one kept from the
+    previous run while the two agree (:mod:`aquitardmap.variogramreuse`; source
+    ``"reused"``).
+
     Returns (model, experimental variogram, directional fit or None, source, notes).
     """
+    model, exp, directional, source, notes = _choose_variogram(name, x_m, y_m, values,
+                                                               settings, grid)
+    model, source = settle_variogram(name, model, source)
+    return model, exp, directional, source, notes
+
+
+def _choose_variogram(name: str, x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
+                      settings: KrigingSettings, grid: Grid
+                      ) -> tuple[VariogramModel, ExperimentalVariogram, DirectionalFit | None,
+                                 str, list[str]]:
+    """:func:`choose_variogram` before the kept model is considered."""
     x, y, v = (np.asarray(a, dtype=float) for a in (x_m, y_m, values))
     notes: list[str] = []
     variance = float(np.var(v)) if v.size else 0.0
@@ -298,8 +313,6 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         model, exp, directional, source, more = choose_variogram(name, fx, fy, ft, settings,
                                                                  grid)
         notes.extend(more)
-        # the model kept from the previous run, while this fit agrees with it
-        model, source = settle_variogram(name, model, source)
 
     def krige_data(active: np.ndarray):
         dx = np.concatenate([fx, bx[active]])

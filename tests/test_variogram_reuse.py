@@ -21,6 +21,7 @@ import pandas as pd
 import pytest
 
 import aquitardmap
+from aquitardmap.drift import RESIDUAL_NAME
 from aquitardmap.pipeline import output_grids
 from aquitardmap.project import read_project
 from aquitardmap.store import add_files, create_store
@@ -201,7 +202,9 @@ def test_run_after_add_reuses_variograms_and_most_tiles(after_add):
     proj, first, second = after_add
     s = second.summary
     assert s["counts"]["boreholes"] == first.summary["counts"]["boreholes"] + N_ADDED
-    assert s["variogram_reuse"]["reused"] == sorted(second.surfaces)  # every surface
+    kriged = sorted(second.surfaces)
+    # every surface (and the residual from the drift behind the probabilities)
+    assert [n for n in s["variogram_reuse"]["reused"] if n != RESIDUAL_NAME] == kriged
     assert s["variogram_reuse"]["refit"] == []
     for name, surface in second.surfaces.items():
         rec = s["surfaces"][name]["variogram_reuse"]
@@ -213,7 +216,12 @@ def test_run_after_add_reuses_variograms_and_most_tiles(after_add):
     tiles = s["tile_cache"]
     assert tiles["cells_reused"] > 2 * tiles["cells_computed"]  # most cells came back
     assert tiles["grids_with_reuse"] == len(second.surfaces)
-    assert set(read_kept(proj / ".aquitardmap-cache" / KEPT_FILE)) == set(second.surfaces)
+    kept = set(read_kept(proj / ".aquitardmap-cache" / KEPT_FILE))
+    assert kept - {RESIDUAL_NAME} == set(second.surfaces)
+    drift = s["probability"]["external_drift"]
+    if RESIDUAL_NAME in kept:  # the probabilities fitted a residual variogram: kept too
+        assert drift["variogram_reuse"]["decision"] == "reused"
+        assert drift["residual_variogram"] == drift["variogram_reuse"]["kept"]
 
 
 @pytest.mark.slow
@@ -222,12 +230,18 @@ def test_run_after_add_equals_a_run_without_cache_with_the_same_models(after_add
     ref_proj = tmp_path / "ref"
     shutil.copytree(proj, ref_proj, ignore=shutil.ignore_patterns(".aquitardmap-cache"))
     models = {name: s.variogram for name, s in second.surfaces.items()}
+    # the residual from the ground drift of the probabilities, when it was fitted
+    drift = second.summary["probability"]["external_drift"]
+    if drift.get("residual_variogram"):
+        models[RESIDUAL_NAME] = VariogramModel(**drift["residual_variogram"])
+        assert drift["variogram_reuse"]["decision"] == "reused"
     with open(ref_proj / "project.toml", "a") as f:
         f.write(_manual_variograms_toml(models))
     ref = aquitardmap.run(ref_proj, tile_cache=False)
     assert "tile_cache" not in ref.summary
     assert ref.summary["variogram_reuse"]["manual"] == sorted(models)
-    assert {n: s.variogram for n, s in ref.surfaces.items()} == models
+    assert {n: s.variogram for n, s in ref.surfaces.items()} == \
+        {n: m for n, m in models.items() if n != RESIDUAL_NAME}
     got = output_grids(second.inputs, second.surfaces, second.hydraulics, second.p_thin,
                        second.probabilities)
     want = output_grids(ref.inputs, ref.surfaces, ref.hydraulics, ref.p_thin,
