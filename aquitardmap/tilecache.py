@@ -18,14 +18,15 @@ the tile has ``d_k(c) <= r_k + h`` (``d_k`` is 1-Lipschitz) and ``|c - p| >= |m 
 so if ``|m - p| > r_k + 2h`` no point of the tile has ``p`` among its neighbours.
 
 Which tiles to test: ``g(c) = d_k(c) − |c − p|`` never increases along a ray leaving ``p``
-(both terms change at the same rate at most), so the cells that can see ``p`` form a region
-that is star-shaped about ``p``. The search starts at ``p``'s tile and tests square rings of
-tiles of growing size; once every tile of a ring (a closed band around ``p``) fails the test,
-every point beyond it fails too — the segment from ``p`` to such a point crosses the ring
-where ``g < 0`` already. For ``p`` inside the grid only the part of a ring inside the grid
-is needed (the segment from ``p`` to a grid cell stays in the grid, a rectangle); for ``p``
-outside the grid every tile of the grid is tested. The work is proportional to the area a
-changed hole reaches, not to the grid.
+(both terms change at the same rate at most), so the points that can see ``p`` form a region
+that is star-shaped about ``p``: the segment from ``p`` to any of them lies in the region.
+The tiles that segment crosses all pass the test and follow one another by a side or a
+corner, so a flood fill from ``p``'s tile through the tiles that pass the test (their eight
+neighbours, inside the grid) finds every tile the region meets. For ``p`` inside the grid
+the segment to a grid cell stays in the grid (a rectangle), so the fill need not leave it;
+for ``p`` outside the grid every tile of the grid is tested. The work is proportional to the
+area a changed hole reaches, not to the grid. Inside a reached tile a cell ``c`` is kept
+only when ``|c − p| <= r_k + |c − m|`` (its own ``d_k`` is at most that).
 
 So the cache keeps, per variogram model and ``k``, the data and the kriged grid of the last
 run. The next run compares the data (added, removed and changed points), finds the tiles a
@@ -40,7 +41,7 @@ Entries are folders written under a temporary name and renamed into place (a kil
 leaves no half-written entry). A *full* entry holds the whole grid (``estimate.npy``,
 ``variance.npy``, ``mask.npy``); when the grid is unchanged an entry is a *patch* of the
 entry it was made from: only the cells kriged again (``index.npy`` and their values), so a
-run after a few new holes writes kilobytes, not the whole grid. A patch is read by reading
+run after a few new holes writes that small part, not the whole grid. A patch is read by reading
 its chain back to a full entry; after :data:`MAX_CHAIN` patches, or when a patch would hold
 more than :data:`PATCH_FRACTION` of the cells, a full entry is written instead.
 :meth:`TileCache.prune` removes the entries a successful run neither wrote nor builds on.
