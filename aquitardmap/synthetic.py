@@ -1210,3 +1210,23 @@ def make_synthetic_region(
                            truth=truth_files, grid=grid, counts=counts,
                            area_km2=area_km2, window_area_km2=window_km2,
                            thin_area_km2=thin_km2, k_true_m_s=dict(K_TRUE_M_S))
+
+
+def hold_back_holes(project_dir: str | Path, incoming_dir: str | Path, n_holes: int, *,
+                    seed: int) -> list[Path]:
+    """Take ``n_holes`` boreholes, chosen at random, out of a project's ``collars.csv``,
+    ``intervals.csv`` and ``samples.csv`` and write their rows to ``<table>_new.csv`` in
+    ``incoming_dir`` (created): the project then holds the earlier drilling and the
+    incoming files the new logs to ``aquitardmap add``. Returns the incoming files."""
+    import pandas as pd
+
+    project_dir, incoming_dir = Path(project_dir), Path(incoming_dir)
+    tables = {n: pd.read_csv(project_dir / f"{n}.csv", dtype=str)
+              for n in ("collars", "intervals", "samples")}
+    ids = tables["collars"]["borehole_id"].to_numpy()
+    new = set(np.random.default_rng(seed).choice(ids, n_holes, replace=False))
+    incoming_dir.mkdir(parents=True, exist_ok=True)
+    for name, df in tables.items():
+        df[~df["borehole_id"].isin(new)].to_csv(project_dir / f"{name}.csv", index=False)
+        df[df["borehole_id"].isin(new)].to_csv(incoming_dir / f"{name}_new.csv", index=False)
+    return sorted(incoming_dir.iterdir())

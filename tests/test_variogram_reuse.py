@@ -25,7 +25,7 @@ from aquitardmap.drift import RESIDUAL_NAME
 from aquitardmap.pipeline import output_grids
 from aquitardmap.project import read_project
 from aquitardmap.store import add_files, create_store
-from aquitardmap.synthetic import make_synthetic_region
+from aquitardmap.synthetic import hold_back_holes, make_synthetic_region
 from aquitardmap.variogram import VariogramModel
 from aquitardmap.variogramreuse import (
     KEPT_FILE,
@@ -161,17 +161,9 @@ def _split_region(root, n_holes: int, n_new: int, seed: int = 1):
     make_synthetic_region(proj, seed=11, n_holes=n_holes, write_project_toml=True)
     toml = proj / "project.toml"
     toml.write_text(re.sub(r"max_neighbours = \d+", "max_neighbours = 16", toml.read_text()))
-    tables = {n: pd.read_csv(proj / f"{n}.csv", dtype=str)
-              for n in ("collars", "intervals", "samples")}
-    ids = tables["collars"]["borehole_id"].to_numpy()
-    new = set(np.random.default_rng(seed).choice(ids, n_new, replace=False))
-    incoming = root / "incoming"
-    incoming.mkdir()
-    for name, df in tables.items():
-        df[~df["borehole_id"].isin(new)].to_csv(proj / f"{name}.csv", index=False)
-        df[df["borehole_id"].isin(new)].to_csv(incoming / f"{name}_new.csv", index=False)
+    incoming = hold_back_holes(proj, root / "incoming", n_new, seed=seed)
     create_store(read_project(proj))
-    return proj, sorted(incoming.iterdir())
+    return proj, incoming
 
 
 def _manual_variograms_toml(models: dict[str, VariogramModel]) -> str:
