@@ -974,6 +974,14 @@ def _variogram_book(project: Project, folder: Path | None, refit: bool
         within=k.reuse_variogram_within, angle_deg=k.reuse_variogram_angle_deg, refit=refit)
 
 
+def kept_variograms(project: Project) -> AbstractContextManager[variogramreuse.VariogramBook]:
+    """Inside the block, surfaces of ``project`` are kriged with the variograms its last
+    run kept, under the same reuse rule as ``run`` (:mod:`aquitardmap.variogramreuse`);
+    nothing is written. For stages outside ``run`` (e.g. ``suggest``) that must use the
+    run's models. Without a project cache every surface is fitted afresh."""
+    return _variogram_book(project, _tile_folder(project, None), False)
+
+
 def _surface_title(project: Project, name: str) -> str:
     if name == "aquitard":
         return "Variogram of the total aquitard thickness"

@@ -30,7 +30,13 @@ from aquitardmap.candidates import CandidateSites, grid_sites, read_candidates
 from aquitardmap.drilling import DrillingPlan, plan_holes
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import resample_to_grid
-from aquitardmap.pipeline import Inputs, build_surfaces, compute_hydraulics, load_inputs
+from aquitardmap.pipeline import (
+    Inputs,
+    build_surfaces,
+    compute_hydraulics,
+    kept_variograms,
+    load_inputs,
+)
 from aquitardmap.project import DrillingSettings
 from aquitardmap.screening import probability_below
 from aquitardmap.surfaces import Surface, krige_thickness
@@ -256,14 +262,15 @@ def suggest(project_dir: str | Path, out_dir: str | Path, n_holes: int | None = 
     priority_file = priority_path or inputs.project.drilling.priority_grid
     priority = read_priority(priority_file, inputs) if priority_file else None
     p = inputs.project
-    if (inputs.hazards is not None and len(inputs.hazards)) or \
-            p.hydraulics.crust_treatment == "not_protective":
-        # the run screens the thickness cut by hazards / without the crust: do the same
-        surfaces = build_surfaces(inputs)
-        surface = surfaces["aquitard"]
-        protective = compute_hydraulics(inputs, surfaces).protective_thickness_m
-    else:
-        surface, protective = total_thickness_surface(inputs), None
+    with kept_variograms(p):  # the models the last run used, when it kept them
+        if (inputs.hazards is not None and len(inputs.hazards)) or \
+                p.hydraulics.crust_treatment == "not_protective":
+            # the run screens the thickness cut by hazards / without the crust: do the same
+            surfaces = build_surfaces(inputs)
+            surface = surfaces["aquitard"]
+            protective = compute_hydraulics(inputs, surfaces).protective_thickness_m
+        else:
+            surface, protective = total_thickness_surface(inputs), None
     result = suggest_holes(inputs, surface, n_holes, candidates=sites, priority=priority,
                            protective_m=protective)
     written = write_suggestions(out_dir, result)

@@ -243,3 +243,37 @@ def test_suggestions_appear_on_the_run_map(region, tmp_path):
     assert "Suggested hole 1" in page and "expected to settle" in page
     # the run folder still holds the run, plus the two suggestion files
     assert (out / outputs.SUMMARY).exists() and (out / outputs.SUGGESTED_HOLES).exists()
+
+
+def test_suggest_uses_the_variograms_the_last_run_kept(region, tmp_path, monkeypatch):
+    # The suggestions must rest on the model the run used (kept between runs), not on a
+    # fresh fit that may differ by up to the reuse tolerance.
+    import json
+    import shutil
+
+    import aquitardmap
+    import aquitardmap.suggest as sg
+    from aquitardmap.store import create_store
+    from aquitardmap.variogramreuse import KEPT_FILE
+
+    proj = tmp_path / "proj"
+    shutil.copytree(region.root, proj)
+    create_store(read_project(proj))
+    aquitardmap.run(proj, tmp_path / "run")
+    kept_path = proj / ".aquitardmap-cache" / KEPT_FILE
+    doc = json.loads(kept_path.read_text())
+    model = doc["surfaces"]["aquitard"]["model"]
+    model["range_m"] *= 1.05  # within the default tolerance (0.1): the kept one is used
+    kept_path.write_text(json.dumps(doc))
+    seen = []
+    original = sg.plan_holes
+
+    def spy(model, *args, **kwargs):
+        seen.append(model)
+        return original(model, *args, **kwargs)
+
+    monkeypatch.setattr(sg, "plan_holes", spy)
+    suggest(proj, tmp_path / "out", 2)
+    assert seen and seen[0].range_m == pytest.approx(model["range_m"], rel=1e-12)
+    fresh = total_thickness_surface(load_inputs(proj)).variogram  # outside: a fresh fit
+    assert fresh.range_m == pytest.approx(model["range_m"] / 1.05, rel=1e-9)
