@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import KrigingResult, kriging_weights
+from aquitardmap.kriging import KrigingResult, cross_validation_statistics, kriging_weights
 from aquitardmap.project import KrigingSettings
 from aquitardmap.surfaces import Surface, choose_variogram, group_coincident
 from aquitardmap.variogram import ExperimentalVariogram, VariogramModel
@@ -94,20 +94,9 @@ def loo_with_drift(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     return KrigingResult(w.apply(np.asarray(values, float)), w.variance)
 
 
-def _cv(values: np.ndarray, loo: KrigingResult) -> dict[str, float]:
-    err = loo.estimate - values
-    sd = np.sqrt(loo.variance)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        z = np.where(sd > 0, err / sd, np.nan)
-    return {"n": float(values.size), "rmse": float(np.sqrt(np.mean(err**2))),
-            "mean_error": float(err.mean()),
-            "mean_standardised_error": float(np.nanmean(z)),
-            "variance_standardised_error": float(np.nanvar(z))}
-
-
 def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                  status: np.ndarray, ground_m: np.ndarray, grid_ground_m: np.ndarray | None,
-                 grid: Grid, settings: KrigingSettings, ordinary_model: VariogramModel
+                 grid: Grid, settings: KrigingSettings, ordinary_cv: dict[str, float]
                  ) -> DriftChoice:
     """Decide whether the ground elevation serves as the external drift of the total
     aquitard thickness (module docstring).
@@ -119,7 +108,8 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
         grid_ground_m: DEM on the grid (m), None when the project has no DEM.
         grid: the target grid.
         settings: kriging settings (``external_drift``, neighbourhood, variogram choices).
-        ordinary_model: the thickness variogram that ordinary kriging uses.
+        ordinary_cv: leave-one-out statistics of ordinary kriging on the same full holes
+            (the total thickness surface's ``cv``), the figures the drift must beat.
     """
     setting = settings.external_drift
     if setting == "none":
@@ -150,10 +140,8 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     (b0, b1), *_ = np.linalg.lstsq(a, t, rcond=None)
     resid = t - (b0 + b1 * gf)
     model, exp, _, source, _ = choose_variogram(RESIDUAL_NAME, x, y, resid, settings, grid)
-    w_ok = kriging_weights(x, y, ordinary_model, x, y, max_neighbours=settings.max_neighbours,
-                           exclude_coincident=True)
-    cv_ok = _cv(t, KrigingResult(w_ok.apply(t), w_ok.variance))
-    trials = {k: _cv(t, loo_with_drift(x, y, t, gf, model, k))
+    cv_ok = dict(ordinary_cv)
+    trials = {k: cross_validation_statistics(t, loo_with_drift(x, y, t, gf, model, k))
               for k in drift_neighbourhoods(settings.max_neighbours)}
     k = min(trials, key=lambda kk: trials[kk]["rmse"])
     cv_d = trials[k]

@@ -282,12 +282,10 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
         a[:, k, k] = 0.0
         b = np.ones((ii.shape[0], k + 1))
         b[:, :k] = model.gamma(d[sl])
-        try:
-            sol = np.linalg.solve(a, b[..., None])[..., 0]
-        except np.linalg.LinAlgError:  # coincident data or a degenerate model
-            sol = np.einsum("tij,tj->ti", np.linalg.pinv(a), b)
-        if f is not None:
-            sol, b = _with_external_drift(a, b, sol, f[ii], ft[sl])
+        if f is None:
+            sol = _solve_systems(a, b)
+        else:
+            sol, b = _solve_with_external_drift(a, b, f[ii], ft[sl])
         weights[sl] = sol[:, :k]
         variance[sl] = np.einsum("ti,ti->t", sol, b)
     return KrigingWeights(idx, weights, np.maximum(variance, 0.0))
@@ -297,12 +295,21 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
 DRIFT_SPREAD_MIN = 1e-6
 
 
-def _with_external_drift(a_ok: np.ndarray, b_ok: np.ndarray, sol_ok: np.ndarray,
-                         f_nb: np.ndarray, f_target: np.ndarray
-                         ) -> tuple[np.ndarray, np.ndarray]:
+def _solve_systems(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve a batch of kriging systems ``a x = b`` ((t, m, m) and (t, m)); a singular one
+    (coincident data or a degenerate model) sends the batch to the pseudo-inverse."""
+    try:
+        return np.linalg.solve(a, b[..., None])[..., 0]
+    except np.linalg.LinAlgError:
+        return np.einsum("tij,tj->ti", np.linalg.pinv(a), b)
+
+
+def _solve_with_external_drift(a_ok: np.ndarray, b_ok: np.ndarray, f_nb: np.ndarray,
+                               f_target: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Extend ordinary kriging systems (t, k+1, k+1) by the external-drift row and column
-    and solve them; rows whose neighbours' drift is constant keep the ordinary solution
-    (padded with a zero multiplier). Returns (solution, right-hand side), both (t, k+2)."""
+    and solve them; rows whose neighbours' drift is constant are solved as ordinary
+    systems instead (with a zero drift multiplier). Each row is solved once. Returns
+    (solution, right-hand side), both (t, k+2)."""
     t, k1, _ = a_ok.shape
     k = k1 - 1
     a = np.zeros((t, k + 2, k + 2))
@@ -313,12 +320,10 @@ def _with_external_drift(a_ok: np.ndarray, b_ok: np.ndarray, sol_ok: np.ndarray,
     b[:, :k1] = b_ok
     b[:, k + 1] = f_target
     sol = np.zeros((t, k + 2))
-    sol[:, :k1] = sol_ok
     ok = np.ptp(f_nb, axis=1) > DRIFT_SPREAD_MIN
     if ok.any():
-        try:
-            sol[ok] = np.linalg.solve(a[ok], b[ok][..., None])[..., 0]
-        except np.linalg.LinAlgError:
-            sol[ok] = np.einsum("tij,tj->ti", np.linalg.pinv(a[ok]), b[ok])
-    b[~ok, k + 1] = 0.0  # ordinary rows: no drift term in the variance
+        sol[ok] = _solve_systems(a[ok], b[ok])
+    if not ok.all():
+        sol[~ok, :k1] = _solve_systems(a_ok[~ok], b_ok[~ok])
+        b[~ok, k + 1] = 0.0  # ordinary rows: no drift term in the variance
     return sol, b

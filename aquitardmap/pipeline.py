@@ -460,7 +460,7 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
     dem_path = p.file("dem")
     grid_ground = resample_to_grid(dem_path, inputs.grid) if dem_path is not None else None
     drift = choose_drift(x, y, t, status, ground, grid_ground, inputs.grid, p.kriging,
-                         total.variogram)
+                         total.cv)
     model, cv = (drift.model, drift.cv_drift) if drift.used else (total.variogram, total.cv)
     probs = thickness_probabilities(
         x, y, t, status, model, inputs.grid, thresholds_m,

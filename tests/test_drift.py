@@ -14,6 +14,7 @@ from aquitardmap.drift import choose_drift
 from aquitardmap.grid import make_grid
 from aquitardmap.probability import thickness_probabilities
 from aquitardmap.project import KrigingSettings
+from aquitardmap.surfaces import cross_validate
 from aquitardmap.variogram import VariogramModel
 
 CRS_M = CRS.from_epsg(32632)
@@ -68,7 +69,7 @@ def test_auto_uses_a_ground_that_explains_the_thickness():
     status = np.full(t.size, "full")
     ok_model = VariogramModel("spherical", nugget=1.0, psill=20.0, range_m=3000.0)
     choice = choose_drift(x, y, t, status, ground, _grid_ground(_grid()), _grid(),
-                          KrigingSettings(max_neighbours=32), ok_model)
+                          KrigingSettings(max_neighbours=32), cross_validate(x, y, t, ok_model, 32))
     assert choice.used, choice.reason
     assert choice.slope == pytest.approx(-1.2, abs=0.1)
     assert choice.cv_drift["rmse"] < 0.9 * choice.cv_ordinary["rmse"]
@@ -86,7 +87,7 @@ def test_auto_leaves_out_a_ground_unrelated_to_the_thickness():
     model = VariogramModel("gaussian", nugget=0.1, psill=8.0, range_m=2000.0)
     choice = choose_drift(x, y, t, np.full(t.size, "full"), ground,
                           np.full(grid.mask.shape, 45.0), grid,
-                          KrigingSettings(max_neighbours=32), model)
+                          KrigingSettings(max_neighbours=32), cross_validate(x, y, t, model, 32))
     assert not choice.used
     assert "not used" in choice.reason
 
@@ -107,7 +108,8 @@ def test_drift_is_refused_with_a_reason(case, reason):
         ground[3] = np.nan
     choice = choose_drift(x, y, t, np.full(t.size, "full"), ground,
                           None if case == "no_dem" else gg, grid, settings,
-                          VariogramModel("spherical", 1.0, 20.0, 3000.0))
+                          cross_validate(x, y, t, VariogramModel("spherical", 1.0, 20.0, 3000.0),
+                                         64))
     assert not choice.used
     assert reason in choice.reason
 
