@@ -52,3 +52,19 @@ def pytest_terminal_summary(terminalreporter):
         for kind, n in GENERATED_CASES.items():
             terminalreporter.write_line(f"{n:6d}  {kind}")
         terminalreporter.write_line(f"{sum(GENERATED_CASES.values()):6d}  in total")
+
+
+def demo_copy_with_new_hole(tmp_path: Path, hole_id: str) -> tuple[Path, list[Path]]:
+    """A copy of the demo project in ``tmp_path / "proj"`` (no truth, no scripts) and one
+    new full-penetration hole ``hole_id`` (3 m sand, 1 m clay, then the aquifer) as
+    ``collars_n.csv`` and ``intervals_n.csv`` beside it, ready to ``add``."""
+    import shutil
+
+    proj = tmp_path / "proj"
+    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
+    collars, intervals = tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv"
+    collars.write_text("borehole_id,x,y,ground_elev_m,total_depth_m\n"
+                       f"{hole_id},551000.0,6716000.0,55.0,30.0\n")
+    intervals.write_text("borehole_id,from_m,to_m,unit\n"
+                         f"{hole_id},0,3,SAND\n{hole_id},3,4,UMC\n{hole_id},4,30,GRAV\n")
+    return proj, [collars, intervals]

@@ -35,7 +35,7 @@ from aquitardmap.compare import (
 from aquitardmap.errors import InputError
 from aquitardmap.grid import Grid, write_raster
 
-from conftest import DEMO
+from conftest import DEMO, demo_copy_with_new_hole
 
 CRS_M = CRS.from_epsg(32632)
 CELL = 50.0
@@ -191,12 +191,7 @@ def test_run_since_compares_with_the_earlier_run_even_when_it_replaces_it(tmp_pa
     ``--out`` the earlier run is compared as it was before the new one replaced it."""
     import os
 
-    proj = tmp_path / "proj"
-    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
-    (tmp_path / "collars_n.csv").write_text(
-        "borehole_id,x,y,ground_elev_m,total_depth_m\nSN-1,551000.0,6716000.0,55.0,30.0\n")
-    (tmp_path / "intervals_n.csv").write_text(
-        "borehole_id,from_m,to_m,unit\nSN-1,0,3,SAND\nSN-1,3,4,UMC\nSN-1,4,30,GRAV\n")
+    proj, new_files = demo_copy_with_new_hole(tmp_path, "SN-1")
 
     def cli(*args):
         return subprocess.run([sys.executable, "-m", "aquitardmap", *map(str, args)],
@@ -207,7 +202,7 @@ def test_run_since_compares_with_the_earlier_run_even_when_it_replaces_it(tmp_pa
     r = cli("run", proj, "--out", out)
     assert r.returncode == 0, r.stderr
     before = json.loads((out / outputs.SUMMARY).read_text())
-    r = cli("add", proj, tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv")
+    r = cli("add", proj, *new_files)
     assert r.returncode == 0, r.stderr
     # a folder that is not a run: bad input before any work, nothing written
     r = cli("run", proj, "--out", tmp_path / "other", "--since", tmp_path / "nowhere")

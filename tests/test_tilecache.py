@@ -109,23 +109,16 @@ def test_a_changed_value_changes_only_tiles_whose_region_holds_it(tmp_path):
 
 @pytest.mark.slow
 def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
-    import shutil
-
     import aquitardmap
     from aquitardmap.project import read_project
     from aquitardmap.store import add_files
 
-    from conftest import DEMO
+    from conftest import demo_copy_with_new_hole
 
-    proj = tmp_path / "proj"
-    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
-    (tmp_path / "collars_n.csv").write_text(
-        "borehole_id,x,y,ground_elev_m,total_depth_m\nTC-1,551000.0,6716000.0,55.0,30.0\n")
-    (tmp_path / "intervals_n.csv").write_text(
-        "borehole_id,from_m,to_m,unit\nTC-1,0,3,SAND\nTC-1,3,4,UMC\nTC-1,4,30,GRAV\n")
+    proj, new_files = demo_copy_with_new_hole(tmp_path, "TC-1")
     toml = proj / "project.toml"
     toml.write_text(toml.read_text().replace("max_neighbours = 64", "max_neighbours = 16"))
-    add_files(read_project(proj), [tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv"])
+    add_files(read_project(proj), new_files)
     first = aquitardmap.run(proj)
     t1 = first.summary["tile_cache"]
     assert t1["cells_computed"] > 0 and t1["cells_reused"] == 0
