@@ -17,13 +17,9 @@ the bundled demo region and two further seeded regions of other character genera
 
 from __future__ import annotations
 
-import warnings
-
-import numpy as np
 import pytest
 
-from aquitardmap.grid import read_raster
-from aquitardmap.pipeline import aquitard_probabilities, build_surfaces, load_inputs
+from aquitardmap.skill import score_cells, zone_skill
 from aquitardmap.synthetic import make_synthetic_region
 
 from conftest import DEMO
@@ -32,35 +28,6 @@ from conftest import DEMO
 REGIONS = {"demo": None, "channel_cut": ("channel_cut", 11),
            "bedrock_highs": ("bedrock_highs", 12)}
 SMALL = {"n_holes": 250, "extent_m": (7000.0, 5000.0), "hazards": False}
-
-
-def _scores(flag: np.ndarray, truth_below: np.ndarray) -> tuple[float, float]:
-    tp = float((flag & truth_below).sum())
-    return tp / max(truth_below.sum(), 1), tp / max(flag.sum(), 1)
-
-
-def measure(project_dir) -> dict[str, dict[str, tuple[float, float]]]:
-    """{"baseline"|"tool": {"window"|"thin": (recall, precision)}} for a project with
-    ``truth/aquitard_thickness_m.tif``."""
-    inputs = load_inputs(project_dir)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        total = build_surfaces(inputs)["aquitard"]
-    th = inputs.project.screening
-    probs = aquitard_probabilities(inputs, total, {"window": th.window_thickness_m,
-                                                   "thin": th.thin_thickness_m})
-    truth, *_ = read_raster(inputs.project.root / "truth" / "aquitard_thickness_m.tif")
-    m = inputs.grid.mask & np.isfinite(truth)
-    est = total.thickness_m[m]
-    pw, pt = probs.p_below["window"][m], probs.p_below["thin"][m]
-    win, thin = truth[m] < th.window_thickness_m, truth[m] < th.thin_thickness_m
-    return {
-        "baseline": {"window": _scores(est < th.window_thickness_m, win),
-                     "thin": _scores(est < th.thin_thickness_m, thin)},
-        "tool": {"window": _scores(pw >= th.p_window_threshold, win),
-                 "thin": _scores((pt >= th.p_thin_threshold) | (pw >= th.p_window_threshold),
-                                 thin)},
-    }
 
 
 @pytest.fixture(scope="module", params=list(REGIONS))
@@ -73,11 +40,11 @@ def skill(request, tmp_path_factory):
         root = tmp_path_factory.mktemp(request.param)
         make_synthetic_region(root, seed=seed, character=character, write_project_toml=True,
                               **SMALL)
-    s = measure(root)
+    s = zone_skill(root)
     for kind in ("window", "thin"):
-        (br, bp), (tr, tp) = s["baseline"][kind], s["tool"][kind]
-        print(f"{request.param:>14} {kind:>6}: baseline recall {br:.3f} precision {bp:.3f}; "
-              f"tool recall {tr:.3f} precision {tp:.3f}")
+        b, t = s["baseline"][kind], s["tool"][kind]
+        print(f"{request.param:>14} {kind:>6}: baseline recall {b.recall:.3f} precision "
+              f"{b.precision:.3f}; tool recall {t.recall:.3f} precision {t.precision:.3f}")
     return request.param, s
 
 
@@ -97,7 +64,8 @@ EXPECT = {
 @pytest.mark.parametrize("kind", ["window", "thin"])
 def test_probability_zones_against_the_kriged_baseline(skill, kind):
     name, s = skill
-    (br, bp), (tr, tp) = s["baseline"][kind], s["tool"][kind]
+    (br, bp), (tr, tp) = ((x.recall, x.precision) for x in (s["baseline"][kind],
+                                                             s["tool"][kind]))
     rule = EXPECT[name][kind]
     if rule == "criterion":
         assert tr > br + 0.02, (name, kind)
@@ -105,3 +73,15 @@ def test_probability_zones_against_the_kriged_baseline(skill, kind):
     else:
         assert tr >= br + rule["recall_gain"], (name, kind)
         assert tp >= rule["precision"], (name, kind)
+
+
+def test_scores_count_cells_by_hand():
+    """Recall and precision on a 2 × 3 case counted by hand (definition: share of the true
+    cells flagged, share of the flagged cells true; common practice)."""
+    flag = [[True, True, False], [False, True, False]]
+    truth = [[True, False, False], [True, True, False]]
+    s = score_cells(flag, truth)
+    assert (s.recall, s.precision) == (pytest.approx(2 / 3), pytest.approx(2 / 3))
+    assert (s.flagged_cells, s.truth_cells) == (3, 3)
+    assert score_cells([[False]], [[True]]).precision == 1.0
+    assert score_cells([[True]], [[False]]).recall == 1.0
