@@ -10,6 +10,12 @@ re-estimated in every moving neighbourhood, so a relation that changes across th
 (:func:`aquitardmap.kriging.kriging_weights`; Wackernagel 2003, *Multivariate
 Geostatistics*; Hengl et al. 2007, Computers & Geosciences 33:1301–1315).
 
+The drift is not extrapolated: where the DEM on the grid lies above the highest or below the
+lowest ground of the holes that enter the estimate, it is held at that highest or lowest
+value (:meth:`DriftChoice.grid_drift`). A regression fitted on one range of a covariate says
+nothing beyond it (common practice); a valley-side crest above every hole would otherwise
+have its thickness extrapolated down the local slope, to zero if the slope is steep.
+
 The variogram of KED is that of the residual from the drift. It is fitted, like every other
 variogram of the project, to the residuals of an ordinary least-squares fit of the full
 holes' thickness on the ground (the usual working approximation; Hengl et al. 2007), or
@@ -60,6 +66,10 @@ class DriftChoice:
             :func:`drift_neighbourhoods` with the lowest cross-validation RMSE.
         residual: the residual "surface" for the record (its experimental variogram,
             model and cross-validation; no grid), drawn like every variogram of the run.
+        ground_range_m: lowest and highest ground elevation of the holes that enter the
+            estimate; the drift on the grid is held inside it.
+        share_cells_held: share of the study-area cells whose DEM lies outside
+            ``ground_range_m``.
     """
 
     used: bool
@@ -72,6 +82,14 @@ class DriftChoice:
     reason: str = ""
     max_neighbours: int = 0
     residual: Surface | None = None
+    ground_range_m: tuple[float, float] = (float("nan"), float("nan"))
+    share_cells_held: float = 0.0
+
+    def grid_drift(self, grid_ground_m: np.ndarray) -> np.ndarray:
+        """The drift on the grid: the DEM held inside :attr:`ground_range_m` (module
+        docstring), NaN kept where the DEM has none."""
+        lo, hi = self.ground_range_m
+        return np.clip(np.asarray(grid_ground_m, float), lo, hi)
 
     def as_dict(self) -> dict[str, object]:
         """What ``summary.json`` records."""
@@ -81,7 +99,9 @@ class DriftChoice:
                 "least_squares_slope": self.slope,
                 "cross_validation_ordinary": dict(self.cv_ordinary),
                 "cross_validation_with_drift": dict(self.cv_drift),
-                "max_neighbours": self.max_neighbours, "reason": self.reason}
+                "max_neighbours": self.max_neighbours, "reason": self.reason,
+                "ground_range_of_holes_m": list(self.ground_range_m),
+                "share_of_cells_outside_that_range": self.share_cells_held}
 
 
 def loo_with_drift(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
@@ -125,6 +145,12 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     if not np.all(np.isfinite(grid_ground_m[grid.mask])):
         return DriftChoice(False, setting, reason="the DEM does not cover every cell of the "
                            "study area")
+    ground_range = (float(g[used].min()), float(g[used].max())) if used.any() else (
+        float("nan"), float("nan"))
+    cells = grid_ground_m[grid.mask]
+    held = float(np.mean((cells < ground_range[0]) | (cells > ground_range[1]))) if (
+        cells.size) else 0.0
+    extent = {"ground_range_m": ground_range, "share_cells_held": held}
     full = status == "full"
     x, y, t, gf = (np.asarray(a, float)[full] for a in (x_m, y_m, thickness_m, g))
     first, inv = group_coincident(x, y)
@@ -152,9 +178,13 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     if setting == "auto" and gain < MIN_RMSE_GAIN:
         return DriftChoice(False, setting, model, float(b0), float(b1), cv_ok, cv_d,
                            f"not used: {figures}; the drift must gain at least "
-                           f"{100 * MIN_RMSE_GAIN:.0f} %", k, residual)
+                           f"{100 * MIN_RMSE_GAIN:.0f} %", k, residual, **extent)
+    if held > 0:
+        figures += (f"; the DEM of {100 * held:.1f} % of the cells lies outside the holes' "
+                    f"ground range {ground_range[0]:.1f}–{ground_range[1]:.1f} m and is held "
+                    "at its ends there")
     return DriftChoice(True, setting, model, float(b0), float(b1), cv_ok, cv_d,
-                       f"used: {figures}", k, residual)
+                       f"used: {figures}", k, residual, **extent)
 
 
 def residual_record(model: VariogramModel, experimental: ExperimentalVariogram, source: str,

@@ -139,3 +139,36 @@ def test_drift_finds_thin_clay_up_the_valley_side_that_ordinary_kriging_misses()
     hit_o = np.mean(without.p_below["thin"][thin] >= 0.5)
     assert hit_d > hit_o + 0.3
     assert hit_d > 0.9
+
+
+def test_drift_is_held_inside_the_ground_range_of_the_holes():
+    # Holes only where the ground is below 48 m; the valley sides of the grid rise to 52 m.
+    # A regression is not extrapolated beyond its covariate's range (common practice): the
+    # drift on those cells is held at the holes' highest ground, so the thickness there is
+    # not driven down the fitted slope to zero.
+    x, y, t, ground = _region(n=400)
+    low = ground < 48.0
+    x, y, t, ground = x[low], y[low], t[low], ground[low]
+    status = np.full(t.size, "full")
+    grid = _grid()
+    gg = _grid_ground(grid)
+    ok_model = VariogramModel("spherical", nugget=1.0, psill=20.0, range_m=3000.0)
+    choice = choose_drift(x, y, t, status, ground, gg, grid,
+                          KrigingSettings(max_neighbours=32), cross_validate(x, y, t, ok_model, 32))
+    assert choice.used, choice.reason
+    assert choice.ground_range_m == (ground.min(), ground.max())
+    outside = (gg[grid.mask] < ground.min()) | (gg[grid.mask] > ground.max())
+    assert 0.05 < outside.mean() == pytest.approx(choice.share_cells_held)
+    assert "held at its ends" in choice.reason
+    held = choice.grid_drift(gg)
+    inside = (gg >= ground.min()) & (gg <= ground.max())
+    assert held.max() == ground.max() and np.array_equal(held[inside], gg[inside])
+    # Truth on the high cells: 70 − 1.2·55.7 ≈ 3 m and more, so none of them is a window.
+    high = grid.mask & (gg > 52.0)
+    assert high.any()
+    kw = {"max_neighbours": choice.max_neighbours, "n_draws": 4, "drift": ground}
+    p_free = thickness_probabilities(x, y, t, status, choice.model, grid, {"w": 1.0},
+                                     grid_drift=gg, **kw).p_below["w"]
+    p_held = thickness_probabilities(x, y, t, status, choice.model, grid, {"w": 1.0},
+                                     grid_drift=held, **kw).p_below["w"]
+    assert p_held[high].max() < 0.05 <= p_free[high].max()
