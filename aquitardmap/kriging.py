@@ -1,5 +1,6 @@
 """Ordinary kriging of point data onto points or a grid, with its variance (and kriging with
-an external drift, for weights reused over many value vectors: :func:`kriging_weights`).
+an external drift, for weights reused over many value vectors: :func:`kriging_weights`, or
+:func:`prepare_locations` once and :func:`weights_at` per set of targets).
 
 Ordinary kriging as in Isaaks & Srivastava (1989, ch. 12), with a moving neighbourhood: each
 target uses its nearest ``max_neighbours`` data (all data when there are fewer), which
@@ -15,6 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -23,6 +25,9 @@ from aquitardmap.compute import current_runner
 from aquitardmap.grid import Grid
 from aquitardmap.tilecache import current_tile_cache
 from aquitardmap.variogram import VariogramModel, anisotropic_coordinates
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from scipy.spatial import cKDTree
 
 
 @dataclass(frozen=True)
@@ -201,6 +206,76 @@ class KrigingWeights:
         return np.einsum("tk,tkm->tm", self.weights, v[self.index])
 
 
+@dataclass(frozen=True)
+class KrigingLocations:
+    """What the kriging weights need from the data locations alone, built once by
+    :func:`prepare_locations` and reused for any number of target sets.
+
+    Attributes:
+        model: the variogram the weights are for.
+        ax, ay: (n,) data coordinates in anisotropy-scaled space (m).
+        tree: k-d tree of (ax, ay).
+        gamma_table: (n, n) semivariances between the data, or None above
+            :data:`GAMMA_TABLE_MAX_DATA` data (then looked up per neighbourhood).
+        drift: (n,) external drift at the data, centred and scaled by ``drift_centre`` and
+            ``drift_scale`` (the data's mean and SD); None without a drift.
+    """
+
+    model: VariogramModel
+    ax: np.ndarray
+    ay: np.ndarray
+    tree: cKDTree
+    gamma_table: np.ndarray | None
+    drift: np.ndarray | None
+    drift_centre: float = 0.0
+    drift_scale: float = 1.0
+
+    @property
+    def n(self) -> int:
+        """Number of data."""
+        return int(self.ax.size)
+
+
+#: Data count up to which the semivariances between all data are tabulated once
+#: (8 bytes × n², 128 MB at the limit).
+GAMMA_TABLE_MAX_DATA = 4000
+
+
+def prepare_locations(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel, *,
+                      drift: np.ndarray | None = None) -> KrigingLocations:
+    """The per-data part of :func:`kriging_weights`: anisotropy-scaled coordinates, their
+    k-d tree, the semivariance table between the data (up to
+    :data:`GAMMA_TABLE_MAX_DATA` data) and the external drift (a value per datum, or None)
+    centred and scaled by its mean and SD. Pass the result to :func:`weights_at` for each
+    set of targets.
+
+    Raises:
+        ValueError: without data, or with a drift that is not one finite value per datum.
+    """
+    from scipy.spatial import cKDTree
+
+    ax, ay = anisotropic_coordinates(np.asarray(x_m, float), np.asarray(y_m, float),
+                                     model.anisotropy_ratio, model.anisotropy_angle_deg)
+    n = ax.size
+    if n == 0:
+        raise ValueError("no data to krige")
+    f = None
+    centre, scale = 0.0, 1.0
+    if drift is not None:
+        f = np.asarray(drift, float).ravel()
+        if f.size != n:
+            raise ValueError("one drift value per datum and per target is needed")
+        if not np.all(np.isfinite(f)):
+            raise ValueError("the external drift has missing values at data or targets")
+        centre, scale = float(f.mean()), float(f.std()) or 1.0
+        f = (f - centre) / scale
+    table = None
+    if n <= GAMMA_TABLE_MAX_DATA:
+        table = model.gamma(np.hypot(ax[:, None] - ax[None, :], ay[:, None] - ay[None, :]))
+    return KrigingLocations(model, ax, ay, cKDTree(np.column_stack([ax, ay])), table, f,
+                            centre, scale)
+
+
 def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
                     xt_m: np.ndarray, yt_m: np.ndarray, *, max_neighbours: int = 64,
                     exclude_coincident: bool = False, chunk: int = 1024,
@@ -227,23 +302,39 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
     estimate ``b``; its target gets the ordinary kriging weights. The drift is centred and
     scaled by the data's mean and SD first (the weights are invariant to that, given
     ``Σλᵢ = 1``), which keeps the system well conditioned.
-    """
-    from scipy.spatial import cKDTree
 
-    ax, ay = anisotropic_coordinates(np.asarray(x_m, float), np.asarray(y_m, float),
-                                     model.anisotropy_ratio, model.anisotropy_angle_deg)
+    Equal to ``weights_at(prepare_locations(x_m, y_m, model, drift=drift), xt_m, yt_m,
+    ...)``; for many target sets over the same data, prepare the locations once and call
+    :func:`weights_at` per set.
+    """
+    return weights_at(prepare_locations(x_m, y_m, model, drift=drift), xt_m, yt_m,
+                      max_neighbours=max_neighbours, exclude_coincident=exclude_coincident,
+                      chunk=chunk, target_drift=target_drift)
+
+
+def weights_at(locations: KrigingLocations, xt_m: np.ndarray, yt_m: np.ndarray, *,
+               max_neighbours: int = 64, exclude_coincident: bool = False, chunk: int = 1024,
+               target_drift: np.ndarray | None = None) -> KrigingWeights:
+    """Kriging weights at targets (xt_m, yt_m) from prepared data locations (the method of
+    :func:`kriging_weights`). ``target_drift`` (a value per target, in the units of the
+    data's drift) is needed exactly when the locations carry a drift.
+
+    Raises:
+        ValueError: with fewer than 2 data and ``exclude_coincident``, or a target drift
+            that is missing, of the wrong size or not finite.
+    """
+    loc = locations
+    model = loc.model
+    ax, ay = loc.ax, loc.ay
     tx, ty = anisotropic_coordinates(np.asarray(xt_m, float).ravel(),
                                      np.asarray(yt_m, float).ravel(),
                                      model.anisotropy_ratio, model.anisotropy_angle_deg)
-    n = ax.size
-    if n == 0:
-        raise ValueError("no data to krige")
+    n = loc.n
     k = min(max_neighbours, n - 1 if exclude_coincident else n)
     if k < 1:
         raise ValueError("leave-one-out kriging needs at least 2 data")
-    tree = cKDTree(np.column_stack([ax, ay]))
     q = k + 1 if exclude_coincident else k
-    d, idx = tree.query(np.column_stack([tx, ty]), k=q)
+    d, idx = loc.tree.query(np.column_stack([tx, ty]), k=q)
     d = d.reshape(tx.size, q)
     idx = idx.reshape(tx.size, q)
     if exclude_coincident:
@@ -251,24 +342,20 @@ def kriging_weights(x_m: np.ndarray, y_m: np.ndarray, model: VariogramModel,
         on_target = d[:, 0] <= 1e-9
         d = np.where(on_target[:, None], d[:, 1:], d[:, :-1])
         idx = np.where(on_target[:, None], idx[:, 1:], idx[:, :-1])
-    f = ft = None
-    if drift is not None:
+    f = loc.drift
+    ft = None
+    if f is not None:
         if target_drift is None:
             raise ValueError("kriging with an external drift needs its value at the targets")
-        f = np.asarray(drift, float).ravel()
         ft = np.asarray(target_drift, float).ravel()
-        if f.size != n or ft.size != tx.size:
+        if ft.size != tx.size:
             raise ValueError("one drift value per datum and per target is needed")
-        if not (np.all(np.isfinite(f)) and np.all(np.isfinite(ft))):
+        if not np.all(np.isfinite(ft)):
             raise ValueError("the external drift has missing values at data or targets")
-        centre, scale = float(f.mean()), float(f.std()) or 1.0
-        f, ft = (f - centre) / scale, (ft - centre) / scale
+        ft = (ft - loc.drift_centre) / loc.drift_scale
     weights = np.empty((tx.size, k))
     variance = np.empty(tx.size)
-    # Semivariances between data: one matrix looked up when it is small enough.
-    table = None
-    if n <= 4000:
-        table = model.gamma(np.hypot(ax[:, None] - ax[None, :], ay[:, None] - ay[None, :]))
+    table = loc.gamma_table
     for start in range(0, tx.size, chunk):
         sl = slice(start, start + chunk)
         ii = idx[sl]

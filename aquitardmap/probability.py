@@ -45,7 +45,7 @@ import numpy as np
 from scipy.special import ndtr, ndtri
 
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import kriging_weights, merge_coincident
+from aquitardmap.kriging import kriging_weights, merge_coincident, prepare_locations, weights_at
 from aquitardmap.variogram import VariogramModel
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
@@ -286,13 +286,14 @@ def probability_below_grid(data: CensoredData, draws: np.ndarray, model: Variogr
                if np.ndim(v) else np.full(tx.size, float(v)))
            for k, v in thresholds_m.items()}
     acc = {k: np.zeros(tx.size) for k in thresholds_m}
-    # Cells in blocks: the weights of one block at a time bound the memory.
+    # The data's part of the kriging systems once; cells in blocks: the weights of one
+    # block at a time bound the memory.
+    locations = prepare_locations(ax, ay, model,
+                                  drift=data.all_drift if tf is not None else None)
     for start in range(0, tx.size, CELLS_PER_BLOCK):
         sl = slice(start, start + CELLS_PER_BLOCK)
-        drift = ({"drift": data.all_drift, "target_drift": tf[sl]} if tf is not None
-                 else {})
-        w = kriging_weights(ax, ay, model, tx[sl], ty[sl], max_neighbours=max_neighbours,
-                            **drift)
+        w = weights_at(locations, tx[sl], ty[sl], max_neighbours=max_neighbours,
+                       target_drift=tf[sl] if tf is not None else None)
         sd = np.sqrt(w.variance)
         on_datum = sd <= 0
         safe_sd = np.where(on_datum, 1.0, sd)

@@ -191,3 +191,73 @@ def test_cells_in_blocks_give_the_same_grids(monkeypatch):
         assert np.allclose(one.p_below[k], many.p_below[k], rtol=1e-12, atol=1e-14,
                            equal_nan=True)
     assert np.nanmax(one.p_below["window"]) > 0.5
+
+
+def _holes_with_every_kind_and_ground():
+    """25 holes (3 proving a window, 3 stopped in the clay) and a ground elevation (m) that
+    rises to the east, at the holes and on :func:`_grid`."""
+    x, y, t = _full_holes()
+    status = np.full(t.size, "full")
+    t = t.copy()
+    t[:3] = 0.0
+    status[5:8] = "lower_bound"
+    g = _grid()
+    xs, ys = g.cell_centres()
+    xx, yy = np.meshgrid(xs, ys)
+    ground = 120.0 + 0.01 * x + 3.0 * np.sin(y / 700.0)
+    grid_ground = 120.0 + 0.01 * xx + 3.0 * np.sin(yy / 700.0)
+    return g, x, y, t, status, ground, grid_ground
+
+
+@pytest.mark.parametrize("with_drift", [False, True])
+def test_block_size_leaves_grids_identical_with_and_without_drift(monkeypatch, with_drift):
+    # Invariance: a cell's kriging system (neighbours, semivariances, centred and scaled
+    # drift) does not depend on the block it is computed in; the drift is centred by the
+    # data's mean and SD, never a block's. Small neighbourhoods so they differ across blocks.
+    import aquitardmap.probability as prob
+
+    g, x, y, t, status, ground, grid_ground = _holes_with_every_kind_and_ground()
+    drift = {"drift": ground, "grid_drift": grid_ground} if with_drift else {}
+
+    def run():
+        return thickness_probabilities(x, y, t, status, MODEL, g,
+                                       {"thin": 18.0, "window": 0.0}, n_draws=4, seed=11,
+                                       max_neighbours=12, **drift).p_below
+
+    monkeypatch.setattr(prob, "CELLS_PER_BLOCK", 1_000_000)
+    whole = run()
+    monkeypatch.setattr(prob, "CELLS_PER_BLOCK", 100)
+    blocks = run()
+    for k in ("thin", "window"):
+        assert np.array_equal(np.isnan(whole[k]), np.isnan(blocks[k]))
+        assert np.nanmax(np.abs(whole[k] - blocks[k])) <= 1e-12
+    assert np.nanmax(whole["window"]) > 0.2  # the window holes matter
+
+
+@pytest.mark.parametrize("with_drift", [False, True])
+def test_data_semivariance_table_is_built_once_per_grid(monkeypatch, with_drift):
+    # The n × n table of semivariances between the data is the costly per-data setup; it
+    # must be built once for the whole grid, not once per block of cells.
+    import aquitardmap.probability as prob
+    from aquitardmap.variogram import VariogramModel as Model
+
+    g, x, y, t, status, ground, grid_ground = _holes_with_every_kind_and_ground()
+    data = censored_data(x, y, t, status, ground if with_drift else None)
+    draws = gibbs_draws(data, MODEL, n_draws=4, max_neighbours=8,
+                        rng=np.random.default_rng(2))
+    n = data.x_m.size + data.cx_m.size
+    original = Model.gamma
+    square = []
+
+    def counting_gamma(self, h_m):
+        if np.shape(h_m) == (n, n):
+            square.append(1)
+        return original(self, h_m)
+
+    monkeypatch.setattr(Model, "gamma", counting_gamma)
+    monkeypatch.setattr(prob, "CELLS_PER_BLOCK", 100)
+    n_cells = int(g.mask.sum())
+    assert n_cells > 3 * 100 and n_cells % 100 != n  # several blocks; none of n cells
+    prob.probability_below_grid(data, draws, MODEL, g, {"thin": 18.0}, max_neighbours=12,
+                                grid_drift=grid_ground if with_drift else None)
+    assert len(square) == 1
