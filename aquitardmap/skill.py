@@ -57,11 +57,64 @@ def score_cells(flagged: np.ndarray, truth_below: np.ndarray) -> ZoneScore:
                      n_flag, n_true)
 
 
+#: Probability bins of the reliability table.
+RELIABILITY_EDGES = (0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0)
+
+
+@dataclass(frozen=True)
+class Reliability:
+    """How often the event happened in the truth among cells of each probability bin: the
+    reliability table of a probability forecast (a forecast is reliable when, in each bin,
+    the observed frequency matches the mean forecast probability; Murphy & Winkler 1977,
+    Applied Statistics 26:41–47, from memory).
+
+    Attributes:
+        edges: bin edges (the last bin includes 1).
+        cells: number of cells in each bin.
+        mean_p: mean forecast probability in each bin (NaN for an empty bin).
+        observed: share of the bin's cells where the event is true in the truth (NaN for
+            an empty bin).
+    """
+
+    edges: tuple[float, ...]
+    cells: np.ndarray
+    mean_p: np.ndarray
+    observed: np.ndarray
+
+    def pooled(self, other: "Reliability") -> "Reliability":
+        """This table and ``other`` (same edges) counted together."""
+        n = self.cells + other.cells
+        with np.errstate(invalid="ignore"):
+            mp = (np.nan_to_num(self.mean_p) * self.cells
+                  + np.nan_to_num(other.mean_p) * other.cells) / n
+            ob = (np.nan_to_num(self.observed) * self.cells
+                  + np.nan_to_num(other.observed) * other.cells) / n
+        return Reliability(self.edges, n, mp, ob)
+
+
+def reliability(p: np.ndarray, event: np.ndarray,
+                edges: tuple[float, ...] = RELIABILITY_EDGES) -> Reliability:
+    """Reliability table of probabilities ``p`` against the boolean truth ``event`` (same
+    shape; NaN probabilities are left out)."""
+    p = np.asarray(p, float).ravel()
+    event = np.asarray(event, bool).ravel()
+    ok = np.isfinite(p)
+    p, event = p[ok], event[ok]
+    b = np.clip(np.searchsorted(np.asarray(edges), p, side="right") - 1, 0, len(edges) - 2)
+    n = np.bincount(b, minlength=len(edges) - 1).astype(float)
+    with np.errstate(invalid="ignore"):
+        mean_p = np.bincount(b, p, minlength=len(edges) - 1) / n
+        observed = np.bincount(b, event.astype(float), minlength=len(edges) - 1) / n
+    return Reliability(tuple(edges), n.astype(int), mean_p, observed)
+
+
 def zone_skill(project_dir: str | Path, *,
                overrides: dict[str, dict[str, object]] | None = None
                ) -> dict[str, dict[str, ZoneScore]]:
-    """``{"baseline" | "tool": {"window" | "thin": ZoneScore}}`` for a project folder that
-    holds ``truth/aquitard_thickness_m.tif`` on its grid (module docstring).
+    """``{"baseline" | "tool": {"window" | "thin": ZoneScore}, "reliability": {"window" |
+    "thin": Reliability}}`` for a project folder that holds
+    ``truth/aquitard_thickness_m.tif`` on its grid (module docstring); the reliability
+    tables are those of P(window) and P(thin) on the study-area cells.
 
     Runs the surfaces and the probability stage of the pipeline with the project's own
     settings, or with some replaced: ``overrides`` maps a settings section of the project
@@ -91,6 +144,7 @@ def zone_skill(project_dir: str | Path, *,
                      "thin": score_cells(est < th.thin_thickness_m, thin)},
         "tool": {"window": score_cells(tool_window, win),
                  "thin": score_cells((pt >= th.p_thin_threshold) | tool_window, thin)},
+        "reliability": {"window": reliability(pw, win), "thin": reliability(pt, thin)},
     }
 
 

@@ -8,7 +8,9 @@ character (``make_synthetic_region``: invented data from a known truth, 250 hole
 and spread of recall and precision of the **baseline** (ordinary kriging of the total
 thickness thresholded at 1 m / 5 m) and of the **tool** (P zones at the project's
 thresholds), the ratios tool / baseline of the means, and in how many regions issue 3's
-rule holds (recall above the baseline's, precision not below it). Settings can be replaced
+rule holds (recall above the baseline's, precision not below it), then the reliability of
+P(window) and P(thin) pooled over each character's regions (per probability bin: cells, mean
+P, share true in the truth). Settings can be replaced
 for a comparison, e.g. ``--set kriging.external_drift=none``.
 
     python benchmarks/bench_zone_skill.py                  # 6 seeds per character
@@ -86,6 +88,18 @@ def main() -> None:
                   f"{t[:, 1].mean():.3f}±{t[:, 1].std():.3f}   "
                   f"{t[:, 0].mean() / max(b[:, 0].mean(), 1e-9):6.2f}   "
                   f"{held} of {len(skills)}")
+    print("\nreliability (pooled over the regions of a character): bin  cells  mean P  "
+          "share true")
+    for character, skills in rows.items():
+        for kind in ("window", "thin"):
+            r = skills[0]["reliability"][kind]
+            for s in skills[1:]:
+                r = r.pooled(s["reliability"][kind])
+            cells = "  ".join(
+                f"[{lo:.1f},{hi:.1f}) {n:>6} {mp:.2f} {ob:.2f}"
+                for lo, hi, n, mp, ob in zip(r.edges[:-1], r.edges[1:], r.cells, r.mean_p,
+                                             r.observed) if lo >= 0.1)
+            print(f"{character:>13} {kind:>6}  {cells}")
     ratio = {k: np.mean([t for _, t in v]) / max(np.mean([b for b, _ in v]), 1e-9)
              for k, v in every.items()}
     print(f"window_recall_over_baseline={ratio['window']:.2f} "

@@ -17,9 +17,10 @@ the bundled demo region and two further seeded regions of other character genera
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
-from aquitardmap.skill import score_cells, zone_skill
+from aquitardmap.skill import reliability, score_cells, zone_skill
 from aquitardmap.synthetic import make_synthetic_region
 
 from conftest import DEMO
@@ -49,10 +50,15 @@ def skill(request, tmp_path_factory):
 
 
 #: What each region must show. "criterion": issue 3's acceptance rule, recall above the
-#: baseline's and precision not below it. Otherwise floors from the measured figures
-#: (README "How good are the zones"), so that a regression shows: on the channel region
-#: the zones find far more of the windows and thin clay but flag some channel-edge cells
-#: where a metre or two of clay is left, so their precision is below the baseline's.
+#: baseline's (by at least :data:`MIN_RECALL_GAIN`) and precision not below it. Otherwise
+#: floors from the measured figures (README "Zones from probabilities against the truth"),
+#: so that a regression shows: on the channel region the zones find far more of the
+#: windows and thin clay but flag the cells just beyond the channel's edges, where clay is
+#: left, so their precision is below the baseline's. These three regions are not a sample:
+#: over 8 seeded regions of each character (``benchmarks/bench_zone_skill.py``) the rule
+#: holds for the thin zones in most esker and bedrock regions and for the window zones in
+#: few (README), which this test does not hide by its choice of regions.
+MIN_RECALL_GAIN = 0.01
 EXPECT = {
     "demo": {"window": "criterion", "thin": "criterion"},
     "bedrock_highs": {"window": "criterion", "thin": "criterion"},
@@ -68,7 +74,7 @@ def test_probability_zones_against_the_kriged_baseline(skill, kind):
                                                              s["tool"][kind]))
     rule = EXPECT[name][kind]
     if rule == "criterion":
-        assert tr > br + 0.02, (name, kind)
+        assert tr > br + MIN_RECALL_GAIN, (name, kind)
         assert tp >= bp, (name, kind)
     else:
         assert tr >= br + rule["recall_gain"], (name, kind)
@@ -85,3 +91,36 @@ def test_scores_count_cells_by_hand():
     assert (s.flagged_cells, s.truth_cells) == (3, 3)
     assert score_cells([[False]], [[True]]).precision == 1.0
     assert score_cells([[True]], [[False]]).recall == 1.0
+
+
+def test_reliability_table_counted_by_hand():
+    """Bins, mean probability and observed frequency of 6 forecasts counted by hand
+    (reliability table: Murphy & Winkler 1977, from memory); NaN left out, 1.0 in the last
+    bin."""
+    p = [0.05, 0.2, 0.25, 0.95, 1.0, float("nan")]
+    event = [False, True, False, True, False, True]
+    r = reliability(p, event, edges=(0.0, 0.1, 0.5, 1.0))
+    assert r.cells.tolist() == [1, 2, 2]
+    assert r.mean_p == pytest.approx([0.05, 0.225, 0.975])
+    assert r.observed == pytest.approx([0.0, 0.5, 0.5])
+    both = r.pooled(reliability([0.3], [True], edges=(0.0, 0.1, 0.5, 1.0)))
+    assert both.cells.tolist() == [1, 3, 2]
+    assert both.observed[1] == pytest.approx(2 / 3)
+    assert both.mean_p[1] == pytest.approx(0.25)
+
+
+def test_probabilities_mean_what_they_say(skill):
+    """Among the cells given P(window) or P(thin) of 0.5 or more, the share that is a
+    window (thin) in the truth is within 0.2 of their mean P (a reliable forecast matches
+    them; Murphy & Winkler 1977, from memory). The tolerance covers a region's few hundred
+    such cells, which lie together in a few zones."""
+    name, s = skill
+    for kind in ("window", "thin"):
+        r = s["reliability"][kind]
+        high = np.asarray(r.edges[:-1]) >= 0.5
+        n = r.cells[high]
+        if n.sum() == 0:
+            continue
+        mean_p = float((r.mean_p[high] * n).sum() / n.sum())
+        observed = float((r.observed[high] * n).sum() / n.sum())
+        assert abs(observed - mean_p) <= 0.2, (name, kind, mean_p, observed, n.sum())
