@@ -81,7 +81,7 @@ class Reliability:
     mean_p: np.ndarray
     observed: np.ndarray
 
-    def pooled(self, other: "Reliability") -> "Reliability":
+    def pooled(self, other: Reliability) -> Reliability:
         """This table and ``other`` (same edges) counted together."""
         n = self.cells + other.cells
         with np.errstate(invalid="ignore"):

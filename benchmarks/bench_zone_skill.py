@@ -98,7 +98,7 @@ def main() -> None:
             cells = "  ".join(
                 f"[{lo:.1f},{hi:.1f}) {n:>6} {mp:.2f} {ob:.2f}"
                 for lo, hi, n, mp, ob in zip(r.edges[:-1], r.edges[1:], r.cells, r.mean_p,
-                                             r.observed) if lo >= 0.1)
+                                             r.observed, strict=True) if lo >= 0.1)
             print(f"{character:>13} {kind:>6}  {cells}")
     ratio = {k: np.mean([t for _, t in v]) / max(np.mean([b for b, _ in v]), 1e-9)
              for k, v in every.items()}
