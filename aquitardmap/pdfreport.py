@@ -58,6 +58,7 @@ from aquitardmap.presentation import (
     run_date,
     thresholds,
     zone_labels,
+    zones_and_thickness_note,
 )
 from aquitardmap.runfolder import (
     GridData,
@@ -637,6 +638,8 @@ def _parameter_pages(pages: _Pages, run_dir: Path) -> None:
     drift = section(section(s, "probability"), "external_drift")
     if drift.get("reason"):
         rows.append(["External drift in this run", _plain(drift["reason"])])
+    if zones_and_thickness_note(s):
+        rows.append(["Zones and the thickness map", _plain(zones_and_thickness_note(s))])
     flow.table(rows, ["What", "Method and published source"], [0.25, 0.75], fontsize=7.5,
                wrap=[30, 88])
     warnings = [w for w in s.get("warnings") or [] if isinstance(w, str)]

@@ -296,6 +296,22 @@ def zone_labels(summary: dict[str, Any]) -> dict[str, str]:
     return labels
 
 
+def zones_and_thickness_note(summary: dict[str, Any]) -> str:
+    """Why a probability zone and the thickness layer can disagree ("" when the zones were
+    drawn from the kriged thickness or the summary does not say)."""
+    zones = summary.get("zones")
+    if not isinstance(zones, dict) or zones.get("basis") != "probability":
+        return ""
+    prob = summary.get("probability")
+    drift = prob.get("external_drift") if isinstance(prob, dict) else None
+    drift = drift if isinstance(drift, dict) else {}
+    return ("The thickness layer is the ordinary-kriged mean"
+            + (" (without the drift)" if drift.get("used") else "")
+            + "; a zone marks where the clay is more likely than not (window) or likely "
+            "(thin) to be thinner than the threshold, so it can cover cells whose mean "
+            "thickness is above the threshold, and miss cells whose mean is below it.")
+
+
 # --------------------------------------------------------------------------- boreholes
 
 

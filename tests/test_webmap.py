@@ -469,6 +469,9 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
     assert "P(window) is at least</td><td>0.5" in text
     assert "P(thin) is at least</td><td>0.6" in text
     assert "latent &lt;Gaussian&gt;" in text and "used: RMSE 2.97 m" in text
+    assert "ordinary-kriged mean (without the drift)" in text
+    assert "(without the drift)" not in zone_method_html(
+        {"zones": {"basis": "probability"}, "probability": {"external_drift": {"used": False}}})
     assert "How the zones were drawn" in header_html(summary, "")
     assert "kriged total thickness" in zone_method_html({"zones": {"basis":
                                                                    "kriged_thickness"}})

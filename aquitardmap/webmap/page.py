@@ -26,6 +26,7 @@ from aquitardmap.presentation import (
     fmt_threshold,
     run_date,
     thresholds,
+    zones_and_thickness_note,
 )
 from aquitardmap.runfolder import GridData, section
 from aquitardmap.webmap.markup import RawHtml, esc, js_json
@@ -119,6 +120,8 @@ def zone_method_html(summary: dict[str, Any]) -> str:
     if drift.get("reason"):
         body += (f"<tr><td>Ground elevation as external drift</td>"
                  f"<td>{esc(drift['reason'])}</td></tr>")
+    body += (f"<tr><td>Zones and the thickness layer</td>"
+             f"<td>{esc(zones_and_thickness_note(summary))}</td></tr>")
     return f"<b>How the zones were drawn</b><table>{body}</table>"
 
 
