@@ -468,7 +468,8 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
         n_draws=th.probability_draws, seed=th.probability_seed,
         variance_scale=cv_variance_scale(cv) if th.probability_variance_from_cv else 1.0,
         drift=ground if drift.used else None,
-        grid_drift=drift.grid_drift(grid_ground) if drift.used else None)
+        grid_drift=drift.grid_drift(grid_ground) if drift.used else None,
+        window_floor_m=th.window_latent_floor_m)
     return replace(probs, drift=drift.as_dict(),
                    residual=drift.residual if drift.used else None)
 

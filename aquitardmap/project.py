@@ -200,6 +200,8 @@ class ScreeningThresholds:
         probability_seed: seed of those draws (the same seed gives the same grids).
         probability_variance_from_cv: scale the variogram behind the probabilities so that
             the cross-validation's standardised errors have variance 1.
+        window_latent_floor_m: how far below zero the latent thickness may be drawn at a
+            hole that proves a window (m; :func:`aquitardmap.probability.censored_data`).
     """
 
     window_thickness_m: float = 1.0
@@ -213,6 +215,7 @@ class ScreeningThresholds:
     probability_draws: int = 64
     probability_seed: int = 0
     probability_variance_from_cv: bool = True
+    window_latent_floor_m: float = 3.0
 
 
 @dataclass(frozen=True)
@@ -911,6 +914,8 @@ def read_project(folder: str | Path) -> Project:
                                      "screening", low=0, integer=True)),
         probability_variance_from_cv=_flag(problems, path, text, sc,
                                            "probability_variance_from_cv", True, "screening"),
+        window_latent_floor_m=_number(problems, path, text, sc, "window_latent_floor_m", 3.0,
+                                      "screening", low=0, low_open=True),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),

@@ -129,6 +129,7 @@ p_thin_threshold = 0.4
 probability_draws = 32
 probability_seed = 5
 probability_variance_from_cv = false
+window_latent_floor_m = 1.5
 
 [qa]
 cv_standardised_error_max = 2.5
@@ -142,6 +143,7 @@ cv_standardised_error_max = 2.5
     assert (s.zone_basis, s.p_window_threshold, s.p_thin_threshold, s.probability_draws,
             s.probability_seed, s.probability_variance_from_cv) == ("kriged_thickness", 0.7,
                                                                     0.4, 32, 5, False)
+    assert s.window_latent_floor_m == 1.5
     assert p.qa.cv_standardised_error_max == 2.5
 
 
@@ -153,6 +155,7 @@ def test_defaults_of_the_new_keys(tmp_path):
     assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.6)
     assert p.kriging.external_drift == "auto"
     assert p.screening.probability_variance_from_cv is True
+    assert p.screening.window_latent_floor_m == 3.0
     assert p.qa.cv_standardised_error_max == 3.0
 
 
@@ -183,6 +186,7 @@ model2 = "gaussian"
 p_thin_threshold = 1.5
 zone_basis = "both"
 probability_variance_from_cv = "yes"
+window_latent_floor_m = 0
 """))
     text = "\n".join(str(p) for p in exc.value.problems)
     lines = (tmp_path / "project.toml").read_text().splitlines()
@@ -199,6 +203,9 @@ probability_variance_from_cv = "yes"
     assert "p_thin_threshold must be <= 1.0" in text
     assert "zone_basis must be one of" in text
     assert "probability_variance_from_cv must be true or false" in text
+    n_floor = next(i for i, ln in enumerate(lines, 1) if ln.startswith("window_latent_floor"))
+    assert (f"line {n_floor}, column 1: [screening] window_latent_floor_m must be > 0, got 0"
+            in text)
 
 
 # --- holes outside the grid, units nobody passed through, exclusion by id ---------------

@@ -261,3 +261,27 @@ def test_data_semivariance_table_is_built_once_per_grid(monkeypatch, with_drift)
     prob.probability_below_grid(data, draws, MODEL, g, {"thin": 18.0}, max_neighbours=12,
                                 grid_drift=grid_ground if with_drift else None)
     assert len(square) == 1
+
+
+def test_window_holes_are_drawn_between_the_floor_and_zero():
+    # A cluster of 9 holes proving a window inside thick clay: without a floor the holes pull
+    # one another below zero; with the floor every draw stays in [-floor, 0] (the interval
+    # of a truncated normal: common practice), and the counts of each kind are unchanged.
+    x, y, t = _full_holes()
+    cx, cy = np.meshgrid([1060.0, 1160.0, 1260.0], [1060.0, 1160.0, 1260.0])
+    xa, ya = np.append(x, cx.ravel()), np.append(y, cy.ravel())
+    ta = np.append(t, np.zeros(9))
+    status = np.full(ta.size, "full")
+    steep = VariogramModel("spherical", nugget=0.01, psill=400.0, range_m=900.0)
+    free = censored_data(xa, ya, ta, status)
+    floored = censored_data(xa, ya, ta, status, window_floor_m=1.5)
+    assert (free.n_absent, free.n_lower_bounds) == (floored.n_absent, floored.n_lower_bounds)
+    assert (floored.n_absent, floored.n_lower_bounds) == (9, 0)
+    d_free = gibbs_draws(free, steep, n_draws=32, rng=np.random.default_rng(3))
+    d_floor = gibbs_draws(floored, steep, n_draws=32, rng=np.random.default_rng(3))
+    assert d_free.max() <= 0 and d_free.min() < -1.5
+    assert d_floor.max() <= 0 and d_floor.min() >= -1.5
+    # Holes that stopped in the clay keep an open upper end.
+    lb = censored_data(xa, ya, np.append(t, np.full(9, 3.0)),
+                       np.append(status[:25], ["lower_bound"] * 9), window_floor_m=1.5)
+    assert lb.n_lower_bounds == 9 and np.all(np.isinf(lb.high_m))
