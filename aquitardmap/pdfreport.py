@@ -102,7 +102,8 @@ METHODS: tuple[tuple[str, str], ...] = (
     ("Chance of thin clay (approx.)", "Gaussian error of the kriged thickness, "
      "P = Φ((T* − t)/σ) (p_thin_approx.tif)"),
     ("Chance of thin clay or a window", "latent Gaussian thickness with inequality data: "
-     "window holes Z ≤ 0, holes stopped in the clay Z ≥ depth, drawn by a Gibbs sampler "
+     "window holes −L ≤ Z ≤ 0 (L = window_latent_floor_m), holes stopped in the clay "
+     "Z ≥ depth, drawn by a Gibbs sampler "
      "(Freulon & de Fouquet 1993) and kriged (Verly 1983); p_thin.tif, p_window.tif"),
     ("Ground as external drift", "kriging with an external drift (Wackernagel 2003, "
      "Multivariate Geostatistics; Hengl et al. 2007), used for the probabilities when "

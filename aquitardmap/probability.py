@@ -9,8 +9,9 @@ Method (a multi-Gaussian model of a *latent* thickness with inequality data):
   of the geometry of fluvio-deltaic reservoirs*, SPE 16753; from memory).
 - Boreholes give three kinds of data on ``Z``: a hole that passed through the clay and
   logged a positive thickness ``t`` gives ``Z = t``; a hole that passed through and logged
-  none proves a window and gives ``Z ≤ 0``; a hole that stopped inside the clay after ``b``
-  metres gives ``Z ≥ b``. Inequalities are never used as values: kriging a 0 at a window
+  none proves a window and gives ``-L ≤ Z ≤ 0`` (``L`` the floor of
+  :func:`censored_data`); a hole that stopped inside the clay after ``b`` metres gives
+  ``Z ≥ b``. Inequalities are never used as values: kriging a 0 at a window
   hole or the depth reached by a partial hole as if it were the thickness biases the map
   (inequality data, Dubrule & Kostov 1986, Math. Geol. 18(1):33–51).
 - The censored values are drawn jointly from their conditional distribution by a Gibbs
@@ -371,8 +372,8 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
                             window_floor_m: float = math.inf
                             ) -> ThicknessProbabilities:
     """P(total aquitard thickness < threshold) grids from borehole columns (module
-    docstring): full positive thicknesses as data, holes proving a window as ``Z ≤ 0``,
-    holes that stopped in the clay as ``Z ≥ bound``.
+    docstring): full positive thicknesses as data, holes proving a window as
+    ``-window_floor_m ≤ Z ≤ 0``, holes that stopped in the clay as ``Z ≥ bound``.
 
     Args:
         x_m, y_m: borehole coordinates (m).
