@@ -17,8 +17,8 @@ Example::
 
     >>> from aquitardmap.skill import zone_skill
     >>> s = zone_skill("demo_region")                       # doctest: +SKIP
-    >>> s["tool"]["window"]                                  # doctest: +SKIP
-    ZoneScore(recall=0.516, precision=1.0, flagged_cells=..., truth_cells=...)
+    >>> s["tool"]["window"].recall > s["baseline"]["window"].recall  # doctest: +SKIP
+    True
 """
 
 from __future__ import annotations
@@ -110,7 +110,7 @@ def reliability(p: np.ndarray, event: np.ndarray,
 
 def zone_skill(project_dir: str | Path, *,
                overrides: dict[str, dict[str, object]] | None = None
-               ) -> dict[str, dict[str, ZoneScore]]:
+               ) -> dict[str, dict[str, ZoneScore | Reliability]]:
     """``{"baseline" | "tool": {"window" | "thin": ZoneScore}, "reliability": {"window" |
     "thin": Reliability}}`` for a project folder that holds
     ``truth/aquitard_thickness_m.tif`` on its grid (module docstring); the reliability
@@ -148,7 +148,7 @@ def zone_skill(project_dir: str | Path, *,
     }
 
 
-def beats_baseline(skill: dict[str, dict[str, ZoneScore]], kind: str,
+def beats_baseline(skill: dict[str, dict[str, ZoneScore | Reliability]], kind: str,
                    min_recall_gain: float = 0.0) -> bool:
     """Issue 3's rule for ``kind`` (``"window"`` or ``"thin"``): the tool's recall above the
     baseline's by more than ``min_recall_gain`` and its precision not below the baseline's."""
