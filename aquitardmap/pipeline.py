@@ -68,11 +68,17 @@ from aquitardmap.project import (
     PROJECT_FILE,
     ComputeSettings,
     Project,
+    ScreeningThresholds,
     read_project,
     setting_location,
 )
 from aquitardmap.report import file_sha256, write_summary
-from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+from aquitardmap.screening import (
+    probability_below,
+    window_proof_cells,
+    zone_areas_m2,
+    zones_from_grids,
+)
 from aquitardmap.staging import staged_output_dir, tidy_output_dir  # noqa: F401
 from aquitardmap.store import has_store, project_boreholes
 from aquitardmap.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
@@ -444,6 +450,23 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
                                    "thin": th.thin_thickness_m + cut})
 
 
+def proves_window(columns: pd.DataFrame, screening: ScreeningThresholds) -> pd.Series:
+    """Holes that passed through the aquitard and logged less than the window thickness."""
+    return (columns["status_aquitard"] == "full") & (
+        columns["aquitard_thickness_m"] < screening.window_thickness_m)
+
+
+def window_proof_grid(inputs: Inputs) -> np.ndarray:
+    """Cells within ``[screening] window_proof_radius_m`` of a hole (not excluded) that
+    proves a window: where probability zones may draw a window
+    (:func:`aquitardmap.screening.zone_masks`)."""
+    th = inputs.project.screening
+    used = inputs.columns[~inputs.columns["excluded"]]
+    proven = used[proves_window(used, th)]
+    return window_proof_cells(proven["x"].to_numpy(float), proven["y"].to_numpy(float),
+                              inputs.grid, th.window_proof_radius_m)
+
+
 def aquitard_probabilities(inputs: Inputs, total: Surface,
                            thresholds_m: dict[str, float | np.ndarray]
                            ) -> ThicknessProbabilities:
@@ -583,8 +606,7 @@ def borehole_table(inputs: Inputs, surfaces: dict[str, Surface] | None = None
         for col in sus.columns:
             c[col] = sus[col]
     th = inputs.project.screening
-    c["proves_window"] = (c["status_aquitard"] == "full") & (
-        c["aquitard_thickness_m"] < th.window_thickness_m)
+    c["proves_window"] = proves_window(c, th)
     c["proves_thin"] = (c["status_aquitard"] == "full") & (
         c["aquitard_thickness_m"] < th.thin_thickness_m)
     c["pierces_aquitard"] = piercing_mask(c)
@@ -620,7 +642,7 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         p_window = probabilities.p_below["window"]
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr,
                                  probabilities.p_below["thin"], inputs.grid, th, used,
-                                 p_window=p_window)
+                                 p_window=p_window, window_proven=window_proof_grid(inputs))
     else:
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
                                  inputs.grid, th, used)
@@ -714,7 +736,10 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                   "basis": (p.screening.zone_basis if probabilities is not None
                             else "kriged_thickness"),
                   "p_window_threshold": p.screening.p_window_threshold,
-                  "p_thin_threshold": p.screening.p_thin_threshold},
+                  "p_thin_threshold": p.screening.p_thin_threshold,
+                  "window_proof_radius_m": p.screening.window_proof_radius_m,
+                  "cells_likely_window_without_proof": (
+                      int(zones["n_cells_unproven_window"].sum()) if len(zones) else 0)},
         "warnings": [str(w) for w in inputs.warnings],
     }
 

@@ -202,6 +202,9 @@ class ScreeningThresholds:
             the cross-validation's standardised errors have variance 1.
         window_latent_floor_m: how far below zero the latent thickness may be drawn at a
             hole that proves a window (m; :func:`aquitardmap.probability.censored_data`).
+        window_proof_radius_m: with probability zones, a cell is a window zone only within
+            this distance of a hole that proves a window; a likely window farther from any
+            such hole is flagged thin (m; :func:`aquitardmap.screening.zone_masks`).
     """
 
     window_thickness_m: float = 1.0
@@ -216,6 +219,7 @@ class ScreeningThresholds:
     probability_seed: int = 0
     probability_variance_from_cv: bool = True
     window_latent_floor_m: float = 3.0
+    window_proof_radius_m: float = 300.0
 
 
 @dataclass(frozen=True)
@@ -916,6 +920,8 @@ def read_project(folder: str | Path) -> Project:
                                            "probability_variance_from_cv", True, "screening"),
         window_latent_floor_m=_number(problems, path, text, sc, "window_latent_floor_m", 3.0,
                                       "screening", low=0, low_open=True),
+        window_proof_radius_m=_number(problems, path, text, sc, "window_proof_radius_m", 300.0,
+                                      "screening", low=0),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),

@@ -6,12 +6,14 @@ This module answers it on a project that carries its truth (``truth/aquitard_thi
 written by :func:`aquitardmap.synthetic.make_synthetic_region`).
 
 Baseline (issue 3): the kriged total thickness (ordinary kriging) thresholded at the window
-and thin thicknesses. Tool: cells where P(thinner than the threshold) reaches the configured
-probability threshold (``p_window_threshold``, ``p_thin_threshold``); the thin zones include
-the window zones. Scores, cell by cell on the study area: *area recall* (share of the
-truth's cells below the threshold that are flagged) and *area precision* (share of the
-flagged cells that are below it in the truth). Windows are scored against truth below the
-window thickness, thin zones against truth below the thin thickness.
+and thin thicknesses. Tool: the window and thin zones the run draws
+(:func:`aquitardmap.screening.zone_masks`: cells where P(thinner than the threshold)
+reaches the configured probability threshold, windows only near a hole that proves one);
+the thin zones include the window zones. Scores, cell by cell on the study area: *area
+recall* (share of the truth's cells below the threshold that are flagged) and *area
+precision* (share of the flagged cells that are below it in the truth). Windows are
+scored against truth below the window thickness, thin zones against truth below the thin
+thickness.
 
 Example::
 
@@ -121,7 +123,13 @@ def zone_skill(project_dir: str | Path, *,
     (``"kriging"``, ``"screening"``) to field values, e.g.
     ``{"kriging": {"external_drift": "none"}}``. Writes nothing.
     """
-    from aquitardmap.pipeline import aquitard_probabilities, build_surfaces, load_inputs
+    from aquitardmap.pipeline import (
+        aquitard_probabilities,
+        build_surfaces,
+        load_inputs,
+        window_proof_grid,
+    )
+    from aquitardmap.screening import zone_masks
 
     inputs = load_inputs(project_dir)
     for section, values in (overrides or {}).items():
@@ -138,12 +146,14 @@ def zone_skill(project_dir: str | Path, *,
     est = total.thickness_m[m]
     pw, pt = probs.p_below["window"][m], probs.p_below["thin"][m]
     win, thin = truth[m] < th.window_thickness_m, truth[m] < th.thin_thickness_m
-    tool_window = pw >= th.p_window_threshold
+    zones = zone_masks(total.thickness_m, np.full(m.shape, np.nan), inputs.grid, th,
+                       p_window=probs.p_below["window"], p_thin=probs.p_below["thin"],
+                       window_proven=window_proof_grid(inputs))
     return {
         "baseline": {"window": score_cells(est < th.window_thickness_m, win),
                      "thin": score_cells(est < th.thin_thickness_m, thin)},
-        "tool": {"window": score_cells(tool_window, win),
-                 "thin": score_cells((pt >= th.p_thin_threshold) | tool_window, thin)},
+        "tool": {"window": score_cells(zones["window"][m], win),
+                 "thin": score_cells((zones["thin"] | zones["window"])[m], thin)},
         "reliability": {"window": reliability(pw, win), "thin": reliability(pt, thin)},
     }
 

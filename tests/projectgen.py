@@ -210,6 +210,7 @@ def specs(draw, max_holes: int = 10) -> Spec:
             "probability_draws": draw(st.sampled_from([8, 16])),
             "probability_seed": draw(st.integers(0, 3)),
             "window_latent_floor_m": draw(st.sampled_from([0.01, 3.0, 1e6])),
+            "window_proof_radius_m": draw(st.sampled_from([0.0, 300.0, 1e6])),
         },
         "qa": {"dem_misfit_m": draw(st.sampled_from([0.5, 3.0, 100.0]))},
     }

@@ -130,6 +130,7 @@ probability_draws = 32
 probability_seed = 5
 probability_variance_from_cv = false
 window_latent_floor_m = 1.5
+window_proof_radius_m = 450
 
 [qa]
 cv_standardised_error_max = 2.5
@@ -143,7 +144,7 @@ cv_standardised_error_max = 2.5
     assert (s.zone_basis, s.p_window_threshold, s.p_thin_threshold, s.probability_draws,
             s.probability_seed, s.probability_variance_from_cv) == ("kriged_thickness", 0.7,
                                                                     0.4, 32, 5, False)
-    assert s.window_latent_floor_m == 1.5
+    assert s.window_latent_floor_m == 1.5 and s.window_proof_radius_m == 450.0
     assert p.qa.cv_standardised_error_max == 2.5
 
 
@@ -156,6 +157,7 @@ def test_defaults_of_the_new_keys(tmp_path):
     assert p.kriging.external_drift == "auto"
     assert p.screening.probability_variance_from_cv is True
     assert p.screening.window_latent_floor_m == 3.0
+    assert p.screening.window_proof_radius_m == 300.0
     assert p.qa.cv_standardised_error_max == 3.0
 
 
@@ -187,6 +189,7 @@ p_thin_threshold = 1.5
 zone_basis = "both"
 probability_variance_from_cv = "yes"
 window_latent_floor_m = 0
+window_proof_radius_m = -5
 """))
     text = "\n".join(str(p) for p in exc.value.problems)
     lines = (tmp_path / "project.toml").read_text().splitlines()
@@ -203,6 +206,7 @@ window_latent_floor_m = 0
     assert "p_thin_threshold must be <= 1.0" in text
     assert "zone_basis must be one of" in text
     assert "probability_variance_from_cv must be true or false" in text
+    assert "[screening] window_proof_radius_m must be >= 0, got -5" in text
     n_floor = next(i for i, ln in enumerate(lines, 1) if ln.startswith("window_latent_floor"))
     assert (f"line {n_floor}, column 1: [screening] window_latent_floor_m must be > 0, got 0"
             in text)

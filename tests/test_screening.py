@@ -51,3 +51,41 @@ def test_no_zone_when_clay_is_thick_everywhere():
     zones = zones_from_grids(t, t * 0 + 1, t * 100, t * 0, g, ScreeningThresholds())
     assert len(zones) == 0
     assert zone_areas_m2(zones) == {"window": 0.0, "thin": 0.0, "fast": 0.0}
+
+
+def test_a_window_zone_needs_a_hole_proving_a_window_nearby():
+    # Two patches where P(window) = 0.8: one with a hole proving a window at its centre, one
+    # with none within the radius. The proven patch is a window zone; the other is flagged
+    # thin and says why (common practice: map a window where a log shows it, treat an
+    # unproven one as possible).
+    from aquitardmap.screening import window_proof_cells, zone_masks
+
+    g = make_grid(box(0, 0, 4000, 2000), 50.0, CRS.from_epsg(32632))
+    xs, ys = g.cell_centres()
+    xx, yy = np.meshgrid(xs, ys)
+    a = np.hypot(xx - 1000, yy - 1000) < 200
+    b = np.hypot(xx - 3000, yy - 1000) < 200
+    pw = np.where(a | b, 0.8, 0.01)
+    pt = np.where(a | b, 0.9, 0.05)
+    t = np.full(pw.shape, 20.0)
+    th = ScreeningThresholds(window_proof_radius_m=300.0)
+    proof = window_proof_cells(np.array([1010.0]), np.array([990.0]), g, 300.0)
+    # Distance rule against a brute-force check of every cell centre.
+    assert np.array_equal(proof, np.hypot(xx - 1010.0, yy - 990.0) <= 300.0)
+    m = zone_masks(t, t * 100, g, th, p_window=pw, p_thin=pt, window_proven=proof)
+    assert np.array_equal(m["window"], a) and np.array_equal(m["thin"], b)
+    # Without the proof grid every likely window is a window (the rule is opt-in here).
+    m0 = zone_masks(t, t * 100, g, th, p_window=pw, p_thin=pt)
+    assert np.array_equal(m0["window"], a | b)
+    zones = zones_from_grids(t, t * 0 + 1, t * 100, pt, g, th, p_window=pw,
+                             window_proven=proof)
+    thin = zones[zones.kind == "thin"].iloc[0]
+    assert thin.n_cells_unproven_window == b.sum() == thin.n_cells
+    assert "no hole proving a window lies within 300 m" in thin.reason
+    win = zones[zones.kind == "window"].iloc[0]
+    assert win.n_cells_unproven_window == 0 and "no hole proving" not in win.reason
+    # A P(window) below the threshold stays out of both, whatever the proof.
+    low = zone_masks(t, t * 100, g, th, p_window=pw * 0.5, p_thin=pt * 0.5,
+                     window_proven=proof)
+    assert not low["window"].any() and not low["thin"].any()
+    assert not window_proof_cells(np.array([]), np.array([]), g, 300.0).any()
