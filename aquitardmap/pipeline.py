@@ -456,15 +456,19 @@ def proves_window(columns: pd.DataFrame, screening: ScreeningThresholds) -> pd.S
         columns["aquitard_thickness_m"] < screening.window_thickness_m)
 
 
-def window_proof_grid(inputs: Inputs) -> np.ndarray:
-    """Cells within ``[screening] window_proof_radius_m`` of a hole (not excluded) that
-    proves a window: where probability zones may draw a window
-    (:func:`aquitardmap.screening.zone_masks`)."""
+def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarray:
+    """Where probability zones may draw a window (:func:`aquitardmap.screening.zone_masks`):
+    cells within ``[screening] window_proof_radius_m`` of a hole (not excluded) that proves a
+    window, and, with ``hyd``, cells where a mapped hazard (pit, cutting, scar) removes clay
+    of the aquitard."""
     th = inputs.project.screening
     used = inputs.columns[~inputs.columns["excluded"]]
     proven = used[proves_window(used, th)]
-    return window_proof_cells(proven["x"].to_numpy(float), proven["y"].to_numpy(float),
-                              inputs.grid, th.window_proof_radius_m)
+    cells = window_proof_cells(proven["x"].to_numpy(float), proven["y"].to_numpy(float),
+                               inputs.grid, th.window_proof_radius_m)
+    if hyd is not None and hyd.hazard_removed_aquitard_m is not None:
+        cells |= np.nan_to_num(hyd.hazard_removed_aquitard_m) > 0
+    return cells
 
 
 def aquitard_probabilities(inputs: Inputs, total: Surface,
@@ -642,7 +646,8 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         p_window = probabilities.p_below["window"]
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr,
                                  probabilities.p_below["thin"], inputs.grid, th, used,
-                                 p_window=p_window, window_proven=window_proof_grid(inputs))
+                                 p_window=p_window,
+                                 window_proven=window_proof_grid(inputs, hyd))
     else:
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
                                  inputs.grid, th, used)

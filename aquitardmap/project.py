@@ -203,8 +203,9 @@ class ScreeningThresholds:
         window_latent_floor_m: how far below zero the latent thickness may be drawn at a
             hole that proves a window (m; :func:`aquitardmap.probability.censored_data`).
         window_proof_radius_m: with probability zones, a cell is a window zone only within
-            this distance of a hole that proves a window; a likely window farther from any
-            such hole is flagged thin (m; :func:`aquitardmap.screening.zone_masks`).
+            this distance of a hole that proves a window (or where a mapped hazard removes
+            clay); a likely window farther from any such hole is flagged thin (m;
+            :func:`aquitardmap.screening.zone_masks`).
     """
 
     window_thickness_m: float = 1.0

@@ -14,10 +14,10 @@ Two ways to draw window and thin zones (``[screening] zone_basis``):
   stopped in the clay. Each zone carries the probability it was drawn from
   (``probability``: its mean over the zone; ``p_threshold``: the threshold). A window
   zone is drawn only within ``window_proof_radius_m`` of a hole that proves a window
-  (:func:`window_proof_cells`); a cell that is likely a window farther from any such hole
-  is flagged thin, and its zone says so: the probabilities there rest on the drift and the
-  variogram alone, and over 24 synthetic regions most such cells had some clay left
-  (README, *Zones from probabilities*).
+  (:func:`window_proof_cells`) or where a mapped hazard removes clay; a cell that is
+  likely a window farther from any such hole is flagged thin, and its zone says so: the
+  probabilities there rest on the drift and the variogram alone, and over 24 synthetic
+  regions most such cells had some clay left (README, *Zones from probabilities*).
 - ``"kriged_thickness"``: where the kriged thickness is below the thickness threshold (the
   plain-kriging baseline).
 
