@@ -462,12 +462,13 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
     from aquitardmap.webmap.page import header_html, zone_method_html
 
     summary = {"zones": {"basis": "probability", "p_window_threshold": 0.5,
-                         "p_thin_threshold": 0.6},
+                         "p_thin_threshold": 0.6, "window_proof_radius_m": 300.0},
                "probability": {"method": "latent <Gaussian>",
                                "external_drift": {"used": True, "reason": "used: RMSE 2.97 m"}}}
     text = zone_method_html(summary)
     assert "P(window) is at least</td><td>0.5" in text
     assert "P(thin) is at least</td><td>0.6" in text
+    assert "hole proving a window, or where a mapped hazard removes clay</td><td>300<" in text
     assert "latent &lt;Gaussian&gt;" in text and "used: RMSE 2.97 m" in text
     assert "ordinary-kriged mean (without the drift)" in text
     assert "(without the drift)" not in zone_method_html(

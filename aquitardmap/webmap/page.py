@@ -114,6 +114,10 @@ def zone_method_html(summary: dict[str, Any]) -> str:
             ("Thin where P(thin) is at least", finite_float(zones.get("p_thin_threshold")))]
     body = "".join(f"<tr><td>{label}</td><td>{v:g}</td></tr>" for label, v in rows
                    if v is not None)
+    radius = finite_float(zones.get("window_proof_radius_m"))
+    if radius is not None:
+        body += ("<tr><td>Window only within (m) of a hole proving a window, or where a "
+                 f"mapped hazard removes clay</td><td>{radius:g}</td></tr>")
     if prob.get("method"):
         body += f"<tr><td>Probabilities from</td><td>{esc(prob['method'])}</td></tr>"
     drift = section(prob, "external_drift")
