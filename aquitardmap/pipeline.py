@@ -68,7 +68,6 @@ from aquitardmap.project import (
     PROJECT_FILE,
     ComputeSettings,
     Project,
-    ScreeningThresholds,
     read_project,
     setting_location,
 )
@@ -450,10 +449,11 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
                                    "thin": th.thin_thickness_m + cut})
 
 
-def proves_window(columns: pd.DataFrame, screening: ScreeningThresholds) -> pd.Series:
-    """Holes that passed through the aquitard and logged less than the window thickness."""
+def proves_thinner_than(columns: pd.DataFrame, thickness_m: float) -> pd.Series:
+    """Holes that passed through the aquitard and logged less than ``thickness_m`` of it
+    (with the window thickness: holes that prove a window)."""
     return (columns["status_aquitard"] == "full") & (
-        columns["aquitard_thickness_m"] < screening.window_thickness_m)
+        columns["aquitard_thickness_m"] < thickness_m)
 
 
 def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarray:
@@ -463,7 +463,7 @@ def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarr
     of the aquitard."""
     th = inputs.project.screening
     used = inputs.columns[~inputs.columns["excluded"]]
-    proven = used[proves_window(used, th)]
+    proven = used[proves_thinner_than(used, th.window_thickness_m)]
     cells = window_proof_cells(proven["x"].to_numpy(float), proven["y"].to_numpy(float),
                                inputs.grid, th.window_proof_radius_m)
     if hyd is not None and hyd.hazard_removed_aquitard_m is not None:
@@ -610,9 +610,8 @@ def borehole_table(inputs: Inputs, surfaces: dict[str, Surface] | None = None
         for col in sus.columns:
             c[col] = sus[col]
     th = inputs.project.screening
-    c["proves_window"] = proves_window(c, th)
-    c["proves_thin"] = (c["status_aquitard"] == "full") & (
-        c["aquitard_thickness_m"] < th.thin_thickness_m)
+    c["proves_window"] = proves_thinner_than(c, th.window_thickness_m)
+    c["proves_thin"] = proves_thinner_than(c, th.thin_thickness_m)
     c["pierces_aquitard"] = piercing_mask(c)
     c = c.reset_index().rename(columns={"index": "borehole_id"})
     return gpd.GeoDataFrame(c, geometry=gpd.points_from_xy(c["x"], c["y"]),

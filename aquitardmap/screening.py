@@ -71,6 +71,11 @@ def window_proof_cells(x_m: np.ndarray, y_m: np.ndarray, grid: Grid,
     return (d <= radius_m).reshape(grid.mask.shape)
 
 
+def likely_window(p_window: np.ndarray, thresholds: ScreeningThresholds) -> np.ndarray:
+    """Cells where P(window) reaches ``p_window_threshold`` (NaN counts as 0)."""
+    return np.nan_to_num(p_window) >= thresholds.p_window_threshold
+
+
 def zone_masks(total_thickness_m: np.ndarray, travel_time_yr: np.ndarray, grid: Grid,
                thresholds: ScreeningThresholds, *, p_window: np.ndarray | None = None,
                p_thin: np.ndarray | None = None,
@@ -87,7 +92,7 @@ def zone_masks(total_thickness_m: np.ndarray, travel_time_yr: np.ndarray, grid: 
     tt = np.where(grid.mask, travel_time_yr, np.nan)
     with np.errstate(invalid="ignore"):
         if uses_probability(thresholds, p_window, p_thin):
-            likely = np.nan_to_num(p_window) >= thresholds.p_window_threshold
+            likely = likely_window(p_window, thresholds)
             window = likely if window_proven is None else likely & window_proven
             thin = ((np.nan_to_num(p_thin) >= thresholds.p_thin_threshold) | likely) & ~window
         else:
@@ -169,7 +174,7 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
     pw = p_window if p_window is not None else np.full(grid.mask.shape, np.nan)
     unproven = np.zeros(grid.mask.shape, dtype=bool)
     if by_probability and window_proven is not None:
-        unproven = (np.nan_to_num(pw) >= thresholds.p_window_threshold) & ~window_proven
+        unproven = likely_window(pw, thresholds) & ~window_proven
     for kind, m in zone_masks(total_thickness_m, travel_time_yr, grid, thresholds,
                               p_window=p_window, p_thin=p_thin,
                               window_proven=window_proven).items():

@@ -9,6 +9,7 @@ Baseline (issue 3): the kriged total thickness (ordinary kriging) thresholded at
 and thin thicknesses. Tool: the window and thin zones the run draws
 (:func:`aquitardmap.screening.zone_masks`: cells where P(thinner than the threshold)
 reaches the configured probability threshold, windows only near a hole that proves one);
+hazards and the crust are left out (the truth is the thickness of the clay as laid down);
 the thin zones include the window zones. Scores, cell by cell on the study area: *area
 recall* (share of the truth's cells below the threshold that are flagged) and *area
 precision* (share of the flagged cells that are below it in the truth). Windows are
