@@ -60,6 +60,56 @@ def score_cells(flagged: np.ndarray, truth_below: np.ndarray) -> ZoneScore:
                      n_flag, n_true)
 
 
+@dataclass(frozen=True)
+class MatchedRecall:
+    """The most a probability grid can find at a given precision: of every zone "P at
+    least q" (one q for the whole region, chosen knowing the truth), the one with the
+    highest recall whose precision is still at least ``min_precision``.
+
+    Attributes:
+        recall: its area recall (0 when no q reaches the precision).
+        precision: its area precision (NaN when no q reaches it).
+        p_threshold: its q (NaN when no q reaches the precision).
+        min_precision: the precision asked for.
+    """
+
+    recall: float
+    precision: float
+    p_threshold: float
+    min_precision: float
+
+
+def recall_at_precision(p: np.ndarray, truth_below: np.ndarray, min_precision: float
+                        ) -> MatchedRecall:
+    """:class:`MatchedRecall` of probabilities ``p`` against the boolean truth
+    ``truth_below`` (same shape; NaN probabilities are never flagged, cells of probability
+    0 neither).
+
+    Every distinct positive value of ``p`` is tried as the threshold: the cells are sorted
+    by ``p``, and the zone "P ≥ q" is the run of cells down to the last one equal to q.
+    This answers whether a zone rule on ``p`` could match the baseline at all: if even the
+    best threshold in hindsight finds less than the baseline at the baseline's precision,
+    no choice of ``p_…_threshold`` meets issue 3's rule in that region.
+    """
+    p = np.nan_to_num(np.asarray(p, float).ravel(), nan=0.0)
+    event = np.asarray(truth_below, bool).ravel()
+    n_true = int(event.sum())
+    order = np.argsort(-p, kind="stable")
+    ps, ev = p[order], event[order]
+    tp = np.cumsum(ev)
+    n = np.arange(1, ps.size + 1)
+    # The zone "p >= q" ends at the last cell of each run of equal values.
+    last = np.flatnonzero(np.r_[ps[1:] != ps[:-1], True] & (ps > 0))
+    precision = tp[last] / n[last]
+    ok = last[precision >= min_precision]
+    if ok.size == 0 or n_true == 0:
+        return MatchedRecall(0.0 if n_true else 1.0, float("nan"), float("nan"),
+                             float(min_precision))
+    best = ok[np.argmax(tp[ok])]
+    return MatchedRecall(float(tp[best] / n_true), float(tp[best] / n[best]), float(ps[best]),
+                         float(min_precision))
+
+
 #: Probability bins of the reliability table.
 RELIABILITY_EDGES = (0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0)
 
@@ -113,11 +163,14 @@ def reliability(p: np.ndarray, event: np.ndarray,
 
 def zone_skill(project_dir: str | Path, *,
                overrides: dict[str, dict[str, object]] | None = None
-               ) -> dict[str, dict[str, ZoneScore | Reliability]]:
+               ) -> dict[str, dict[str, ZoneScore | Reliability | MatchedRecall]]:
     """``{"baseline" | "tool": {"window" | "thin": ZoneScore}, "reliability": {"window" |
-    "thin": Reliability}}`` for a project folder that holds
-    ``truth/aquitard_thickness_m.tif`` on its grid (module docstring); the reliability
-    tables are those of P(window) and P(thin) on the study-area cells.
+    "thin": Reliability}, "matched": {"window" | "thin": MatchedRecall}}`` for a project
+    folder that holds ``truth/aquitard_thickness_m.tif`` on its grid (module docstring); the
+    reliability tables are those of P(window) and P(thin) on the study-area cells;
+    ``matched`` is the best recall any one threshold on P(window) (near a hole proving a
+    window, as the zones) or on P(thin) reaches at the baseline's precision
+    (:func:`recall_at_precision`).
 
     Runs the surfaces and the probability stage of the pipeline with the project's own
     settings, or with some replaced: ``overrides`` maps a settings section of the project
@@ -147,15 +200,21 @@ def zone_skill(project_dir: str | Path, *,
     est = total.thickness_m[m]
     pw, pt = probs.p_below["window"][m], probs.p_below["thin"][m]
     win, thin = truth[m] < th.window_thickness_m, truth[m] < th.thin_thickness_m
+    proven = window_proof_grid(inputs)
     zones = zone_masks(total.thickness_m, np.full(m.shape, np.nan), inputs.grid, th,
                        p_window=probs.p_below["window"], p_thin=probs.p_below["thin"],
-                       window_proven=window_proof_grid(inputs))
+                       window_proven=proven)
+    baseline = {"window": score_cells(est < th.window_thickness_m, win),
+                "thin": score_cells(est < th.thin_thickness_m, thin)}
     return {
-        "baseline": {"window": score_cells(est < th.window_thickness_m, win),
-                     "thin": score_cells(est < th.thin_thickness_m, thin)},
+        "baseline": baseline,
         "tool": {"window": score_cells(zones["window"][m], win),
                  "thin": score_cells((zones["thin"] | zones["window"])[m], thin)},
         "reliability": {"window": reliability(pw, win), "thin": reliability(pt, thin)},
+        "matched": {kind: recall_at_precision(p_rank, truth_below,
+                                              baseline[kind].precision)
+                    for kind, p_rank, truth_below in (
+                        ("window", np.where(proven[m], pw, 0.0), win), ("thin", pt, thin))},
     }
 
 

@@ -20,7 +20,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from aquitardmap.skill import reliability, score_cells, zone_skill
+from aquitardmap.skill import recall_at_precision, reliability, score_cells, zone_skill
 from aquitardmap.synthetic import make_synthetic_region
 
 from conftest import DEMO
@@ -44,8 +44,11 @@ def skill(request, tmp_path_factory):
     s = zone_skill(root)
     for kind in ("window", "thin"):
         b, t = s["baseline"][kind], s["tool"][kind]
+        m = s["matched"][kind]
         print(f"{request.param:>14} {kind:>6}: baseline recall {b.recall:.3f} precision "
-              f"{b.precision:.3f}; tool recall {t.recall:.3f} precision {t.precision:.3f}")
+              f"{b.precision:.3f}; tool recall {t.recall:.3f} precision {t.precision:.3f}; "
+              f"best P threshold at the baseline's precision: recall {m.recall:.3f} "
+              f"(P >= {m.p_threshold:.2f})")
     return request.param, s
 
 
@@ -91,6 +94,36 @@ def test_scores_count_cells_by_hand():
     assert (s.flagged_cells, s.truth_cells) == (3, 3)
     assert score_cells([[False]], [[True]]).precision == 1.0
     assert score_cells([[True]], [[False]]).recall == 1.0
+
+
+def test_recall_at_precision_counted_by_hand():
+    """Five cells sorted by P: 0.9 (true), 0.8 (false), 0.8 (true), 0.6 (true), 0.1
+    (false). Zones P ≥ q for q = 0.9, 0.8, 0.6, 0.1 have precision 1, 2/3, 3/4, 3/5 and
+    recall 1/3, 2/3, 1, 1 (definitions as in :func:`score_cells`; common practice)."""
+    p = [0.8, 0.9, 0.1, 0.6, 0.8]
+    truth = [False, True, False, True, True]
+    m = recall_at_precision(p, truth, 0.7)
+    assert (m.recall, m.precision, m.p_threshold) == (1.0, 0.75, 0.6)
+    m = recall_at_precision(p, truth, 0.8)
+    assert (m.recall, m.precision, m.p_threshold) == (pytest.approx(1 / 3), 1.0, 0.9)
+    m = recall_at_precision(p, truth, 1.01)
+    assert m.recall == 0.0 and np.isnan(m.p_threshold)
+
+
+def test_recall_at_precision_equals_trying_every_threshold():
+    """Against the brute force: every distinct positive P as threshold, scored with
+    :func:`score_cells` (an independent path: boolean masks, no sorting)."""
+    rng = np.random.default_rng(7)
+    p = np.round(rng.uniform(0, 1, 400), 2)
+    p[:20] = 0.0
+    truth = rng.uniform(0, 1, 400) < p
+    for target in (0.5, 0.7, 0.85, 0.95):
+        best = 0.0
+        for q in np.unique(p[p > 0]):
+            sc = score_cells(p >= q, truth)
+            if sc.precision >= target:
+                best = max(best, sc.recall)
+        assert recall_at_precision(p, truth, target).recall == pytest.approx(best)
 
 
 def test_reliability_table_counted_by_hand():
