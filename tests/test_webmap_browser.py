@@ -322,6 +322,29 @@ def test_hostile_borehole_id_stays_inert(session, tiny_map):
     page.screenshot(path=str(ARTIFACTS / "hostile_id_popup.png"))
 
 
+def test_map_says_why_it_is_blank_when_leaflet_cannot_load(browser, leaflet_dist, tiny_map):
+    """A map that fetches Leaflet, opened with the network refused: the page names the
+    cause and the self-contained alternative instead of showing a blank map; with
+    Leaflet served, the notice stays hidden (common practice: fail visibly)."""
+    blocked = Session(browser, leaflet_dist, offline=True)
+    try:
+        blocked.page.goto(tiny_map.resolve().as_uri(), wait_until="load")
+        notice = blocked.page.locator("#aqm-nolib")
+        notice.wait_for(state="visible", timeout=10_000)
+        assert "--offline-map" in notice.inner_text()
+        assert any(LEAFLET_URL.search(u) for u in blocked.refused)
+        assert blocked.page.locator("#aqm-caution").is_visible()
+    finally:
+        blocked.close()
+    served = Session(browser, leaflet_dist)
+    try:
+        served.open(tiny_map)
+        assert not served.page.locator("#aqm-nolib").is_visible()
+        assert served.errors == []
+    finally:
+        served.close()
+
+
 def test_self_contained_map_needs_no_network(browser, leaflet_dist, tmp_path, monkeypatch):
     monkeypatch.setenv("AQUITARDMAP_WEB_ASSETS", str(leaflet_dist))
     build_run_folder(tmp_path)

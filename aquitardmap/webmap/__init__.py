@@ -82,6 +82,7 @@ from aquitardmap.webmap.page import (
     crs_label,
     header_html,
     js_config,
+    library_missing_html,
     lonlat_to_xy_fit,
     panel_html,
     readout_config,
@@ -241,6 +242,8 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
     root.html.add_child(RawHtml(panel_html(panel_grids, toggles,
                                            opacity_pct=OVERLAY_OPACITY_PCT,
                                            shown=shown_index)), name="aqm_panel")
+    if not self_contained:
+        root.html.add_child(RawHtml(library_missing_html()), name="aqm_nolib")
     root.html.add_child(RawHtml(caution_html(summary)), name="aqm_caution")
 
     page = root.render()

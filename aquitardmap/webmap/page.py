@@ -148,6 +148,27 @@ def figure_links_html(summary: dict[str, Any]) -> str:
     return f"<b>Variograms (figures beside this map)</b><ul>{''.join(items)}</ul>"
 
 
+#: Shown in place of the map when Leaflet did not load (a map that fetches it, opened
+#: without a network connection or behind a filter).
+LIBRARY_MISSING_TEXT = (
+    "The map could not be drawn: its mapping library (Leaflet) is fetched from the internet "
+    "when the page opens, and it did not load here (no connection, or blocked). Open this "
+    "file with an internet connection, or ask for a self-contained map that needs no network: "
+    "aquitardmap run PROJECT --out DIR --offline-map. The same grids and zones are in this "
+    "run's folder (GeoTIFF files, zones.gpkg) and in report.pdf."
+)
+
+
+def library_missing_html() -> str:
+    """A notice, hidden unless Leaflet failed to load once the page has loaded; without it
+    such a page shows a blank map and no reason."""
+    return (f'<div id="aqm-nolib" class="aqm-nolib" role="alert" hidden>'
+            f'{esc(LIBRARY_MISSING_TEXT)}</div>'
+            '<script>window.addEventListener("load", function () {'
+            ' if (typeof L === "undefined") {'
+            ' document.getElementById("aqm-nolib").hidden = false; } });</script>')
+
+
 def caution_html(summary: dict[str, Any]) -> str:
     """The caution bar (always visible, never covered by the map)."""
     text = str(summary.get("caution") or "").strip() or outputs.CAUTION
