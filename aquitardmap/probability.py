@@ -47,7 +47,12 @@ import numpy as np
 from scipy.special import ndtr, ndtri
 
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import kriging_weights, merge_coincident, prepare_locations, weights_at
+from aquitardmap.kriging import (
+    KrigingLocations,
+    merge_coincident,
+    prepare_locations,
+    weights_at,
+)
 from aquitardmap.variogram import VariogramModel
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
@@ -197,32 +202,42 @@ def censored_data(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                         cf[keep] if f is not None else np.empty(0))
 
 
+def data_locations(data: CensoredData, model: VariogramModel) -> KrigingLocations:
+    """The kriging set-up of all data sites, equalities first (as :func:`gibbs_draws` and
+    :func:`probability_below_grid` order them), with the drift when the data carry one;
+    built once per run and shared by both."""
+    return prepare_locations(np.concatenate([data.x_m, data.cx_m]),
+                             np.concatenate([data.y_m, data.cy_m]), model,
+                             drift=data.all_drift if data.has_drift else None)
+
+
 def gibbs_draws(data: CensoredData, model: VariogramModel, *, n_draws: int = 64,
                 sweeps: int = 30, max_neighbours: int = 32,
-                rng: np.random.Generator | None = None) -> np.ndarray:
+                rng: np.random.Generator | None = None,
+                locations: KrigingLocations | None = None) -> np.ndarray:
     """Joint draws of the censored latent thickness values given all the data.
 
     Returns an array (n_censored, n_draws): column k is the final state of the k-th of
     ``n_draws`` independent Gibbs chains after ``sweeps`` sweeps. Each step redraws one site
     from ``N(Z*, σ²)`` truncated to its interval, where Z* and σ² are the ordinary kriging
-    estimate and variance from the other sites within ``max_neighbours``.
+    estimate and variance from the other sites within ``max_neighbours``. ``locations``
+    (:func:`data_locations` of the same data and model) saves building them again.
     """
     rng = np.random.default_rng(0) if rng is None else rng
     nc = data.cx_m.size
     if nc == 0:
         return np.empty((0, n_draws))
     ne = data.x_m.size
-    ax = np.concatenate([data.x_m, data.cx_m])
-    ay = np.concatenate([data.y_m, data.cy_m])
-    if ax.size < 2:  # a single censored datum and nothing else: its interval alone
+    n_sites = ne + nc
+    if n_sites < 2:  # a single censored datum and nothing else: its interval alone
         start = np.where(np.isfinite(data.high_m), data.high_m, data.low_m)
         return np.repeat(start[:, None], n_draws, axis=1)
-    drift = ({"drift": data.all_drift, "target_drift": data.c_drift} if data.has_drift
-             else {})
-    w = kriging_weights(ax, ay, model, data.cx_m, data.cy_m, max_neighbours=max_neighbours,
-                        exclude_coincident=True, **drift)
+    locations = data_locations(data, model) if locations is None else locations
+    w = weights_at(locations, data.cx_m, data.cy_m, max_neighbours=max_neighbours,
+                   exclude_coincident=True,
+                   target_drift=data.c_drift if data.has_drift else None)
     sd = np.sqrt(w.variance)
-    state = np.empty((ax.size, n_draws))
+    state = np.empty((n_sites, n_draws))
     state[:ne] = data.value_m[:, None]
     # Start inside each interval: at its upper bound (a window) or its lower bound (a hole
     # that stopped in the clay), nudged 1 % of the data spread inside (at most half-way).
@@ -278,26 +293,27 @@ class ThicknessProbabilities:
 
 def probability_below_grid(data: CensoredData, draws: np.ndarray, model: VariogramModel,
                            grid: Grid, thresholds_m: dict[str, float | np.ndarray], *,
-                           max_neighbours: int = 64, grid_drift: np.ndarray | None = None
+                           max_neighbours: int = 64, grid_drift: np.ndarray | None = None,
+                           locations: KrigingLocations | None = None
                            ) -> dict[str, np.ndarray]:
     """P(T < t) on the cells of ``grid`` for each threshold ``t`` (a number, or a grid for a
     threshold that varies by cell), averaged over the ``draws`` of the censored values.
 
     ``T = max(0, Z)``, so a threshold of 0 gives P(T = 0) = P(Z ≤ 0). When the data carry
     an external drift, ``grid_drift`` gives it on the grid (finite on every cell of the
-    study area).
+    study area). ``locations`` (:func:`data_locations` of the same data and model) saves
+    building them again.
     """
     xs, ys = grid.cell_centres()
     xx, yy = np.meshgrid(xs, ys)
     inside = grid.mask
-    ax = np.concatenate([data.x_m, data.cx_m])
-    ay = np.concatenate([data.y_m, data.cy_m])
+    n_sites = data.x_m.size + data.cx_m.size
     if data.has_drift and grid_drift is None:
         raise ValueError("the data carry an external drift but the grid has none")
     tx, ty = xx[inside], yy[inside]
     tf = np.asarray(grid_drift)[inside] if data.has_drift else None
     n_draws = draws.shape[1] if draws.size else 1
-    values = np.empty((ax.size, n_draws))
+    values = np.empty((n_sites, n_draws))
     values[:data.x_m.size] = data.value_m[:, None]
     if draws.size:
         values[data.x_m.size:] = draws
@@ -307,8 +323,8 @@ def probability_below_grid(data: CensoredData, draws: np.ndarray, model: Variogr
     acc = {k: np.zeros(tx.size) for k in thresholds_m}
     # The data's part of the kriging systems once; cells in blocks: the weights of one
     # block at a time bound the memory.
-    locations = prepare_locations(ax, ay, model,
-                                  drift=data.all_drift if tf is not None else None)
+    if locations is None:
+        locations = data_locations(data, model)
     for start in range(0, tx.size, CELLS_PER_BLOCK):
         sl = slice(start, start + CELLS_PER_BLOCK)
         w = weights_at(locations, tx[sl], ty[sl], max_neighbours=max_neighbours,
@@ -398,10 +414,13 @@ def thickness_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
     if data.x_m.size + data.cx_m.size == 0:
         raise ValueError("no borehole gives the total aquitard thickness or a bound on it")
     rng = np.random.default_rng(seed)
+    locations = data_locations(data, model)
     draws = gibbs_draws(data, model, n_draws=n_draws, sweeps=sweeps,
-                        max_neighbours=max(8, max_neighbours // 2), rng=rng)
+                        max_neighbours=max(8, max_neighbours // 2), rng=rng,
+                        locations=locations)
     p = probability_below_grid(data, draws, model, grid, thresholds_m,
-                               max_neighbours=max_neighbours, grid_drift=grid_drift)
+                               max_neighbours=max_neighbours, grid_drift=grid_drift,
+                               locations=locations)
     return ThicknessProbabilities(p, int(data.x_m.size), data.n_absent, data.n_lower_bounds,
                                   n_draws, sweeps, seed, list(data.notes), variance_scale,
                                   window_floor_m=float(window_floor_m))
