@@ -41,7 +41,8 @@ import os
 import sqlite3
 import struct
 import tempfile
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -251,6 +252,22 @@ def _connect(path: Path) -> sqlite3.Connection:
     con = sqlite3.connect(path, isolation_level=None, timeout=60.0)
     con.execute("PRAGMA synchronous = FULL")
     return con
+
+
+@contextmanager
+def _write_transaction(con: sqlite3.Connection) -> Iterator[None]:
+    """``BEGIN IMMEDIATE`` (the write lock at once, so two writers queue rather than fail
+    half-way), ``COMMIT`` when the block ends, ``ROLLBACK`` on any exception. A block may
+    end the transaction itself (``ROLLBACK`` and return: nothing to write)."""
+    con.execute("BEGIN IMMEDIATE")
+    try:
+        yield
+    except BaseException:
+        if con.in_transaction:
+            con.execute("ROLLBACK")
+        raise
+    if con.in_transaction:
+        con.execute("COMMIT")
 
 
 def _srs_id(con: sqlite3.Connection) -> int:
@@ -578,8 +595,7 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
         t = tables.tables
         holes = _holes_from_boreholes(new)
 
-        con.execute("BEGIN IMMEDIATE")
-        try:
+        with _write_transaction(con):
             stored = _stored_holes(con, [b for b in holes if b in stored_ids])
             conflicts = ProblemList()
             added, replaced, unchanged = [], [], []
@@ -620,11 +636,6 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
                         "n_intervals=?, n_samples=? WHERE fid=?",
                         (len(added), len(replaced), len(unchanged), n_iv, n_s, batch_id))
             _update_extent(con)
-            con.execute("COMMIT")
-        except BaseException:
-            if con.in_transaction:
-                con.execute("ROLLBACK")
-            raise
     finally:
         con.close()
     batch = next(b for b in history(project) if b.batch_id == batch_id)
@@ -667,8 +678,7 @@ def undo_batch(project: Project, batch_id: int) -> str:
         raise InputError([Problem(path.name, 0, 0, "the project has no store yet")])
     con = _connect(path)
     try:
-        con.execute("BEGIN IMMEDIATE")
-        try:
+        with _write_transaction(con):
             row = con.execute("SELECT undone_utc FROM batches WHERE fid = ?",
                               (batch_id,)).fetchone()
             if row is None:
@@ -707,11 +717,6 @@ def undo_batch(project: Project, batch_id: int) -> str:
                             (_point_blob(x, y, srs_id), bid))
             con.execute("UPDATE batches SET undone_utc = ? WHERE fid = ?", (_now(), batch_id))
             _update_extent(con)
-            con.execute("COMMIT")
-        except BaseException:
-            if con.in_transaction:
-                con.execute("ROLLBACK")
-            raise
     finally:
         con.close()
     return (f"batch {batch_id} undone: {len(ids)} borehole(s) removed, {len(restore)} "
