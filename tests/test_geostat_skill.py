@@ -84,6 +84,19 @@ def test_probability_zones_against_the_kriged_baseline(skill, kind):
         assert tp >= rule["precision"], (name, kind)
 
 
+def test_best_threshold_is_at_least_the_default_one(skill):
+    """The window zone is one of the zones "P(window) ≥ q near a proving hole" that
+    :func:`recall_at_precision` tries, so where it reaches the baseline's precision the best
+    threshold finds at least as much (consistency of two separate computations)."""
+    name, s = skill
+    b, t, m = s["baseline"]["window"], s["tool"]["window"], s["matched"]["window"]
+    assert m.min_precision == b.precision
+    if t.precision >= b.precision:
+        assert m.recall >= t.recall - 1e-12, name
+    if np.isfinite(m.p_threshold):
+        assert m.precision >= b.precision, name
+
+
 def test_scores_count_cells_by_hand():
     """Recall and precision on a 2 × 3 case counted by hand (definition: share of the true
     cells flagged, share of the flagged cells true; common practice)."""
