@@ -46,6 +46,7 @@ from aquitardmap.presentation import (
     P_THIN_FILE,
     P_WINDOW_FILE,
     ZONE_COLOURS,
+    ZONE_DASHES,
     ZONE_OTHER_COLOUR,
     GridStyle,
     finite_float,
@@ -69,6 +70,7 @@ from aquitardmap.runfolder import (
     section,
     styles_in,
 )
+from aquitardmap.screening import ZONE_KINDS
 from aquitardmap.variogram import (
     VariogramModel,
     default_lags,
@@ -273,7 +275,7 @@ def _title_page(pages: _Pages, run_dir: Path) -> None:
     areas = zones.get("area_m2_by_kind") if isinstance(zones.get("area_m2_by_kind"), dict) else {}
     n_by = zones.get("count_by_kind") if isinstance(zones.get("count_by_kind"), dict) else {}
     rows = [[labels[k], str(n_by.get(k, "n/a")), fmt_area(finite_float(areas.get(k)))]
-            for k in ("window", "thin", "fast")]
+            for k in ZONE_KINDS]
     flow.table(rows, ["Flagged zone kind (threshold)", "Zones", "Area"], [0.64, 0.12, 0.24],
                fontsize=8.5)
     thick = section(s, "aquitard_thickness_m")
@@ -371,8 +373,9 @@ def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
     if zones is not None and len(zones):
         for kind, part in zones.groupby(zones["kind"].astype(str).str.lower()):
             colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
-            part.boundary.plot(ax=ax, color=colour, linewidth=1.1 if kind != "fast" else 1.3,
-                               linestyle="--" if kind == "fast" else "-")
+            dashed = kind in ZONE_DASHES
+            part.boundary.plot(ax=ax, color=colour, linewidth=1.3 if dashed else 1.1,
+                               linestyle=(":" if kind == "pierced" else "--") if dashed else "-")
     if holes is not None and len(holes):
         cats = [hole_category_of(r) for r in holes.drop(columns="geometry").to_dict("records")]
         xs, ys = holes.geometry.x.to_numpy(), holes.geometry.y.to_numpy()
@@ -384,7 +387,8 @@ def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
 
 
 def _common_legend(fig: Figure, y: float, zones_label: dict[str, str]) -> None:
-    handles = [Line2D([], [], color=c, lw=1.3, ls="--" if k == "fast" else "-",
+    handles = [Line2D([], [], color=c, lw=1.3,
+                      ls=(":" if k == "pierced" else "--") if k in ZONE_DASHES else "-",
                       label=zones_label.get(k, k)) for k, c in ZONE_COLOURS.items()]
     handles += [Line2D([], [], marker="o", ls="", markerfacecolor=s.fill,
                        markeredgecolor=s.edge, markersize=5, label=s.label)
@@ -544,9 +548,9 @@ def _zone_pages(pages: _Pages, run_dir: Path) -> None:
     labels = zone_labels(s)
     rows = []
     if zones is not None and len(zones):
-        order = {"window": 0, "thin": 1, "fast": 2}
+        order = {k: i for i, k in enumerate(ZONE_KINDS)}
         recs = zones.drop(columns="geometry").to_dict("records")
-        recs.sort(key=lambda r: (order.get(str(r.get("kind")).lower(), 3),
+        recs.sort(key=lambda r: (order.get(str(r.get("kind")).lower(), len(order)),
                                  -(finite_float(r.get("area_m2")) or 0.0)))
         for i, r in enumerate(recs, start=1):
             kind = str(r.get("kind") or "").lower()
@@ -569,7 +573,7 @@ def _zone_pages(pages: _Pages, run_dir: Path) -> None:
         if k == 0:
             t = thresholds(s)
             intro = ("Every zone drawn on the maps, largest first within each kind. " +
-                     "; ".join(labels[kk] for kk in ("window", "thin", "fast")) +
+                     "; ".join(labels[kk] for kk in ZONE_KINDS) +
                      ". P(thin): mean chance over the zone that the clay is thinner than "
                      f"{fmt_threshold(t['thin_thickness_m'] or float('nan'))} m. SD: "
                      "mean kriging standard deviation of the thickness.")

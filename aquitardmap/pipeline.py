@@ -73,6 +73,7 @@ from aquitardmap.project import (
 )
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import (
+    ZONE_KINDS,
     probability_below,
     window_proof_cells,
     zone_areas_m2,
@@ -646,10 +647,12 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr,
                                  probabilities.p_below["thin"], inputs.grid, th, used,
                                  p_window=p_window,
-                                 window_proven=window_proof_grid(inputs, hyd))
+                                 window_proven=window_proof_grid(inputs, hyd),
+                                 piercing_density_per_km2=hyd.piercing_density_per_km2)
     else:
         zones = zones_from_grids(thickness, total.sd_m, hyd.travel_time_yr, p_thin,
-                                 inputs.grid, th, used)
+                                 inputs.grid, th, used,
+                                 piercing_density_per_km2=hyd.piercing_density_per_km2)
     if hyd.gradient_source == "heads" and len(zones):
         zones["reason"] = zones["reason"].str.replace(
             "(unit-gradient assumption)", "(gradient from the head inputs)", regex=False)
@@ -705,7 +708,8 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         "units": units,
         "thresholds": {"window_thickness_m": p.screening.window_thickness_m,
                        "thin_thickness_m": p.screening.thin_thickness_m,
-                       "fast_travel_time_yr": p.screening.fast_travel_time_yr},
+                       "fast_travel_time_yr": p.screening.fast_travel_time_yr,
+                       "piercing_flag_per_km2": p.screening.piercing_flag_per_km2},
         "hydraulics": _hydraulics_summary(inputs, hyd),
         "avi": _avi_summary(hyd, g),
         "hazards": hyd.hazards,
@@ -736,7 +740,7 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                                  "max": float(np.nanmax(total))},
         "zones": {"area_m2_by_kind": zone_areas_m2(zones),
                   "count_by_kind": {k: int((zones["kind"] == k).sum())
-                                    for k in ("window", "thin", "fast")},
+                                    for k in ZONE_KINDS},
                   "basis": (p.screening.zone_basis if probabilities is not None
                             else "kriged_thickness"),
                   "p_window_threshold": p.screening.p_window_threshold,

@@ -129,7 +129,7 @@ def thresholds(summary: dict[str, Any]) -> dict[str, float | None]:
     """Screening thresholds from the summary (None where missing)."""
     t = summary.get("thresholds") if isinstance(summary.get("thresholds"), dict) else {}
     return {k: finite_float(t.get(k)) for k in ("window_thickness_m", "thin_thickness_m",
-                                         "fast_travel_time_yr")}
+                                         "fast_travel_time_yr", "piercing_flag_per_km2")}
 
 
 def gradient_words(summary: dict[str, Any]) -> str:
@@ -278,14 +278,19 @@ COUNT_WORDS = {
 
 # --------------------------------------------------------------------------- zones
 
-ZONE_COLOURS = {"window": "#d7191c", "thin": "#f59b1a", "fast": "#1f9fd9"}
+ZONE_COLOURS = {"window": "#d7191c", "thin": "#f59b1a", "fast": "#1f9fd9",
+                "pierced": "#7b3fa0"}
+#: Zone kinds drawn as an open dashed outline on top of the others (they may coincide with
+#: a window or thin zone), with their dash pattern (SVG ``stroke-dasharray``).
+ZONE_DASHES = {"fast": "7 5", "pierced": "2 4"}
 ZONE_OTHER_COLOUR = "#6d6d6d"
 
 
 def zone_labels(summary: dict[str, Any]) -> dict[str, str]:
     """Plain-language name of each zone kind, with its threshold when the summary has it."""
     t = thresholds(summary)
-    labels = {"window": "Window: clay absent", "thin": "Thin clay", "fast": "Fast path"}
+    labels = {"window": "Window: clay absent", "thin": "Thin clay", "fast": "Fast path",
+              "pierced": "Pierced by many boreholes"}
     if t["window_thickness_m"] is not None:
         labels["window"] += f" (under {fmt_threshold(t['window_thickness_m'])} m)"
     if t["thin_thickness_m"] is not None:
@@ -293,6 +298,9 @@ def zone_labels(summary: dict[str, Any]) -> dict[str, str]:
     if t["fast_travel_time_yr"] is not None:
         labels["fast"] += (f": travel time under {fmt_threshold(t['fast_travel_time_yr'])}"
                            " years")
+    if t.get("piercing_flag_per_km2") is not None:
+        labels["pierced"] += (f": {fmt_threshold(t['piercing_flag_per_km2'])} or more per km²"
+                              " reach the aquifer through the clay")
     return labels
 
 

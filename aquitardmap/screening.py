@@ -3,7 +3,10 @@
 Zones are drawn from the grids cell by cell and vectorised to polygons (rasterio's
 ``features.shapes``); each polygon carries its area, the statistics of the grids inside it
 and a plain-language reason. Window and thin zones do not overlap (a window is not also
-listed as thin); fast-path zones are drawn independently and may overlap both.
+listed as thin); fast-path zones are drawn independently and may overlap both, and so are
+pierced zones: cells where the density of boreholes reaching the aquifer through the clay
+(:mod:`aquitardmap.piercing`) is at least ``piercing_flag_per_km2`` — each such hole is a
+possible leak along its annulus unless it was sealed, which the logs do not say.
 
 Two ways to draw window and thin zones (``[screening] zone_basis``):
 
@@ -39,7 +42,7 @@ from shapely.ops import unary_union
 from aquitardmap.grid import Grid
 from aquitardmap.project import ScreeningThresholds
 
-ZONE_KINDS = ("window", "thin", "fast")
+ZONE_KINDS = ("window", "thin", "fast", "pierced")
 
 
 def probability_below(threshold_m: float, estimate_m: np.ndarray, sd_m: np.ndarray
@@ -79,14 +82,17 @@ def likely_window(p_window: np.ndarray, thresholds: ScreeningThresholds) -> np.n
 def zone_masks(total_thickness_m: np.ndarray, travel_time_yr: np.ndarray, grid: Grid,
                thresholds: ScreeningThresholds, *, p_window: np.ndarray | None = None,
                p_thin: np.ndarray | None = None,
-               window_proven: np.ndarray | None = None) -> dict[str, np.ndarray]:
-    """Boolean grids of each zone kind inside the study area.
+               window_proven: np.ndarray | None = None,
+               piercing_density_per_km2: np.ndarray | None = None) -> dict[str, np.ndarray]:
+    """Boolean grids of each zone kind (:data:`ZONE_KINDS`) inside the study area.
 
     With both probability grids and ``thresholds.zone_basis == "probability"`` window and
     thin cells come from the probabilities, else from the kriged thickness. Then a cell
     is a window where P(window) reaches its threshold and ``window_proven`` (cells near a
     hole proving a window, :func:`window_proof_cells`; every cell when None) holds; thin
-    where P(thin) reaches its threshold, or P(window) does without proof nearby.
+    where P(thin) reaches its threshold, or P(window) does without proof nearby. Pierced
+    where ``piercing_density_per_km2`` (boreholes per km²; none pierced without it) is at
+    least ``thresholds.piercing_flag_per_km2``.
     """
     t = np.where(grid.mask, total_thickness_m, np.nan)
     tt = np.where(grid.mask, travel_time_yr, np.nan)
@@ -99,7 +105,11 @@ def zone_masks(total_thickness_m: np.ndarray, travel_time_yr: np.ndarray, grid: 
             window = t < thresholds.window_thickness_m
             thin = (t >= thresholds.window_thickness_m) & (t < thresholds.thin_thickness_m)
         fast = tt < thresholds.fast_travel_time_yr
-    return {"window": window & grid.mask, "thin": thin & grid.mask, "fast": fast & grid.mask}
+        pierced = (np.zeros(grid.mask.shape, dtype=bool) if piercing_density_per_km2 is None
+                   else np.nan_to_num(piercing_density_per_km2, nan=-1.0)
+                   >= thresholds.piercing_flag_per_km2)
+    return {"window": window & grid.mask, "thin": thin & grid.mask, "fast": fast & grid.mask,
+            "pierced": pierced & grid.mask}
 
 
 def uses_probability(thresholds: ScreeningThresholds, p_window: np.ndarray | None,
@@ -110,9 +120,16 @@ def uses_probability(thresholds: ScreeningThresholds, p_window: np.ndarray | Non
 
 
 def _reason(kind: str, th: ScreeningThresholds, mean_t: float, min_t: float, sd: float,
-            p: float, mean_tt: float, n_holes: int, prob: float | None = None) -> str:
+            p: float, mean_tt: float, n_holes: int, prob: float | None = None,
+            piercing_per_km2: float = float("nan")) -> str:
     holes = (f"{n_holes} borehole{'s' if n_holes != 1 else ''} inside" if n_holes
              else "no borehole inside: the zone is inferred from holes around it")
+    if kind == "pierced":
+        return (f"Many boreholes pierce the clay: on average {piercing_per_km2:.0f} holes per "
+                f"km² within {th.piercing_radius_m:g} m reach the aquifer through the "
+                f"aquitard (flagged from {th.piercing_flag_per_km2:g} per km²); each is a "
+                "possible leak along its casing unless it was sealed, which the logs do not "
+                f"say; kriged clay thickness mean {mean_t:.1f} m; {holes}.")
     if prob is not None and kind in ("window", "thin"):
         if kind == "window":
             head = (f"Clay likely absent: chance that the total aquitard is thinner than "
@@ -153,12 +170,14 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
                      thresholds: ScreeningThresholds,
                      boreholes: gpd.GeoDataFrame | None = None, *,
                      p_window: np.ndarray | None = None,
-                     window_proven: np.ndarray | None = None) -> gpd.GeoDataFrame:
-    """Vectorise window, thin and fast zones into polygons with their statistics.
+                     window_proven: np.ndarray | None = None,
+                     piercing_density_per_km2: np.ndarray | None = None) -> gpd.GeoDataFrame:
+    """Vectorise window, thin, fast and pierced zones into polygons with their statistics.
 
     ``p_thin`` is P(thinner than the thin threshold); with ``p_window`` too and
     ``thresholds.zone_basis == "probability"`` the window and thin zones are drawn from them
-    (module docstring), windows only where ``window_proven``.
+    (module docstring), windows only where ``window_proven``. Pierced zones come from
+    ``piercing_density_per_km2`` (none without it).
 
     Columns: ``kind``, ``area_m2``, ``reason``, ``mean_thickness_m``, ``min_thickness_m``,
     ``mean_sd_m``, ``mean_p_thin``, ``mean_p_window`` (NaN without ``p_window``),
@@ -166,7 +185,8 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
     and thickness-based zones), ``p_threshold`` (its threshold, NaN likewise),
     ``mean_travel_time_yr``, ``n_boreholes``, ``n_cells``, ``n_cells_unproven_window``
     (cells of a thin zone where P(window) reaches its threshold but no hole proving a
-    window lies within ``window_proof_radius_m``).
+    window lies within ``window_proof_radius_m``), ``mean_piercing_per_km2`` (mean density
+    of piercing boreholes over the zone; NaN without the density grid).
     """
     rows = []
     structure = ndimage.generate_binary_structure(2, 1)  # 4-connected, as shapes() below
@@ -175,9 +195,11 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
     unproven = np.zeros(grid.mask.shape, dtype=bool)
     if by_probability and window_proven is not None:
         unproven = likely_window(pw, thresholds) & ~window_proven
+    dens = (piercing_density_per_km2 if piercing_density_per_km2 is not None
+            else np.full(grid.mask.shape, np.nan))
     for kind, m in zone_masks(total_thickness_m, travel_time_yr, grid, thresholds,
-                              p_window=p_window, p_thin=p_thin,
-                              window_proven=window_proven).items():
+                              p_window=p_window, p_thin=p_thin, window_proven=window_proven,
+                              piercing_density_per_km2=piercing_density_per_km2).items():
         labels, n = ndimage.label(m, structure=structure)
         if n == 0:
             continue
@@ -189,6 +211,7 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
             "mean_p_thin": ndimage.mean(p_thin, labels, idx),
             "mean_p_window": ndimage.mean(pw, labels, idx),
             "mean_travel_time_yr": ndimage.mean(travel_time_yr, labels, idx),
+            "mean_piercing_per_km2": ndimage.mean(dens, labels, idx),
             "n_cells": ndimage.sum(np.ones_like(labels), labels, idx),
             "n_cells_unproven_window": (ndimage.sum(unproven & m, labels, idx) if kind == "thin"
                                         else np.zeros(n)),
@@ -221,14 +244,15 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
     zones["reason"] = [
         _reason(r.kind, thresholds, r.mean_thickness_m, r.min_thickness_m, r.mean_sd_m,
                 r.mean_p_thin, r.mean_travel_time_yr, r.n_boreholes,
-                r.probability if np.isfinite(r.probability) else None)
+                r.probability if np.isfinite(r.probability) else None,
+                r.mean_piercing_per_km2)
         + _unproven_note(int(r.n_cells_unproven_window), thresholds)
         for r in zones.itertuples()
     ] if len(zones) else []
     cols = ["kind", "area_m2", "reason", "mean_thickness_m", "min_thickness_m", "mean_sd_m",
             "mean_p_thin", "mean_p_window", "probability", "p_threshold",
             "mean_travel_time_yr", "n_boreholes", "n_cells", "n_cells_unproven_window",
-            "geometry"]
+            "mean_piercing_per_km2", "geometry"]
     for c in cols:
         if c not in zones:
             zones[c] = []

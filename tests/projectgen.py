@@ -447,8 +447,10 @@ def check_result(result) -> None:
             # cell (the same draws are compared with both thresholds)
             pw, pt2 = probs.p_below["window"], probs.p_below["thin"]
             assert (pw[m] <= pt2[m] + 1e-12).all(), "P(window) above P(thin)"
+    from aquitardmap.screening import ZONE_KINDS
+
     z = result.zones
-    assert set(z["kind"]) <= {"window", "thin", "fast"}
+    assert set(z["kind"]) <= set(ZONE_KINDS)
     if len(z):
         assert (z["area_m2"] > 0).all() and z.geometry.is_valid.all()
         assert z["mean_p_thin"].between(0, 1).all()

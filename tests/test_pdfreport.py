@@ -135,5 +135,5 @@ def test_pipeline_writes_the_report_with_the_demo_variogram(demo_run):
     assert f"Total clay thickness: {n_full} holes that reached the aquifer" in text
     assert "fitted spherical" in text
     n_zones = sum(demo_run.summary["zones"]["count_by_kind"].values())
-    assert re.search(rf"\b{n_zones} Fast path|\b{n_zones} Thin clay|\b{n_zones} Window", text)
+    assert re.search(rf"\b{n_zones} (Fast path|Thin clay|Window|Pierced)", text)
     assert not [p for p in demo_run.out_dir.iterdir() if p.name.endswith(".tmp")]

@@ -16,6 +16,7 @@ import rasterio
 
 from aquitardmap import outputs
 from aquitardmap.grid import NODATA, read_raster
+from aquitardmap.screening import ZONE_KINDS
 
 from conftest import DEMO
 
@@ -56,7 +57,7 @@ def test_unit_thicknesses_add_up_to_total(demo_run):
 
 def test_zones_and_boreholes_tables(demo_run):
     zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
-    assert set(zones["kind"]) <= {"window", "thin", "fast"}
+    assert set(zones["kind"]) <= set(ZONE_KINDS)
     assert {"window", "thin"} <= set(zones["kind"])
     assert np.allclose(zones.geometry.area, zones["area_m2"])
     assert zones["reason"].str.len().min() > 40
@@ -98,7 +99,11 @@ def test_summary_records_hashes_version_and_caution(demo_run):
     assert s["run"]["package_version"]
     assert s["counts"]["boreholes"] == 400
     assert s["surfaces"]["aquitard"]["variogram"]["range_m"] > 0
-    assert set(s["zones"]["area_m2_by_kind"]) == {"window", "thin", "fast"}
+    assert set(s["zones"]["area_m2_by_kind"]) == set(ZONE_KINDS)
+    # Two computations of the area flagged for piercing holes agree: the zones drawn from
+    # the density grid and the piercing summary's count of flagged cells.
+    assert s["zones"]["area_m2_by_kind"]["pierced"] / 1e6 == pytest.approx(
+        s["piercing"]["flagged_area_km2"])
     html = (demo_run.out_dir / outputs.MAP).read_text()
     assert "not a substitute for site-specific investigation" in html
 

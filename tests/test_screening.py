@@ -50,7 +50,30 @@ def test_no_zone_when_clay_is_thick_everywhere():
     t = np.full((g.height, g.width), 30.0)
     zones = zones_from_grids(t, t * 0 + 1, t * 100, t * 0, g, ScreeningThresholds())
     assert len(zones) == 0
-    assert zone_areas_m2(zones) == {"window": 0.0, "thin": 0.0, "fast": 0.0}
+    assert zone_areas_m2(zones) == {"window": 0.0, "thin": 0.0, "fast": 0.0, "pierced": 0.0}
+
+
+def test_pierced_zones_where_many_holes_pass_through_the_clay():
+    """Cells whose piercing-borehole density reaches the flag form pierced zones (the flag
+    is inclusive); the zone's mean density is the mean of the grid over its cells, counted
+    here by hand."""
+    g = make_grid(box(0, 0, 1000, 500), 50.0, CRS.from_epsg(32632))
+    xs, _ = g.cell_centres()
+    dens = np.broadcast_to(np.where(xs < 300, 12.0, np.where(xs < 400, 10.0, 4.0)),
+                           (g.height, g.width)).copy()
+    t = np.full(dens.shape, 30.0)
+    th = ScreeningThresholds(piercing_flag_per_km2=10.0)
+    zones = zones_from_grids(t, t * 0 + 1, t * 100, t * 0, g, th,
+                             piercing_density_per_km2=dens)
+    assert list(zones["kind"]) == ["pierced"]
+    z = zones.iloc[0]
+    flagged = g.mask & (dens >= 10.0)
+    assert z.n_cells == flagged.sum()
+    assert z.area_m2 == pytest.approx(flagged.sum() * 2500.0)
+    assert z.mean_piercing_per_km2 == pytest.approx(dens[flagged].mean())
+    assert "pierce the clay" in z.reason and "10 per km²" in z.reason
+    none = zones_from_grids(t, t * 0 + 1, t * 100, t * 0, g, th)
+    assert len(none) == 0
 
 
 def test_a_window_zone_needs_a_hole_proving_a_window_nearby():

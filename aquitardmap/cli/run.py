@@ -16,6 +16,7 @@ from aquitardmap.cli.compare import compare_and_report
 from aquitardmap.compare import check_run, default_changes_dir
 from aquitardmap.pipeline import run
 from aquitardmap.project import ComputeSettings, read_project
+from aquitardmap.screening import ZONE_KINDS
 from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
 
 
@@ -106,8 +107,8 @@ def _run(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | No
     s = result.summary
     areas = s["zones"]["area_m2_by_kind"]
     console.print(f"Wrote {len(s['outputs'])} files to {result.out_dir}", markup=False)
-    console.print(f"Flagged area: window {areas['window'] / 1e6:.2f} km², thin "
-                  f"{areas['thin'] / 1e6:.2f} km², fast {areas['fast'] / 1e6:.2f} km²")
+    console.print("Flagged area: " + ", ".join(f"{k} {areas.get(k, 0.0) / 1e6:.2f} km²"
+                                               for k in ZONE_KINDS))
     times = ", ".join(f"{k} {v:.1f} s" for k, v in s["run"].get("stage_seconds", {}).items())
     if times:
         console.print(f"Time per stage: {times}", markup=False)

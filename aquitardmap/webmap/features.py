@@ -20,6 +20,7 @@ from shapely.ops import unary_union
 from aquitardmap.presentation import (
     HOLE_STYLES,
     ZONE_COLOURS,
+    ZONE_DASHES,
     ZONE_OTHER_COLOUR,
     finite_float,
     fmt_area,
@@ -84,6 +85,9 @@ def zone_tooltip(row: dict[str, Any], labels: dict[str, str]) -> str:
     lines.append(f"Clay thickness: mean {fmt_m(finite_float(row.get('mean_thickness_m')))}, least "
                  f"{fmt_m(finite_float(row.get('min_thickness_m')))}, uncertainty ± "
                  f"{fmt_m(finite_float(row.get('mean_sd_m')))}")
+    piercing = finite_float(row.get("mean_piercing_per_km2"))
+    if kind == "pierced" and piercing is not None:
+        lines.append(f"Boreholes through the clay (mean density): {piercing:.0f} per km²")
     travel = finite_float(row.get("mean_travel_time_yr"))
     if travel is not None:
         lines.append(f"Travel time to the aquifer (mean): {fmt_years(travel)}")
@@ -99,8 +103,9 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
                 ) -> tuple[folium.GeoJson, list[tuple[str, str, str]]]:
     """Zones (lon/lat) as a GeoJson layer with tooltips, and its legend rows
     (fill, edge, label html) with the count and area of each kind."""
-    # Drawn in this order: thin, window, then fast paths on top (their outline is open).
-    order = {"thin": 0, "window": 1, "fast": 2}
+    # Drawn in this order: thin, window, then fast paths and pierced zones on top (their
+    # outlines are open).
+    order = {"thin": 0, "window": 1, "fast": 2, "pierced": 3}
     gdf = gdf.iloc[sorted(range(len(gdf)), key=lambda i: order.get(
         _text(gdf["kind"].iloc[i]).lower() if "kind" in gdf.columns else "", -1))]
     rows = gdf.drop(columns="geometry").to_dict("records")
@@ -111,9 +116,9 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
     def style(feature: dict[str, Any]) -> dict[str, Any]:
         kind = feature["properties"]["kind"]
         colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
-        if kind == "fast":  # may coincide with a window: an open dashed outline on top
-            return {"color": colour, "weight": 3, "dashArray": "7 5", "fillColor": colour,
-                    "fillOpacity": 0.08}
+        if kind in ZONE_DASHES:  # may coincide with a window: an open dashed outline on top
+            return {"color": colour, "weight": 3, "dashArray": ZONE_DASHES[kind],
+                    "fillColor": colour, "fillOpacity": 0.08}
         return {"color": colour, "weight": 2.5, "fillColor": colour, "fillOpacity": 0.2}
 
     def highlight(feature: dict[str, Any]) -> dict[str, Any]:

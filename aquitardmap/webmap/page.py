@@ -74,7 +74,8 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
     t = thresholds(summary)
     named = [("Window: clay thinner than", t["window_thickness_m"], "m"),
              ("Thin: clay thinner than", t["thin_thickness_m"], "m"),
-             ("Fast: travel time under", t["fast_travel_time_yr"], "years")]
+             ("Fast: travel time under", t["fast_travel_time_yr"], "years"),
+             ("Pierced: holes through the clay from", t["piercing_flag_per_km2"], "per km²")]
     rows = "".join(f"<tr><td>{label}</td><td>{fmt_threshold(v)} {u}</td></tr>"
                    for label, v, u in named if v is not None)
     if rows:
