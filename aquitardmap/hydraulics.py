@@ -23,7 +23,7 @@ __all__ = ["SECONDS_PER_YEAR", "AVI_CLASSES", "AVI_NO_DATA", "avi_class", "avi_l
            "series_resistance_s", "equivalent_kv_m_s", "leakance_per_s",
            "advective_travel_time_yr", "remove_from_top_m", "crust_thickness_m",
            "diffusion_time_yr", "peclet_number", "gradient_from_heads",
-           "downward_travel_time_yr"]
+           "downward_travel_time_yr", "series_flux_m_s", "crossing_time_yr"]
 
 #: Aquifer Vulnerability Index classes: ``(code, lower, upper, label)`` where ``lower`` and
 #: ``upper`` bound log10 of the hydraulic resistance in years (lower bound inclusive) and
@@ -127,10 +127,11 @@ def advective_travel_time_yr(thickness_m: npt.ArrayLike, kv_m_s: npt.ArrayLike,
 
     Each unit is crossed at the Darcy seepage velocity ``v = K i / nₑ`` (Freeze & Cherry
     1979), and the times add up (layers in series, any hydrogeology text). The vertical
-    gradient ``i`` is taken as uniform through the column: a screening assumption (in a
-    real column the gradient is steeper across the tighter units). Diffusion, which
-    dominates in thick intact clay, is not included here. Zero where the column has no
-    thickness.
+    gradient ``i`` is taken as uniform through the column: a screening assumption for a
+    stated gradient (under a known head drop, use :func:`series_flux_m_s` and
+    :func:`crossing_time_yr`: the gradient is then steepest across the tighter units).
+    Diffusion, which dominates in thick intact clay, is not included here. Zero where the
+    column has no thickness.
 
     Args:
         thickness_m: unit thicknesses (m), shape ``(n_units, ...)``.
@@ -151,6 +152,59 @@ def advective_travel_time_yr(thickness_m: npt.ArrayLike, kv_m_s: npt.ArrayLike,
         raise ValueError("gradient must be > 0 (a downward gradient)")
     seconds = np.sum(n * b / k, axis=0) / i
     return seconds / SECONDS_PER_YEAR
+
+
+def series_flux_m_s(thickness_m: npt.ArrayLike, kv_m_s: npt.ArrayLike,
+                    head_drop_m: npt.ArrayLike) -> FloatArray:
+    """Steady vertical Darcy flux through the column under a head drop across it (m/s,
+    positive downward): ``q = Δh / Σ bᵢ / Kᵥ,ᵢ``.
+
+    In steady flow through layers in series the same flux crosses every layer (continuity),
+    so the head drop splits between the layers in proportion to their resistances and the
+    gradient is steepest across the tightest unit (Freeze & Cherry 1979, layered systems).
+    NaN where the column has no thickness.
+
+    Args:
+        thickness_m: unit thicknesses (m), shape ``(n_units, ...)``.
+        kv_m_s: vertical conductivity of each unit (m/s), shape ``(n_units,)``.
+        head_drop_m: head at the top of the column minus head below it (m), broadcastable
+            to ``(...)``.
+
+    Returns:
+        Flux (m/s), shape ``(...)``.
+    """
+    c = series_resistance_s(thickness_m, kv_m_s)
+    dh = np.asarray(head_drop_m, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(c > 0, dh / np.where(c > 0, c, np.nan), np.nan)
+
+
+def crossing_time_yr(thickness_m: npt.ArrayLike, effective_porosity: npt.ArrayLike,
+                     flux_m_s: npt.ArrayLike) -> FloatArray:
+    """Time for water to cross layers carried by a downward Darcy flux ``q`` (years):
+    each layer at the seepage velocity ``q / nₑ,ᵢ``, so ``t = Σ nₑ,ᵢ bᵢ / q``.
+
+    ``+inf`` where ``q`` is zero or upward and the layers have thickness, 0 where they have
+    none (whatever the flux), NaN where the thickness is NaN or the flux is NaN across
+    layers that have thickness.
+
+    Args:
+        thickness_m: layer thicknesses (m), shape ``(n_layers, ...)``.
+        effective_porosity: effective porosity of each layer (-), shape ``(n_layers,)``.
+        flux_m_s: Darcy flux (m/s), positive downward, broadcastable to ``(...)``.
+
+    Returns:
+        Time (years of :data:`SECONDS_PER_YEAR`), shape ``(...)``.
+    """
+    b, n = _column(thickness_m, effective_porosity, "effective_porosity")
+    if not np.all((n > 0) & (n <= 1)):
+        raise ValueError("every effective_porosity must be in (0, 1]")
+    stored = np.sum(n * b, axis=0)
+    q = np.broadcast_to(np.asarray(flux_m_s, dtype=float), stored.shape)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t = np.where(q > 0, stored / np.where(q > 0, q, 1.0), np.inf) / SECONDS_PER_YEAR
+    t = np.where(np.isnan(q), np.nan, t)
+    return np.where(stored == 0, 0.0, t)  # NaN thickness stays NaN: NaN == 0 is False
 
 
 def avi_class(resistance_yr: npt.ArrayLike) -> npt.NDArray[np.int8]:

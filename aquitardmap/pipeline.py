@@ -46,6 +46,7 @@ from aquitardmap.hydraulics import (
     advective_travel_time_yr,
     avi_class,
     avi_legend,
+    crossing_time_yr,
     crust_thickness_m,
     diffusion_time_yr,
     downward_travel_time_yr,
@@ -54,6 +55,7 @@ from aquitardmap.hydraulics import (
     leakance_per_s,
     peclet_number,
     remove_from_top_m,
+    series_flux_m_s,
     series_resistance_s,
 )
 from aquitardmap.logs import Boreholes, column_table
@@ -511,8 +513,10 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
     2. the weathered crust, the top ``crust_depth_m`` of the remaining clay, with its K
        raised by ``crust_k_factor`` or left out (``crust_treatment``);
     3. series resistance, equivalent Kv, leakance, AVI class;
-    4. the vertical gradient from the head inputs when both are given, else the stated one;
-       advective travel time (infinite where the gradient is not downward);
+    4. with both head inputs, the head drop drives one steady Darcy flux through the units
+       in series (``Δh / c``) and the advective travel time is ``Σ nₑbᵢ / q``; elsewhere
+       the stated gradient acts in every unit alike; infinite where the flow is not
+       downward;
     5. the diffusion time scale B²/De of the intact clay below the crust and its Péclet
        number (diffusive over advective time of that clay);
     6. the density of boreholes piercing the aquitard.
@@ -552,7 +556,9 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
     stated = h.vertical_gradient
     gradient = np.where(g.mask, stated, np.nan)
     source = "stated"
+    head_drop = None
     if set(HEAD_KEYS) <= set(inputs.heads):
+        head_drop = inputs.heads["water_table"].head_m - inputs.heads["aquifer_head"].head_m
         from_heads = gradient_from_heads(inputs.heads["water_table"].head_m,
                                          inputs.heads["aquifer_head"].head_m,
                                          np.nansum(thick, axis=0))
@@ -563,11 +569,19 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
 
     with np.errstate(divide="ignore", invalid="ignore"):
         c_s = series_resistance_s(layers, kv_layers)
+        # A stated gradient acts in every unit alike; a head drop drives one steady flux
+        # through the units in series, the gradient steepest across the tightest one.
         travel = downward_travel_time_yr(layers, kv_layers, por_layers, gradient)
         clay_b = intact[is_aq].sum(axis=0)
         t_diff = diffusion_time_yr(clay_b, h.effective_diffusion_m2_s)
         t_adv_clay = advective_travel_time_yr(intact[is_aq], kv[is_aq], por[is_aq], safe_i)
         t_adv_clay = np.where(downward, t_adv_clay, np.inf)
+        if head_drop is not None:
+            q = series_flux_m_s(layers, kv_layers, head_drop)
+            by_heads = np.isfinite(head_drop) & np.isfinite(c_s)
+            travel = np.where(by_heads, crossing_time_yr(layers, por_layers, q), travel)
+            t_adv_clay = np.where(by_heads, crossing_time_yr(intact[is_aq], por[is_aq], q),
+                                  t_adv_clay)
         resistance_yr = c_s / SECONDS_PER_YEAR
         used = inputs.columns
         density = point_density_per_km2(
@@ -655,7 +669,8 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                                  piercing_density_per_km2=hyd.piercing_density_per_km2)
     if hyd.gradient_source == "heads" and len(zones):
         zones["reason"] = zones["reason"].str.replace(
-            "(unit-gradient assumption)", "(gradient from the head inputs)", regex=False)
+            "(unit-gradient assumption)", "(steady flux from the head inputs' head drop)",
+            regex=False)
     if inputs.hazards is not None and len(inputs.hazards):
         zones = annotate_zones(zones, inputs.hazards)
     return p_thin, zones
@@ -781,9 +796,12 @@ def _hydraulics_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
     h = inputs.project.hydraulics
     inside = inputs.grid.mask
     if hyd.gradient_source == "heads":
-        assumption = ("vertical gradient from the head inputs: (water table - aquifer head) "
-                      f"/ column thickness; the stated {h.vertical_gradient:g} where a head "
-                      "is missing")
+        assumption = ("head drop from the head inputs (water table - aquifer head) driving "
+                      "one steady flux through the units in series (q = head drop / "
+                      "resistance; the gradient is steepest across the tightest unit); "
+                      "the vertical_gradient grid is the column average, head drop / "
+                      f"column thickness; the stated {h.vertical_gradient:g} in every unit "
+                      "where a head is missing")
     else:
         assumption = ("uniform vertical gradient across the column"
                       + (" (unit gradient)" if h.vertical_gradient == 1.0 else ""))
