@@ -368,14 +368,22 @@ def _draw_grid(ax, fig: Figure, data: GridData) -> None:
     cb.ax.tick_params(labelsize=7)
 
 
+def _zone_linestyle(kind: str) -> str:
+    """Matplotlib line style of a zone outline: solid, or broken for the kinds the map draws
+    as open outlines on top (:data:`ZONE_DASHES`), dotted for pierced zones."""
+    if kind not in ZONE_DASHES:
+        return "-"
+    return ":" if kind == "pierced" else "--"
+
+
 def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
                           holes: gpd.GeoDataFrame | None) -> None:
     if zones is not None and len(zones):
         for kind, part in zones.groupby(zones["kind"].astype(str).str.lower()):
             colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
-            dashed = kind in ZONE_DASHES
-            part.boundary.plot(ax=ax, color=colour, linewidth=1.3 if dashed else 1.1,
-                               linestyle=(":" if kind == "pierced" else "--") if dashed else "-")
+            part.boundary.plot(ax=ax, color=colour,
+                               linewidth=1.3 if kind in ZONE_DASHES else 1.1,
+                               linestyle=_zone_linestyle(kind))
     if holes is not None and len(holes):
         cats = [hole_category_of(r) for r in holes.drop(columns="geometry").to_dict("records")]
         xs, ys = holes.geometry.x.to_numpy(), holes.geometry.y.to_numpy()
@@ -387,8 +395,7 @@ def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
 
 
 def _common_legend(fig: Figure, y: float, zones_label: dict[str, str]) -> None:
-    handles = [Line2D([], [], color=c, lw=1.3,
-                      ls=(":" if k == "pierced" else "--") if k in ZONE_DASHES else "-",
+    handles = [Line2D([], [], color=c, lw=1.3, ls=_zone_linestyle(k),
                       label=zones_label.get(k, k)) for k, c in ZONE_COLOURS.items()]
     handles += [Line2D([], [], marker="o", ls="", markerfacecolor=s.fill,
                        markeredgecolor=s.edge, markersize=5, label=s.label)
