@@ -279,8 +279,13 @@ class ThicknessProbabilities:
     drift: dict[str, object] = field(default_factory=lambda: {"used": False})
     residual: Surface | None = None
     window_floor_m: float = math.inf
+    #: For grids made by another method (:mod:`aquitardmap.indicator`): its summary, which
+    #: then replaces this method's own fields in :meth:`as_dict`.
+    other_method: dict[str, object] | None = None
 
     def as_dict(self) -> dict[str, object]:
+        if self.other_method is not None:
+            return {**self.other_method, "notes": list(self.notes)}
         return {"method": METHOD, "n_full_positive": self.n_equal,
                 "n_proving_absence": self.n_absent, "n_lower_bounds": self.n_lower_bounds,
                 "window_latent_floor_m": (self.window_floor_m if math.isfinite(

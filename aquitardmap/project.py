@@ -51,6 +51,8 @@ ANISOTROPY_CHOICES = ("none", "auto")
 #: says it helps.
 EXTERNAL_DRIFT_CHOICES = ("none", "ground", "auto")
 ZONE_BASES = ("probability", "kriged_thickness")
+#: Ways to make P(window) and P(thin) (``[screening] probability_method``).
+PROBABILITY_METHODS = ("indicator", "latent_gaussian")
 DRILLING_TARGETS = ("thin", "window", "both")
 COMPUTE_MODES = ("single", "dask")
 
@@ -206,6 +208,17 @@ class ScreeningThresholds:
             this distance of a hole that proves a window (or where a mapped hazard removes
             clay); a likely window farther from any such hole is flagged thin (m;
             :func:`aquitardmap.screening.zone_masks`).
+        probability_method: how P(window) and P(thin) are made: ``"indicator"`` (default;
+            indicator kriging with continuity along chains of proving holes,
+            :mod:`aquitardmap.indicator`) or ``"latent_gaussian"`` (a truncated Gaussian of
+            the thickness with inequality data, :mod:`aquitardmap.probability`).
+        continuity_ratio: indicator method: anisotropy ratio along a chain of holes proving
+            thin clay (1 = no chains).
+        chain_corridor_m: indicator method: a hole proving thicker clay within this distance
+            of the segment between two proving holes breaks the chain (m).
+        location_sd_m: indicator method: location error of the hole records (water wells
+            are often tens of metres off); cells within it of a hole proving a window or
+            thin clay get a probability of at least 0.9 (m).
     """
 
     window_thickness_m: float = 1.0
@@ -221,6 +234,10 @@ class ScreeningThresholds:
     probability_variance_from_cv: bool = True
     window_latent_floor_m: float = 3.0
     window_proof_radius_m: float = 300.0
+    probability_method: str = "indicator"
+    continuity_ratio: float = 4.0
+    chain_corridor_m: float = 150.0
+    location_sd_m: float = 20.0
 
 
 @dataclass(frozen=True)
@@ -923,6 +940,14 @@ def read_project(folder: str | Path) -> Project:
                                       "screening", low=0, low_open=True),
         window_proof_radius_m=_number(problems, path, text, sc, "window_proof_radius_m", 300.0,
                                       "screening", low=0),
+        probability_method=_choice(problems, path, text, sc, "probability_method", "indicator",
+                                   "screening", PROBABILITY_METHODS),
+        continuity_ratio=_number(problems, path, text, sc, "continuity_ratio", 4.0,
+                                 "screening", low=1.0, high=20.0),
+        chain_corridor_m=_number(problems, path, text, sc, "chain_corridor_m", 150.0,
+                                 "screening", low=0),
+        location_sd_m=_number(problems, path, text, sc, "location_sd_m", 20.0, "screening",
+                              low=0, high=1000.0),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),
