@@ -68,6 +68,9 @@ METHOD = "indicator kriging with continuity along chains of proving holes"
 COINCIDENT_M = 0.01
 #: Holes needed on each side of a cutoff before its indicator variogram is fitted.
 MIN_EACH_SIDE = 4
+#: Least share of the sill in the structured part of a fitted indicator variogram; below it
+#: the default model is used (:func:`indicator_variogram`).
+MIN_STRUCTURED_SHARE = 0.5
 #: Directions the local anisotropy is rounded to (degrees between them: 180 / this).
 DIRECTION_BINS = 12
 #: Cells handled at once (bounds the memory of the kriging weights).
@@ -129,8 +132,9 @@ def mean_spacing_m(x_m: np.ndarray, y_m: np.ndarray) -> float:
 def indicator_variogram(data: IndicatorData, spacing_m: float) -> tuple[VariogramModel, str]:
     """Indicator variogram of ``data`` and how it was obtained (``"fitted"`` or
     ``"default"``): the fitted spherical model, or, with fewer than :data:`MIN_EACH_SIDE`
-    locations on either side of the cutoff or a failed fit, a spherical model of sill
-    ``p(1 − p)`` (the indicator variance, Goovaerts 1997 §7.2, from memory) and range
+    locations on either side of the cutoff, a failed fit or a fit that is mostly nugget
+    (structured part under :data:`MIN_STRUCTURED_SHARE` of the sill), a spherical model of
+    sill ``p(1 − p)`` (the indicator variance, Goovaerts 1997 §7.2, from memory) and range
     three hole spacings."""
     v = data.value
     p = float(np.clip(v.mean() if v.size else 0.0, 1e-3, 1 - 1e-3))
@@ -145,7 +149,10 @@ def indicator_variogram(data: IndicatorData, spacing_m: float) -> tuple[Variogra
         model = fit_variogram(exp, "spherical", sample_variance=var)
     except (ValueError, RuntimeError, np.linalg.LinAlgError):
         return default, "default"
-    if not (np.isfinite(model.sill) and model.sill > 0 and model.psill > 0):
+    if not (np.isfinite(model.sill) and model.sill > 0
+            and model.psill >= MIN_STRUCTURED_SHARE * model.sill):
+        # Mostly nugget at the lags the holes sample: a feature narrower than the hole
+        # spacing looks like that, yet the clay is continuous below the spacing.
         return default, "default"
     return model, "fitted"
 
@@ -333,10 +340,12 @@ class IndicatorProbabilities:
 
 def indicator_cdf(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                   status: np.ndarray, cutoffs_m: list[float], xt_m: np.ndarray,
-                  yt_m: np.ndarray, settings: IndicatorSettings = IndicatorSettings()
-                  ) -> IndicatorProbabilities:
+                  yt_m: np.ndarray, settings: IndicatorSettings = IndicatorSettings(),
+                  own_target: np.ndarray | None = None) -> IndicatorProbabilities:
     """Indicator-kriged P(T < t) at targets for each cutoff (module docstring), with the
-    chains of proving holes of each cutoff, order-corrected, hard data honoured."""
+    chains of proving holes of each cutoff, order-corrected, hard data honoured
+    (:func:`honour_hard_data`; ``own_target`` the target index of each hole, -1 for
+    none)."""
     cut = np.unique(np.asarray(cutoffs_m, float))
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     x, y = np.asarray(x_m, float).ravel(), np.asarray(y_m, float).ravel()
@@ -361,38 +370,42 @@ def indicator_cdf(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                                     data.n_left_out, model, source, int(len(segs))))
         if source == "default":
             notes.append(f"cutoff {t:g} m: {data.n_event} of {data.value.size} locations "
-                         "prove it; too few to fit an indicator variogram, a spherical "
-                         f"model of range {model.range_m:.0f} m (three hole spacings) was "
-                         "used")
+                         "prove it; the indicator variogram could not be fitted with a "
+                         "structure (too few holes, or mostly nugget at the hole spacing): "
+                         f"a spherical model of range {model.range_m:.0f} m (three hole "
+                         "spacings) was used")
     cdf = correct_order(cdf)
     cdf = honour_hard_data(cdf, cut, x, y, thickness_m, status, tx, ty,
-                           settings.location_sd_m, settings.hard_floor)
+                           settings.location_sd_m, settings.hard_floor, own_target)
     return IndicatorProbabilities(cut, cdf, results, notes)
 
 
 def honour_hard_data(cdf: np.ndarray, cutoffs_m: np.ndarray, x_m: np.ndarray,
                      y_m: np.ndarray, thickness_m: np.ndarray, status: np.ndarray,
-                     xt_m: np.ndarray, yt_m: np.ndarray, radius_m: float, floor: float
-                     ) -> np.ndarray:
-    """Raise to ``floor`` the cdf at the targets within ``radius_m`` (or the nearest target,
-    its own cell) of a hole that passed through the clay thinner than a cutoff, at that
-    cutoff and above (the cdf stays non-decreasing)."""
+                     xt_m: np.ndarray, yt_m: np.ndarray, radius_m: float, floor: float,
+                     own_target: np.ndarray | None = None) -> np.ndarray:
+    """Raise to ``floor`` the cdf, at each cutoff above the logged thickness, of the targets
+    within ``radius_m`` of a hole that passed through the clay thinner than that cutoff, and
+    of the hole's own target (``own_target``: index per hole, -1 for none; for a grid, the
+    cell that holds it). The cdf stays non-decreasing."""
     t = np.asarray(thickness_m, float).ravel()
     proves = (np.asarray(status).ravel() == "full") & np.isfinite(t)
-    if not proves.any() or xt_m.size == 0:
+    if not proves.any() or np.size(xt_m) == 0:
         return cdf
     out = cdf.copy()
     tree = cKDTree(np.column_stack([xt_m, yt_m]))
     hx, hy, ht = (np.asarray(a, float).ravel()[proves] for a in (x_m, y_m, t))
-    _, own = tree.query(np.column_stack([hx, hy]))
+    own = (np.full(hx.size, -1) if own_target is None
+           else np.asarray(own_target, int).ravel()[proves])
     near = tree.query_ball_point(np.column_stack([hx, hy]), max(radius_m, 0.0))
     for i in range(hx.size):
-        cols = cutoffs_m > ht[i]
-        if not cols.any():
+        cols = np.flatnonzero(cutoffs_m > ht[i])
+        cells = np.asarray(near[i], int)
+        if own[i] >= 0:
+            cells = np.unique(np.r_[own[i], cells])
+        if cols.size == 0 or cells.size == 0:
             continue
-        cells = np.unique(np.r_[own[i], np.asarray(near[i], int)])
-        out[np.ix_(cells, np.flatnonzero(cols))] = np.maximum(
-            out[np.ix_(cells, np.flatnonzero(cols))], floor)
+        out[np.ix_(cells, cols)] = np.maximum(out[np.ix_(cells, cols)], floor)
     return out
 
 
@@ -424,8 +437,15 @@ def indicator_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
                                                                 3)))
             cutoffs.update(LADDER_M)
     cutoffs = {c for c in cutoffs if c > 0} or {1.0}
+    # each hole's own cell, as an index among the study-area cells (-1 outside)
+    order = np.full(inside.shape, -1)
+    order[inside] = np.arange(int(inside.sum()))
+    rows, cols = grid.rowcol(np.asarray(x_m, float), np.asarray(y_m, float))
+    ok = (rows >= 0) & (rows < inside.shape[0]) & (cols >= 0) & (cols < inside.shape[1])
+    own = np.full(rows.size, -1)
+    own[ok] = order[rows[ok], cols[ok]]
     res = indicator_cdf(x_m, y_m, thickness_m, status, sorted(cutoffs), xx[inside],
-                        yy[inside], settings)
+                        yy[inside], settings, own)
     out = {}
     for name, v in thr.items():
         g = np.full(inside.shape, np.nan)
@@ -462,3 +482,37 @@ def thickness_probabilities_by_indicator(x_m: np.ndarray, y_m: np.ndarray,
     return ThicknessProbabilities(grids, summary["n_full_positive"],
                                   summary["n_proving_absence"], summary["n_lower_bounds"],
                                   0, 0, 0, list(res.notes), other_method=summary)
+
+
+#: Side of the held-out blocks of :func:`cross_validate`, in median hole spacings.
+CV_BLOCK_SPACINGS = 3.0
+
+
+def cross_validate(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
+                   status: np.ndarray, thresholds_m: dict[str, float],
+                   settings: IndicatorSettings = IndicatorSettings(),
+                   block_m: float | None = None):
+    """Spatial cross-validation of this method's probabilities at the holes
+    (:func:`aquitardmap.calibration.block_cross_validation`): every block of
+    ``block_m`` (default :data:`CV_BLOCK_SPACINGS` median hole spacings) is held out and its
+    holes predicted from the rest, chains and variograms made again without them. A hole
+    is scored for ``T < t`` when it passed through the clay, or stopped in it at or below
+    ``t``. Returns ``{name: BlockCrossValidation}``."""
+    from aquitardmap.calibration import block_cross_validation
+
+    x, y, t = (np.asarray(a, float).ravel() for a in (x_m, y_m, thickness_m))
+    st = np.asarray(status).ravel()
+    block = block_m or CV_BLOCK_SPACINGS * mean_spacing_m(x, y)
+    events = {}
+    for name, thr in thresholds_m.items():
+        full = (st == "full") & np.isfinite(t)
+        scored = full | ((st == "lower_bound") & (t >= thr))
+        events[name] = (float(thr), scored, full & (t < thr))
+
+    def predict(train: np.ndarray, test: np.ndarray) -> dict[str, np.ndarray]:
+        res = indicator_cdf(x[train], y[train], t[train], st[train],
+                            sorted({float(v) for v in thresholds_m.values()}),
+                            x[test], y[test], settings)
+        return {name: res.at(thr) for name, thr in thresholds_m.items()}
+
+    return block_cross_validation(x, y, events, predict, block)

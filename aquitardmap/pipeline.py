@@ -58,7 +58,11 @@ from aquitardmap.hydraulics import (
     series_flux_m_s,
     series_resistance_s,
 )
-from aquitardmap.indicator import IndicatorSettings, thickness_probabilities_by_indicator
+from aquitardmap.indicator import (
+    IndicatorSettings,
+    cross_validate,
+    thickness_probabilities_by_indicator,
+)
 from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
@@ -488,12 +492,17 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
     x, y = used["x"].to_numpy(float), used["y"].to_numpy(float)
     t, status = used["aquitard_thickness_m"].to_numpy(float), used["status_aquitard"].to_numpy()
     if th.probability_method == "indicator":
-        return thickness_probabilities_by_indicator(
-            x, y, t, status, inputs.grid, thresholds_m,
-            IndicatorSettings(continuity_ratio=th.continuity_ratio,
-                              chain_corridor_m=th.chain_corridor_m,
-                              location_sd_m=th.location_sd_m,
-                              max_neighbours=min(32, p.kriging.max_neighbours)))
+        settings = IndicatorSettings(continuity_ratio=th.continuity_ratio,
+                                     chain_corridor_m=th.chain_corridor_m,
+                                     location_sd_m=th.location_sd_m,
+                                     max_neighbours=min(32, p.kriging.max_neighbours))
+        probs = thickness_probabilities_by_indicator(x, y, t, status, inputs.grid,
+                                                     thresholds_m, settings)
+        cv = cross_validate(x, y, t, status, {"window": th.window_thickness_m,
+                                              "thin": th.thin_thickness_m}, settings)
+        return replace(probs, other_method={
+            **probs.other_method,
+            "cross_validation": {name: c.as_dict() for name, c in cv.items()}})
     ground = used["dem_elev_m"].to_numpy(float)
     dem_path = p.file("dem")
     grid_ground = resample_to_grid(dem_path, inputs.grid) if dem_path is not None else None
