@@ -19,10 +19,21 @@ The truth is a deterministic function of position, built from seeded smooth rand
 ``"bedrock_highs"``
     knobs of till or bedrock rise through the clay here and there, some far enough to open
     patchy windows.
+``"ridge_and_channel"``
+    a broad plain (the study area is nearly the whole rectangle; meant for about
+    12 x 10 km) with 20-40 m of clay, crossed by a buried sand-gravel ridge and an infilled
+    channel: each a gently curving strip 300-450 m wide and 5-10 km long, of random
+    orientation, the two crossing at 30-90 degrees. Along most of each strip the clay is
+    absent, with thin shoulders on both sides; about 4-5 % of the area has under 5 m of
+    clay.
 
 Borehole logs are then drawn from the truth the way such data arrive: many noisy water
 wells, accurate geotechnical holes that stop inside the clay (censored), and a few cored
-holes with grain-size, porosity and lab-conductivity samples. The stack is the demo stack
+holes with grain-size, porosity and lab-conductivity samples. Two hole layouts:
+``"clustered"`` (water wells in and around a town and a village, geotechnical holes by the
+town and along a road, a few water wells planted in windows) and ``"even"`` (every hole
+uniform at random over the study area with a minimum spacing, kinds assigned at random among
+the positions, no planted window wells). The stack is the demo stack
 (``SAND`` cover; ``UMC``, ``LMC``, ``LAM`` aquitards; ``GRAV`` aquifer).
 
 Every random draw comes from one ``numpy.random.default_rng(seed)``, in a fixed order, so a
@@ -62,6 +73,7 @@ __all__ = [
     "CHARACTERS",
     "CLAY_UNITS",
     "DEMO_SEED",
+    "HOLE_LAYOUTS",
     "K_TRUE_M_S",
     "STACK",
     "SyntheticRegion",
@@ -79,7 +91,10 @@ CLAY_UNITS = ("UMC", "LMC", "LAM")
 AQUIFER_UNIT = "GRAV"
 
 #: Characters of region the generator can build.
-CHARACTERS = ("esker_window", "channel_cut", "bedrock_highs")
+CHARACTERS = ("esker_window", "channel_cut", "bedrock_highs", "ridge_and_channel")
+
+#: Borehole layouts (see :func:`make_synthetic_region`).
+HOLE_LAYOUTS = ("clustered", "even")
 
 #: True hydraulic conductivity of each unit (m/s). Lab values of clay samples scatter
 #: log-normally around these. Intact marine clay 1e-11 to 1e-9 m/s (Freeze & Cherry 1979,
@@ -331,6 +346,19 @@ def _make_valley(rng: np.random.Generator, origin_xy: tuple[float, float],
     return _Valley(float(origin_xy[0]), float(origin_xy[1]), xs, axis, top, bottom)
 
 
+def _make_plain(rng: np.random.Generator, origin_xy: tuple[float, float],
+                extent_m: tuple[float, float]) -> _Valley:
+    """A "valley" filling nearly the whole rectangle: straight axis, margins within about
+    1 % of the north and south edges (the study area of a broad plain)."""
+    width, height = extent_m
+    n = int(width // 100.0) + 1
+    xs = np.linspace(0.0, width, n)
+    axis = np.full(n, 0.5 * height)
+    top = height * (0.992 - 0.004 * np.abs(_smooth_noise_1d(rng, n, 6)))
+    bottom = height * (0.008 + 0.004 * np.abs(_smooth_noise_1d(rng, n, 6)))
+    return _Valley(float(origin_xy[0]), float(origin_xy[1]), xs, axis, top, bottom)
+
+
 @dataclass(frozen=True)
 class _Line:
     """A densely sampled centre line; nearest-vertex look-ups give distance and chainage."""
@@ -375,6 +403,23 @@ class _Ridge:
     def rise(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         dist, idx = self.line.locate(x, y)
         return self.crest_fraction[idx] * np.exp(-0.5 * (dist / self.sigma_m) ** 2)
+
+
+@dataclass(frozen=True)
+class _BroadRidge:
+    """A flat-crested buried ridge: removes ``crest_fraction`` of the clay within
+    ``half_width_m`` of its line, tapering to nothing across ``shoulder_m`` (raised cosine);
+    a fraction of at least 1 is a window (same meaning as :class:`_Ridge`)."""
+
+    line: _Line
+    half_width_m: float
+    shoulder_m: float
+    crest_fraction: np.ndarray  # per vertex
+
+    def rise(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        dist, idx = self.line.locate(x, y)
+        t = np.clip((dist - self.half_width_m) / self.shoulder_m, 0.0, 1.0)
+        return self.crest_fraction[idx] * 0.5 * (1.0 + np.cos(np.pi * t))
 
 
 @dataclass(frozen=True)
@@ -442,6 +487,7 @@ _CHARACTER_CLAY = {  # clay thickness in the valley centre and at the margins (m
     "esker_window": {"centre_m": 27.0, "margin_m": 2.5},
     "channel_cut": {"centre_m": 30.0, "margin_m": 7.5},
     "bedrock_highs": {"centre_m": 25.0, "margin_m": 3.0},
+    "ridge_and_channel": {"centre_m": 31.0, "margin_m": 24.0},
 }
 
 
@@ -453,7 +499,7 @@ class _Truth:
     fields: dict[str, _NoiseField]
     clay_centre_m: float
     clay_margin_m: float
-    ridges: tuple[_Ridge, ...]
+    ridges: tuple[_Ridge | _BroadRidge, ...]
     knobs: _Knobs | None
     channels: tuple[_Channel, ...]
 
@@ -518,6 +564,47 @@ def _line_across_valley(rng: np.random.Generator, valley: _Valley, x_centre: flo
     return _Line.through(xs, ys)
 
 
+#: Width of each strip of the ``ridge_and_channel`` character where the clay is under
+#: about 5 m (m), and the width of the shoulder on each side over which it thickens back.
+_STRIP_WIDTH_M = (300.0, 450.0)
+_STRIP_SHOULDER_M = (80.0, 150.0)
+
+
+def _strip_half_width(rng: np.random.Generator) -> tuple[float, float]:
+    """(half width of the flat core, shoulder) of a ridge or channel strip (m).
+
+    The clay is under 5 m within about 0.3 shoulder of the core's edge (20-40 m of clay
+    under a raised-cosine shoulder), so the core is set to make that strip 300-450 m wide.
+    """
+    width = rng.uniform(*_STRIP_WIDTH_M)
+    shoulder = rng.uniform(*_STRIP_SHOULDER_M)
+    return 0.5 * width - 0.3 * shoulder, shoulder
+
+
+def _crossing_lines(rng: np.random.Generator, valley: _Valley) -> tuple[_Line, _Line]:
+    """Two gently curving lines 5-10 km long that cross near the middle of the rectangle at
+    30-90 degrees, each in a random direction."""
+    width, height = float(valley.xs[-1]), float(valley.top.max())
+    px = valley.x0 + rng.uniform(0.3, 0.7) * width
+    py = valley.y0 + rng.uniform(0.3, 0.7) * height
+    heading = rng.uniform(0.0, np.pi)
+    headings = (heading, heading + rng.choice([-1.0, 1.0]) * np.radians(rng.uniform(30, 90)))
+    lines = []
+    for theta in headings:
+        length = rng.uniform(5000.0, 10000.0)
+        s = np.linspace(0.0, 1.0, 400)  # fraction of the length
+        at = rng.uniform(0.3, 0.7)  # where along it the crossing lies
+        u = (s - at) * length
+        wavelength = rng.uniform(3000.0, 6000.0)
+        offset = (rng.uniform(80.0, 250.0) * np.sin(2 * np.pi * u / wavelength
+                                                     + rng.uniform(0.0, 2.0 * np.pi))
+                  + 40.0 * _smooth_noise_1d(rng, u.size, 20))
+        offset = offset - np.interp(0.0, u, offset)  # the lines still meet at (px, py)
+        c, sn = math.cos(theta), math.sin(theta)
+        lines.append(_Line.through(px + c * u - sn * offset, py + sn * u + c * offset))
+    return lines[0], lines[1]
+
+
 def _make_truth(rng: np.random.Generator, valley: _Valley, character: str,
                 polygon: Polygon) -> _Truth:
     ox, oy = valley.x0, valley.y0
@@ -529,7 +616,7 @@ def _make_truth(rng: np.random.Generator, valley: _Valley, character: str,
               "split_lmc": 1200.0}
     fields = {k: _noise_field(rng, lx, ly, s) for k, s in scales.items()}
     hw_mean = float(np.mean(valley.top - valley.bottom)) / 2.0
-    ridges: list[_Ridge] = []
+    ridges: list[_Ridge | _BroadRidge] = []
     knobs: _Knobs | None = None
     channels: list[_Channel] = []
 
@@ -566,6 +653,18 @@ def _make_truth(rng: np.random.Generator, valley: _Valley, character: str,
         cx, cy = _points_in(rng, polygon, n, lambda x, y: valley.across(x, y) < 0.8)
         knobs = _Knobs(cx, cy, rng.uniform(200.0, 550.0, n), rng.uniform(200.0, 550.0, n),
                        rng.uniform(0.0, np.pi, n), rng.uniform(0.4, 1.7, n))
+    elif character == "ridge_and_channel":
+        ridge_line, channel_line = _crossing_lines(rng, valley)
+        hw, shoulder = _strip_half_width(rng)
+        crest = (rng.uniform(1.15, 1.35) + 0.08 * _along_noise(rng, ridge_line, 1500.0))
+        crest = crest * _ramp(ridge_line.s, 500.0) * _ramp(ridge_line.length_m - ridge_line.s,
+                                                           500.0)
+        ridges.append(_BroadRidge(ridge_line, hw, shoulder, crest))
+        hw, shoulder = _strip_half_width(rng)
+        s, length = channel_line.s, channel_line.length_m
+        cut = np.clip(1.25 * _ramp(s, 500.0) * _ramp(length - s, 500.0), 0.0, 1.0)
+        channels.append(_Channel(channel_line, hw, shoulder, cut, np.zeros_like(s), 0.05,
+                                 1.0))
     else:  # pragma: no cover - checked by the caller
         raise ValueError(character)
 
@@ -754,25 +853,106 @@ def _samples(rng: np.random.Generator, intervals: list[tuple[str, float, float]]
     return out
 
 
+def _settlements(rng: np.random.Generator, truth: _Truth, polygon: Polygon
+                 ) -> dict[str, tuple[float, float]]:
+    """Marrowdene (town, on thick clay) and Lidderholt (village), invented places."""
+    tx, ty = _points_in(rng, polygon, 1, lambda x, y: truth.column(x, y).clay_m >= 18.0)
+    if tx.size == 0:
+        tx, ty = _points_in(rng, polygon, 1)
+    vx, vy = _points_in(rng, polygon, 1, lambda x, y: truth.valley.across(x, y) < 0.7)
+    return {"Marrowdene": (float(tx[0]), float(ty[0])),
+            "Lidderholt": (float(vx[0]), float(vy[0]))}
+
+
+def _gt_ok(col: _Column) -> np.ndarray:
+    """Where a geotechnical hole can stop inside the clay: at least 10 m of clay and a
+    stopping depth between max(6 m, cover + 1 m) and min(20 m, clay base - 1 m) at least
+    1 m wide."""
+    sand = col.thickness_m["SAND"]
+    lo = np.maximum(6.0, sand + 1.0)
+    hi = np.minimum(20.0, sand + col.clay_m - 1.0)
+    return (col.clay_m >= 10.0) & (hi - lo >= 1.0)
+
+
+def _cored_ok(col: _Column) -> np.ndarray:
+    """Where a cored hole goes: every clay unit at least 1.5 m thick."""
+    return np.all([col.thickness_m[u] >= 1.5 for u in CLAY_UNITS], axis=0)
+
+
+def _holes_at(kind: str, hx: np.ndarray, hy: np.ndarray, truth: _Truth,
+              in_window: bool = False) -> list[_Hole]:
+    """Holes of one kind at true positions (hx, hy), with the true column there."""
+    if hx.size == 0:
+        return []
+    col = truth.column(np.asarray(hx, float), np.asarray(hy, float))
+    return [_Hole(kind, float(hx[i]), float(hy[i]), float(col.ground_m[i]),
+                  {u: float(col.thickness_m[u][i]) for u in (COVER_UNIT, *CLAY_UNITS)},
+                  in_window=in_window) for i in range(hx.size)]
+
+
+def _even_points(rng: np.random.Generator, polygon: Polygon, n: int, min_spacing_m: float,
+                 max_rounds: int = 200) -> tuple[np.ndarray, np.ndarray]:
+    """``n`` points uniform at random over ``polygon``, each at least ``min_spacing_m`` from
+    the ones before (random sequential adsorption); the spacing shrinks by 10 % whenever a
+    batch of candidates adds no point."""
+    xmin, ymin, xmax, ymax = polygon.bounds
+    px: list[float] = []
+    py: list[float] = []
+    spacing = min_spacing_m
+    for _ in range(max_rounds):
+        if len(px) >= n:
+            break
+        x = rng.uniform(xmin, xmax, 4 * n)
+        y = rng.uniform(ymin, ymax, 4 * n)
+        ok = contains_xy(polygon, x, y)
+        before = len(px)
+        for xi, yi in zip(x[ok], y[ok], strict=True):
+            if len(px) >= n:
+                break
+            if not px or np.min(np.hypot(np.asarray(px) - xi, np.asarray(py) - yi)) >= spacing:
+                px.append(float(xi))
+                py.append(float(yi))
+        if len(px) == before:
+            spacing *= 0.9
+    return np.asarray(px), np.asarray(py)
+
+
+def _place_holes_even(rng: np.random.Generator, truth: _Truth, polygon: Polygon, n_ow: int,
+                      n_gt: int, n_ch: int
+                      ) -> tuple[list[_Hole], dict[str, tuple[float, float]]]:
+    """True positions for the ``"even"`` layout: every hole uniform at random over the
+    study area at least 0.5 * sqrt(area / n) from the others; cored holes, then
+    geotechnical holes, are taken at random among the positions that suit them (the clay
+    thick enough), the rest are water wells. No hole is planted in a window."""
+    places = _settlements(rng, truth, polygon)  # for the hazards only; holes ignore them
+    n = n_ow + n_gt + n_ch
+    x, y = _even_points(rng, polygon, n, 0.5 * math.sqrt(polygon.area / n))
+    col = truth.column(x, y)
+    order = rng.permutation(x.size)
+    free = np.ones(x.size, bool)
+    picked = {}
+    for kind, count, ok in ((CORED, n_ch, _cored_ok(col)), (GEOTECHNICAL, n_gt, _gt_ok(col))):
+        idx = order[(ok & free)[order]][:count]
+        free[idx] = False
+        picked[kind] = idx
+    picked[WATER_WELL] = order[free[order]]
+    holes: list[_Hole] = []
+    for kind in (WATER_WELL, GEOTECHNICAL, CORED):
+        idx = np.sort(picked[kind])
+        holes.extend(_holes_at(kind, x[idx], y[idx], truth))
+    return holes, places
+
+
 def _place_holes(rng: np.random.Generator, truth: _Truth, polygon: Polygon, grid: Grid,
                  clay_grid_m: np.ndarray, n_ow: int, n_gt: int, n_ch: int,
                  n_window_wells: int) -> tuple[list[_Hole], dict[str, tuple[float, float]]]:
-    """True positions of every hole, by kind."""
+    """True positions of every hole, by kind, for the ``"clustered"`` layout."""
     valley = truth.valley
 
     def column_at(x: np.ndarray, y: np.ndarray) -> _Column:
         return truth.column(np.asarray(x, float), np.asarray(y, float))
 
-    def thick_clay(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        return column_at(x, y).clay_m >= 18.0
-
-    # settlements: Marrowdene (town, on thick clay) and Lidderholt (village)
-    tx, ty = _points_in(rng, polygon, 1, thick_clay)
-    if tx.size == 0:
-        tx, ty = _points_in(rng, polygon, 1)
-    vx, vy = _points_in(rng, polygon, 1, lambda x, y: valley.across(x, y) < 0.7)
-    places = {"Marrowdene": (float(tx[0]), float(ty[0])),
-              "Lidderholt": (float(vx[0]), float(vy[0]))}
+    places = _settlements(rng, truth, polygon)
 
     # water wells proving a window: interior cells of windows away from the margins
     xs_c, ys_c = grid.cell_centres()
@@ -805,11 +985,7 @@ def _place_holes(rng: np.random.Generator, truth: _Truth, polygon: Polygon, grid
     # geotechnical holes: town and a road across the valley, where the clay is thick enough
     # for the hole to stop inside it
     def gt_ok(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        col = column_at(x, y)
-        sand = col.thickness_m["SAND"]
-        lo = np.maximum(6.0, sand + 1.0)
-        hi = np.minimum(20.0, sand + col.clay_m - 1.0)
-        return (col.clay_m >= 10.0) & (hi - lo >= 1.0)
+        return _gt_ok(column_at(x, y))
 
     n_road = n_gt // 3
     gx1, gy1 = _points_in(rng, polygon, n_gt - n_road, gt_ok, centre=places["Marrowdene"],
@@ -831,8 +1007,7 @@ def _place_holes(rng: np.random.Generator, truth: _Truth, polygon: Polygon, grid
 
     # cored holes: spread over the valley where every clay unit is present
     def cored_ok(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        col = column_at(x, y)
-        return np.all([col.thickness_m[u] >= 1.5 for u in CLAY_UNITS], axis=0)
+        return _cored_ok(column_at(x, y))
 
     cand_x, cand_y = _points_in(rng, polygon, 40 * max(1, n_ch), cored_ok)
     spacing = 0.6 * math.sqrt(polygon.area / max(1, n_ch))
@@ -849,13 +1024,7 @@ def _place_holes(rng: np.random.Generator, truth: _Truth, polygon: Polygon, grid
         (GEOTECHNICAL, gt_x, gt_y, False),
         (CORED, ch_x, ch_y, False),
     ):
-        if hx.size == 0:
-            continue
-        col = column_at(hx, hy)
-        for i in range(hx.size):
-            th = {u: float(col.thickness_m[u][i]) for u in (COVER_UNIT, *CLAY_UNITS)}
-            holes.append(_Hole(kind, float(hx[i]), float(hy[i]), float(col.ground_m[i]), th,
-                               in_window=win))
+        holes.extend(_holes_at(kind, hx, hy, truth, win))
     return holes, places
 
 
@@ -1029,7 +1198,8 @@ def make_synthetic_region(
     origin_xy: tuple[float, float] = (548_000.0, 6_712_000.0),
     cell_size_m: float = 50.0,
     character: str = "esker_window",
-    partial_fraction: float = 0.3,
+    hole_layout: str | None = None,
+    partial_fraction: float | None = None,
     n_cored: int | None = None,
     n_window_wells: int = 6,
     n_elevation_blunders: int = 4,
@@ -1046,15 +1216,25 @@ def make_synthetic_region(
         seed: seed of ``numpy.random.default_rng``; the same seed and arguments give the same
             CSV files byte for byte.
         n_holes: number of boreholes of all kinds.
-        extent_m: (east-west, north-south) size of the rectangle holding the valley (m).
+        extent_m: (east-west, north-south) size of the rectangle holding the valley (m);
+            about (12000, 10000) for ``"ridge_and_channel"``.
         origin_xy: south-west corner of that rectangle in ``crs`` (m).
         cell_size_m: cell size of the screening grid the truth rasters are written on (m).
-        character: ``"esker_window"``, ``"channel_cut"`` or ``"bedrock_highs"``.
+        character: one of :data:`CHARACTERS` (``"esker_window"``, ``"channel_cut"``,
+            ``"bedrock_highs"``, ``"ridge_and_channel"``).
+        hole_layout: ``"clustered"`` (water wells around a town and a village and uniform,
+            geotechnical holes by the town and along a road, ``n_window_wells`` planted in
+            windows) or ``"even"`` (all holes uniform at random over the study area at least
+            0.5 * sqrt(area / n_holes) apart; cored and geotechnical holes taken at random
+            among the positions where the clay suits them, fewer if too few do; no planted
+            window wells). Default: ``"even"`` for ``"ridge_and_channel"``, else
+            ``"clustered"``.
         partial_fraction: fraction of the holes that are geotechnical holes stopping inside
-            the clay (censored).
+            the clay (censored); default 0.2 for the even layout, 0.3 for the clustered.
         n_cored: number of cored holes with samples (default: ``n_holes / 30``, 2 to 15).
         n_window_wells: water wells placed inside clay windows, reaching the aquifer with no
-            clay in their log (fewer if the windows are too small to hold them).
+            clay in their log (fewer if the windows are too small to hold them); clustered
+            layout only (the even layout plants none).
         n_elevation_blunders: water wells whose reported ground elevation is off by 6-15 m.
         dem_cell_size_m: cell size of ``dem.tif`` (m).
         crs: projected CRS of every coordinate (metres).
@@ -1071,6 +1251,15 @@ def make_synthetic_region(
     """
     if character not in CHARACTERS:
         raise ValueError(f"character must be one of {', '.join(CHARACTERS)}, got {character!r}")
+    if hole_layout is None:
+        hole_layout = "even" if character == "ridge_and_channel" else "clustered"
+    if hole_layout not in HOLE_LAYOUTS:
+        raise ValueError(f"hole_layout must be one of {', '.join(HOLE_LAYOUTS)}, "
+                         f"got {hole_layout!r}")
+    if hole_layout == "even":
+        n_window_wells = 0
+    if partial_fraction is None:
+        partial_fraction = 0.2 if hole_layout == "even" else 0.3
     if not 0.0 <= partial_fraction <= 0.8:
         raise ValueError(f"partial_fraction must be within 0 to 0.8, got {partial_fraction}")
     if min(extent_m) < 2000.0:
@@ -1089,7 +1278,10 @@ def make_synthetic_region(
     crs_obj = CRS.from_user_input(crs)
     rng = np.random.default_rng(seed)
 
-    valley = _make_valley(rng, origin_xy, extent_m)
+    if character == "ridge_and_channel":
+        valley = _make_plain(rng, origin_xy, extent_m)
+    else:
+        valley = _make_valley(rng, origin_xy, extent_m)
     polygon = valley.polygon()
     truth = _make_truth(rng, valley, character, polygon)
     grid = make_grid(polygon, cell_size_m, crs_obj)
@@ -1126,8 +1318,11 @@ def make_synthetic_region(
                                 description="ground elevation", units="m")
     files["boundary"] = _write_boundary(root / "boundary.geojson", polygon, crs_obj)
 
-    holes, places = _place_holes(rng, truth, polygon, grid, clay, n_ow, n_gt, n_cored,
-                                 n_window_wells)
+    if hole_layout == "even":
+        holes, places = _place_holes_even(rng, truth, polygon, n_ow, n_gt, n_cored)
+    else:
+        holes, places = _place_holes(rng, truth, polygon, grid, clay, n_ow, n_gt, n_cored,
+                                     n_window_wells)
     # ids: shuffled within each kind so that the id says nothing about where a hole is
     for kind in (WATER_WELL, GEOTECHNICAL, CORED):
         members = [h for h in holes if h.kind == kind]
@@ -1202,6 +1397,8 @@ def make_synthetic_region(
         "files": {k: p.name for k, p in sorted(files.items()) if k != "project"},
         "truth_files": {k: f"truth/{p.name}" for k, p in sorted(truth_files.items())},
     }
+    if hole_layout != "clustered":  # recorded only when not the original layout, so the
+        meta["parameters"]["hole_layout"] = hole_layout  # demo's truth.json is unchanged
     truth_files["json"] = tdir / "truth.json"
     truth_files["json"].write_text(json.dumps(meta, indent=2, sort_keys=True) + "\n",
                                    encoding="utf-8")

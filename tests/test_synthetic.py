@@ -296,3 +296,60 @@ def test_bad_arguments_are_refused(tmp_path):
         make_synthetic_region(tmp_path, seed=1, character="volcano")
     with pytest.raises(ValueError, match="water wells"):
         make_synthetic_region(tmp_path, seed=1, n_holes=12)
+
+
+@pytest.fixture(scope="module")
+def ridge_and_channel(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("ridge_and_channel")
+    return make_synthetic_region(folder, seed=104, character="ridge_and_channel",
+                                 n_holes=300, extent_m=(12000.0, 10000.0))
+
+
+def test_ridge_and_channel_is_a_plain_crossed_by_two_windows(ridge_and_channel):
+    region = ridge_and_channel
+    clay = read_raster(region.truth["aquitard"])[0]
+    inside = region.grid.mask
+    # the study area is nearly the whole 12 x 10 km rectangle (no narrow valley)
+    assert region.area_km2 > 0.97 * 120.0
+    # clay mostly 20-40 m thick, broken by windows; 4-5 % under 5 m on average over seeds
+    # 101-110 (the figure), this seed within 3-6 %
+    assert 20.0 <= np.nanpercentile(clay[inside], 10) and np.nanmax(clay) <= 40.0
+    assert 0.03 < region.thin_area_km2 / region.area_km2 < 0.06
+    # along most of each strip the clay is absent: the windows are most of the thin area
+    assert region.window_area_km2 > 0.6 * region.thin_area_km2
+
+
+def test_even_layout_spreads_holes_without_planted_window_wells(ridge_and_channel):
+    region = ridge_and_channel
+    collars, intervals, _, truth = _read(region.root)
+    assert _logs_problems(collars, intervals) == []
+    assert region.counts["window_wells"] == 0 and (truth.window_well == 0).all()
+    assert region.counts["geotechnical"] == 60  # a fifth of 300
+    assert 5 <= region.counts["cored"] <= 15
+    xy = truth[["x_true", "y_true"]].to_numpy()
+    d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
+    np.fill_diagonal(d, np.inf)
+    spacing = 0.5 * np.sqrt(region.area_km2 * 1e6 / 300)
+    assert d.min() >= spacing - 1e-6
+    # evenly spread: every 2 x 2 km block of the plain holds some holes
+    blocks = np.floor((xy - xy.min(axis=0)) / 2000.0).astype(int)
+    counts = pd.Series(list(map(tuple, blocks))).value_counts()
+    assert len(counts) >= 30 and counts.min() >= 3
+    # water-well location noise as in the clustered layout
+    m = collars.merge(truth, on="borehole_id")
+    ww = m[m.kind == "water_well"]
+    assert 15.0 < np.concatenate([ww.x - ww.x_true, ww.y - ww.y_true]).std() < 25.0
+    last = intervals.groupby("borehole_id").last().unit
+    assert last[truth[truth.kind == "geotechnical"].borehole_id].isin(CLAY_UNITS).all()
+
+
+def test_hole_layout_can_be_chosen_for_any_character(tmp_path):
+    kw = {"n_holes": 60, "extent_m": (5000.0, 3500.0)}
+    even = make_synthetic_region(tmp_path / "e", seed=3, character="esker_window",
+                                 hole_layout="even", **kw)
+    assert even.counts["window_wells"] == 0 and even.counts["geotechnical"] == 12
+    clustered = make_synthetic_region(tmp_path / "c", seed=3, character="ridge_and_channel",
+                                      hole_layout="clustered", **kw)
+    assert clustered.counts["geotechnical"] == 18  # partial_fraction 0.3 by default
+    with pytest.raises(ValueError, match="hole_layout"):
+        make_synthetic_region(tmp_path / "x", seed=3, hole_layout="grid", **kw)
