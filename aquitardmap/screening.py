@@ -234,15 +234,15 @@ def _tier_head(kind: str, tier: str, th: ScreeningThresholds, prob: float,
     p_tier = tier_threshold(th, kind, tier)
     if kind == "window":
         what = "Clay likely absent" if tier == "likely" else "Clay possibly absent"
-        what += " (window"
+        what += " (window zone"
     else:
-        what = "Thin clay" + (" possible" if tier == "possible" else "") + " (thin"
+        what = "Thin clay" + (" possible" if tier == "possible" else "") + " (thin zone"
     if tier == "likely":
         means = f"likely: the probability is at least {p_tier:.0%}"
         if kind == "window":
-            means += (f" and a hole proving a window lies within {th.window_proof_radius_m:g} m"
-                      " (or a mapped hazard removes clay)")
-        means += ", or a hole in the cell proves it"
+            means += (f" with a hole proving a window within {th.window_proof_radius_m:g} m "
+                      "or a mapped hazard removing clay")
+        means += f", or a hole in the cell proves {'a window' if kind == 'window' else 'it'}"
     else:
         means = (f"possible: cannot be ruled out, probability at least {p_tier:.0%}; "
                  "a hole here would tell")

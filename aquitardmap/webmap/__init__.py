@@ -191,7 +191,7 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
 
     zones = read_layer(run_dir / outputs.ZONES, outputs.ZONES_LAYER, crs, LONLAT)
     if zones is not None:
-        layer, rows = zones_layer(zones, zone_labels(summary))
+        layer, rows = zones_layer(zones, zone_labels(summary), summary)
         layer.add_to(fmap)
         layers["zones"] = (layer.get_name(), "aqm-legend-zones")
         toggles.append(("zones", "Flagged zones", True,
