@@ -59,6 +59,9 @@ from aquitardmap.presentation import (
     run_date,
     thresholds,
     zone_labels,
+    zone_style,
+    zone_tier_label,
+    zone_tiers_note,
     zones_and_thickness_note,
 )
 from aquitardmap.runfolder import (
@@ -70,7 +73,7 @@ from aquitardmap.runfolder import (
     section,
     styles_in,
 )
-from aquitardmap.screening import ZONE_KINDS
+from aquitardmap.screening import TIERED_KINDS, ZONE_KINDS, ZONE_TIERS
 from aquitardmap.variogram import (
     VariogramModel,
     default_lags,
@@ -107,6 +110,12 @@ METHODS: tuple[tuple[str, str], ...] = (
      "window holes −L ≤ Z ≤ 0 (L = window_latent_floor_m), holes stopped in the clay "
      "Z ≥ depth, drawn by a Gibbs sampler "
      "(Freulon & de Fouquet 1993) and kriged (Verly 1983); p_thin.tif, p_window.tif"),
+    ("Zone tiers", "likely: the chance reaches p_window_threshold / p_thin_threshold "
+     "(a likely window also needs a hole proving a window within window_proof_radius_m); "
+     "possible, what the holes cannot rule out: it reaches p_window_possible_threshold / "
+     "p_thin_possible_threshold; a cell holding a hole that proves a window or thin clay is "
+     "likely whatever the chance; one zone per cell: higher tier first, then window before "
+     "thin (our screening rule)"),
     ("Ground as external drift", "kriging with an external drift (Wackernagel 2003, "
      "Multivariate Geostatistics; Hengl et al. 2007), used for the probabilities when "
      "cross-validation favours it"),
@@ -274,10 +283,20 @@ def _title_page(pages: _Pages, run_dir: Path) -> None:
     zones = section(s, "zones")
     areas = zones.get("area_m2_by_kind") if isinstance(zones.get("area_m2_by_kind"), dict) else {}
     n_by = zones.get("count_by_kind") if isinstance(zones.get("count_by_kind"), dict) else {}
-    rows = [[labels[k], str(n_by.get(k, "n/a")), fmt_area(finite_float(areas.get(k)))]
-            for k in ZONE_KINDS]
-    flow.table(rows, ["Flagged zone kind (threshold)", "Zones", "Area"], [0.64, 0.12, 0.24],
-               fontsize=8.5)
+    area_t = section(zones, "area_m2_by_kind_and_tier")
+    n_t = section(zones, "count_by_kind_and_tier")
+    rows = []
+    for k in ZONE_KINDS:
+        rows.append([labels[k] + (", all tiers" if k in area_t else ""),
+                     str(n_by.get(k, "n/a")), fmt_area(finite_float(areas.get(k)))])
+        if isinstance(area_t.get(k), dict):
+            counts_t = n_t.get(k) if isinstance(n_t.get(k), dict) else {}
+            rows += [[f"    {zone_tier_label(s, k, tier)}", str(counts_t.get(tier, "n/a")),
+                      fmt_area(finite_float(area_t[k].get(tier)))] for tier in ZONE_TIERS]
+    flow.table(rows, ["Flagged zone kind (threshold) and tier", "Zones", "Area"],
+               [0.64, 0.12, 0.24], fontsize=8.5)
+    if zone_tiers_note(s):
+        flow.para(zone_tiers_note(s), width=110)
     thick = section(s, "aquitard_thickness_m")
     if thick:
         thin = t["thin_thickness_m"]
@@ -368,22 +387,34 @@ def _draw_grid(ax, fig: Figure, data: GridData) -> None:
     cb.ax.tick_params(labelsize=7)
 
 
-def _zone_linestyle(kind: str) -> str:
-    """Matplotlib line style of a zone outline: solid, or broken for the kinds the map draws
-    as open outlines on top (:data:`ZONE_DASHES`), dotted for pierced zones."""
+def _zone_linestyle(kind: str, tier: str = "") -> str:
+    """Matplotlib line style of a zone outline (:func:`zone_style`): solid, dash-dot for
+    the possible tier, broken for the kinds the map draws as open outlines on top
+    (:data:`ZONE_DASHES`), dotted for pierced zones."""
     if kind not in ZONE_DASHES:
-        return "-"
+        return "-." if zone_style(kind, tier).dash else "-"
     return ":" if kind == "pierced" else "--"
+
+
+def _zone_tiers(zones: gpd.GeoDataFrame) -> list[str]:
+    """Each zone's tier, ``""`` where it has none (or the layer has no tier column)."""
+    if "tier" not in zones:
+        return [""] * len(zones)
+    return [t if t in ZONE_TIERS else "" for t in zones["tier"].fillna("").astype(str)]
 
 
 def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
                           holes: gpd.GeoDataFrame | None) -> None:
     if zones is not None and len(zones):
-        for kind, part in zones.groupby(zones["kind"].astype(str).str.lower()):
+        keys = list(zip(zones["kind"].astype(str).str.lower(), _zone_tiers(zones),
+                        strict=True))
+        for kind, tier in sorted(set(keys)):
+            part = zones[[k == (kind, tier) for k in keys]]
             colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
             part.boundary.plot(ax=ax, color=colour,
-                               linewidth=1.3 if kind in ZONE_DASHES else 1.1,
-                               linestyle=_zone_linestyle(kind))
+                               linewidth=1.3 if kind in ZONE_DASHES else
+                               (0.9 if tier == "possible" else 1.1),
+                               linestyle=_zone_linestyle(kind, tier))
     if holes is not None and len(holes):
         cats = [hole_category_of(r) for r in holes.drop(columns="geometry").to_dict("records")]
         xs, ys = holes.geometry.x.to_numpy(), holes.geometry.y.to_numpy()
@@ -394,9 +425,17 @@ def _draw_zones_and_holes(ax, zones: gpd.GeoDataFrame | None,
                            linewidths=0.5, zorder=5)
 
 
-def _common_legend(fig: Figure, y: float, zones_label: dict[str, str]) -> None:
-    handles = [Line2D([], [], color=c, lw=1.3, ls=_zone_linestyle(k),
-                      label=zones_label.get(k, k)) for k, c in ZONE_COLOURS.items()]
+def _common_legend(fig: Figure, y: float, zones_label: dict[str, str],
+                   summary: dict[str, Any] | None = None) -> None:
+    tiered = bool(section(summary or {}, "zones").get("tiers"))
+    handles = []
+    for k, c in ZONE_COLOURS.items():
+        for tier in (ZONE_TIERS if tiered and k in TIERED_KINDS else ("",)):
+            words = zones_label.get(k, k)
+            if tier:
+                words += f", {zone_tier_label(summary or {}, k, tier)}"
+            handles.append(Line2D([], [], color=c, lw=1.3, ls=_zone_linestyle(k, tier),
+                                  label=words))
     handles += [Line2D([], [], marker="o", ls="", markerfacecolor=s.fill,
                        markeredgecolor=s.edge, markersize=5, label=s.label)
                 for s in HOLE_STYLES.values()]
@@ -445,7 +484,7 @@ def _map_pages(pages: _Pages, run_dir: Path) -> None:
                 ax.text(0.0, -0.135, _plain(style.note), transform=ax.transAxes, fontsize=6.8,
                         color="#444444", va="top")
             _scale_bar(ax, extent)
-        _common_legend(fig, 0.142, labels)
+        _common_legend(fig, 0.142, labels, s)
 
 
 # --------------------------------------------------------------------------- variograms
@@ -559,33 +598,52 @@ def _zone_pages(pages: _Pages, run_dir: Path) -> None:
         recs = zones.drop(columns="geometry").to_dict("records")
         recs.sort(key=lambda r: (order.get(str(r.get("kind")).lower(), len(order)),
                                  -(finite_float(r.get("area_m2")) or 0.0)))
+        tier_order = {t: i for i, t in enumerate(ZONE_TIERS)}
+        recs.sort(key=lambda r: (order.get(str(r.get("kind")).lower(), len(order)),
+                                 tier_order.get(str(r.get("tier") or ""), -1),
+                                 -(finite_float(r.get("area_m2")) or 0.0)))
         for i, r in enumerate(recs, start=1):
             kind = str(r.get("kind") or "").lower()
+            tier = str(r.get("tier") or "")
             n_holes = finite_float(r.get("n_boreholes"))
+            n_support = finite_float(r.get("n_supporting_holes"))
+            own = finite_float(r.get("probability"))
+            chance = own if own is not None else finite_float(r.get("mean_p_thin"))
+            most = finite_float(r.get("max_probability")) if own is not None else None
             rows.append([str(i), _plain(labels.get(kind, kind).split(" (")[0].split(":")[0]),
+                         tier if tier in ZONE_TIERS else "—",
                          fmt_area(finite_float(r.get("area_m2"))),
                          fmt_sig(finite_float(r.get("mean_thickness_m")), 2),
                          fmt_sig(finite_float(r.get("min_thickness_m")), 2),
                          fmt_sig(finite_float(r.get("mean_sd_m")), 2),
-                         fmt_percent(finite_float(r.get("mean_p_thin"))),
+                         fmt_percent(chance), "" if most is None else fmt_percent(most),
                          fmt_years(finite_float(r.get("mean_travel_time_yr"))),
-                         "" if n_holes is None else str(int(n_holes))])
-    header = ["#", "Kind", "Area", "Clay, mean (m)", "least (m)", "SD (m)", "P(thin)",
-              "Travel time", "Holes"]
-    widths = [0.05, 0.15, 0.11, 0.14, 0.10, 0.09, 0.11, 0.16, 0.09]
+                         "" if n_holes is None else str(int(n_holes)),
+                         "" if n_support is None or kind not in TIERED_KINDS
+                         else str(int(n_support))])
+    header = ["#", "Kind", "Tier", "Area", "Clay, mean (m)", "least (m)", "SD (m)", "Chance",
+              "highest", "Travel time", "Holes", "Proving"]
+    widths = [0.04, 0.11, 0.075, 0.085, 0.125, 0.075, 0.065, 0.075, 0.07, 0.12, 0.065,
+              0.09]
     chunks = [rows[i:i + ZONE_TABLE_ROWS_PER_PAGE]
               for i in range(0, len(rows), ZONE_TABLE_ROWS_PER_PAGE)] or [[]]
     for k, chunk in enumerate(chunks):
         fig = pages.new("Flagged areas" + (" (continued)" if k else ""))
         if k == 0:
             t = thresholds(s)
-            intro = ("Every zone drawn on the maps, largest first within each kind. " +
-                     "; ".join(labels[kk] for kk in ZONE_KINDS) +
-                     ". P(thin): mean chance over the zone that the clay is thinner than "
-                     f"{fmt_threshold(t['thin_thickness_m'] or float('nan'))} m. SD: "
-                     "mean kriging standard deviation of the thickness.")
-            _Flow(fig, 0.895).para(intro, size=8, width=120)
-        flow = _Flow(fig, 0.84 if k == 0 else 0.895)
+            intro = ("Every zone drawn on the maps, by kind and tier, largest first. " +
+                     "; ".join(labels[kk] for kk in ZONE_KINDS) + ". "
+                     + (zone_tiers_note(s) + " " if zone_tiers_note(s) else "") +
+                     "Chance: mean over the zone of the chance it was drawn from (window "
+                     "zones: that the clay is absent; thin zones: that it is thinner than "
+                     f"{fmt_threshold(t['thin_thickness_m'] or float('nan'))} m; other zones: "
+                     "the latter), highest: its largest value. SD: mean kriging standard "
+                     "deviation of the thickness. Holes: boreholes inside. Proving: holes "
+                     "proving a window or thin clay inside the zone or near it (their ids are "
+                     "in zones.gpkg, supporting_holes).")
+            intro_flow = _Flow(fig, 0.895)
+            intro_flow.para(intro, size=8, width=120)
+        flow = _Flow(fig, intro_flow.y if k == 0 else 0.895)
         if chunk:
             flow.table(chunk, header, widths, fontsize=7.5)
         else:

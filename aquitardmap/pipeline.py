@@ -75,15 +75,19 @@ from aquitardmap.project import (
     PROJECT_FILE,
     ComputeSettings,
     Project,
+    ScreeningThresholds,
     read_project,
     setting_location,
 )
 from aquitardmap.report import file_sha256, write_summary
 from aquitardmap.screening import (
     ZONE_KINDS,
+    ZONE_TIERS,
     probability_below,
     window_proof_cells,
     zone_areas_m2,
+    zone_tier_areas_m2,
+    zone_tier_counts,
     zones_from_grids,
 )
 from aquitardmap.staging import staged_output_dir, tidy_output_dir  # noqa: F401
@@ -657,8 +661,11 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
     """Stage 4: approximate P(thin) grid and the window / thin / fast zones.
 
     With ``[screening] zone_basis = "probability"`` window and thin zones are drawn from
-    ``probabilities`` (computed here by :func:`thickness_probability_grids` when not given);
-    otherwise from the kriged thickness.
+    ``probabilities`` (computed here by :func:`thickness_probability_grids` when not given)
+    in a likely and a possible tier (:func:`aquitardmap.screening.zone_tier_masks`);
+    otherwise from the kriged thickness. Either way the cells holding a used hole that
+    proves a window or thin clay (``proves_window`` / ``proves_thin`` of ``boreholes``,
+    :func:`proves_thinner_than`) are flagged whatever the grids say.
     """
     total = surfaces["aquitard"]
     th = inputs.project.screening
@@ -741,7 +748,8 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
         "thresholds": {"window_thickness_m": p.screening.window_thickness_m,
                        "thin_thickness_m": p.screening.thin_thickness_m,
                        "fast_travel_time_yr": p.screening.fast_travel_time_yr,
-                       "piercing_flag_per_km2": p.screening.piercing_flag_per_km2},
+                       "piercing_flag_per_km2": p.screening.piercing_flag_per_km2,
+                       **_tier_thresholds(p.screening)},
         "hydraulics": _hydraulics_summary(inputs, hyd),
         "avi": _avi_summary(hyd, g),
         "hazards": hyd.hazards,
@@ -770,18 +778,38 @@ def _summary(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
                                  else []),
         "aquitard_thickness_m": {"min": float(np.nanmin(total)), "mean": float(np.nanmean(total)),
                                  "max": float(np.nanmax(total))},
-        "zones": {"area_m2_by_kind": zone_areas_m2(zones),
-                  "count_by_kind": {k: int((zones["kind"] == k).sum())
-                                    for k in ZONE_KINDS},
-                  "basis": (p.screening.zone_basis if probabilities is not None
-                            else "kriged_thickness"),
-                  "p_window_threshold": p.screening.p_window_threshold,
-                  "p_thin_threshold": p.screening.p_thin_threshold,
-                  "window_proof_radius_m": p.screening.window_proof_radius_m,
-                  "cells_likely_window_without_proof": (
-                      int(zones["n_cells_unproven_window"].sum()) if len(zones) else 0)},
+        "zones": _zones_summary(inputs, zones, probabilities),
         "warnings": [str(w) for w in inputs.warnings],
     }
+
+
+def _tier_thresholds(th: ScreeningThresholds) -> dict[str, float]:
+    """The probability thresholds of the likely and possible zone tiers."""
+    return {"p_window_threshold": th.p_window_threshold,
+            "p_thin_threshold": th.p_thin_threshold,
+            "p_window_possible_threshold": th.p_window_possible_threshold,
+            "p_thin_possible_threshold": th.p_thin_possible_threshold}
+
+
+def _zones_summary(inputs: Inputs, zones: gpd.GeoDataFrame,
+                   probabilities: ThicknessProbabilities | None) -> dict:
+    """Areas and counts of the zones: by kind (all tiers together), and for window and thin
+    zones by kind and tier (empty tiers with ``zone_basis = "kriged_thickness"``), with the
+    thresholds that drew them."""
+    th = inputs.project.screening
+    tiered = probabilities is not None
+    return {"area_m2_by_kind": zone_areas_m2(zones),
+            "count_by_kind": {k: int((zones["kind"] == k).sum()) for k in ZONE_KINDS},
+            "area_m2_by_kind_and_tier": zone_tier_areas_m2(zones) if tiered else {},
+            "count_by_kind_and_tier": zone_tier_counts(zones) if tiered else {},
+            "tiers": list(ZONE_TIERS) if tiered else [],
+            "basis": th.zone_basis if tiered else "kriged_thickness",
+            **_tier_thresholds(th),
+            "window_proof_radius_m": th.window_proof_radius_m,
+            "cells_likely_window_without_proof": (
+                int(zones["n_cells_unproven_window"].sum()) if len(zones) else 0),
+            "cells_flagged_by_proving_holes_alone": (
+                int(zones["n_cells_from_holes"].sum()) if len(zones) else 0)}
 
 
 def _probability_summary(inputs: Inputs, probabilities: ThicknessProbabilities | None

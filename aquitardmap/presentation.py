@@ -21,6 +21,7 @@ from typing import Any
 
 from aquitardmap import outputs
 from aquitardmap.hydraulics import AVI_CLASSES
+from aquitardmap.screening import TIERED_KINDS, ZONE_TIERS
 
 #: Optional grids that other stages may write; shown when present.
 P_THIN_FILE = "p_thin.tif"
@@ -284,6 +285,77 @@ ZONE_COLOURS = {"window": "#d7191c", "thin": "#f59b1a", "fast": "#1f9fd9",
 #: a window or thin zone), with their dash pattern (SVG ``stroke-dasharray``).
 ZONE_DASHES = {"fast": "7 5", "pierced": "2 4"}
 ZONE_OTHER_COLOUR = "#6d6d6d"
+#: Outline of the *possible* tier of window and thin zones: the kind's colour, a lighter
+#: fill and this dash-dot pattern (SVG ``stroke-dasharray``), unlike the solid likely tier
+#: and the dashes of fast and pierced zones.
+POSSIBLE_DASH = "10 4 2 4"
+
+
+@dataclass(frozen=True)
+class ZoneStyle:
+    """How a zone of one kind and tier is drawn: outline colour, fill opacity (0..1),
+    outline weight (px) and dash pattern (SVG ``stroke-dasharray``; "" = solid)."""
+
+    colour: str
+    fill_opacity: float
+    weight: float
+    dash: str
+
+
+def zone_style(kind: str, tier: str = "") -> ZoneStyle:
+    """Style of a zone: likely (and untiered) window and thin zones filled with a solid
+    outline, possible ones lighter with a dash-dot outline of the same colour; fast and
+    pierced zones open dashed outlines on top."""
+    colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
+    if kind in ZONE_DASHES:
+        return ZoneStyle(colour, 0.08, 3.0, ZONE_DASHES[kind])
+    if tier == "possible":
+        return ZoneStyle(colour, 0.07, 2.0, POSSIBLE_DASH)
+    return ZoneStyle(colour, 0.2, 2.5, "")
+
+
+def zone_thresholds(summary: dict[str, Any]) -> dict[tuple[str, str], float | None]:
+    """Probability threshold of each tier of window and thin zones, from the summary's
+    ``zones`` section (None where missing)."""
+    zones = summary.get("zones") if isinstance(summary.get("zones"), dict) else {}
+    return {(kind, tier): finite_float(zones.get(
+        f"p_{kind}_threshold" if tier == "likely" else f"p_{kind}_possible_threshold"))
+        for kind in TIERED_KINDS for tier in ZONE_TIERS}
+
+
+def zone_tier_label(summary: dict[str, Any], kind: str, tier: str) -> str:
+    """Plain words for a tier of a window or thin zone, e.g. ``"likely (chance at least
+    50 %)"`` or ``"possible: cannot be ruled out (chance at least 15 %)"``; "" for no
+    tier."""
+    if tier not in ZONE_TIERS:
+        return ""
+    p = zone_thresholds(summary).get((kind, tier))
+    words = "likely" if tier == "likely" else "possible: cannot be ruled out"
+    return words + (f" (chance at least {fmt_percent(p)})" if p is not None else "")
+
+
+def zone_tiers_note(summary: dict[str, Any]) -> str:
+    """What the two tiers mean and which one a cell takes ("" unless the zones were drawn
+    in tiers)."""
+    zones = summary.get("zones") if isinstance(summary.get("zones"), dict) else {}
+    if not zones.get("tiers"):
+        return ""
+    p = zone_thresholds(summary)
+    radius = finite_float(zones.get("window_proof_radius_m"))
+
+    def pct(kind: str, tier: str) -> str:
+        v = p[(kind, tier)]
+        return "n/a" if v is None else fmt_percent(v)
+
+    near = (f" and a hole proving a window lies within {fmt_threshold(radius)} m"
+            if radius is not None else "")
+    return ("Window and thin zones come in two tiers. Likely: the chance is at least "
+            f"{pct('window', 'likely')} (window){near}, or at least {pct('thin', 'likely')} "
+            "(thin); a cell holding a hole that proves a window or thin clay is likely "
+            "whatever the chance. Possible: what the holes cannot rule out, the chance at "
+            f"least {pct('window', 'possible')} (window) or {pct('thin', 'possible')} (thin); "
+            "a hole there would tell. A cell lies in one zone only: the higher tier first, "
+            "then window before thin.")
 
 
 def zone_labels(summary: dict[str, Any]) -> dict[str, str]:
@@ -315,9 +387,9 @@ def zones_and_thickness_note(summary: dict[str, Any]) -> str:
     drift = drift if isinstance(drift, dict) else {}
     return ("The thickness layer is the ordinary-kriged mean"
             + (" (without the drift)" if drift.get("used") else "")
-            + "; a zone marks where the clay is more likely than not (window) or likely "
-            "(thin) to be thinner than the threshold, so it can cover cells whose mean "
-            "thickness is above the threshold, and miss cells whose mean is below it.")
+            + "; a zone marks where the chance that the clay is thinner than the threshold "
+            "reaches its tier's threshold, so it can cover cells whose mean thickness is "
+            "above the threshold, and miss cells whose mean is below it.")
 
 
 # --------------------------------------------------------------------------- boreholes
@@ -480,8 +552,10 @@ def fmt_years(value: float | None) -> str:
 
 __all__ = [
     "AVI_CLASS_FILE", "COUNT_WORDS", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
-    "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "avi_classes", "fmt_area",
+    "POSSIBLE_DASH", "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "ZoneStyle",
+    "avi_classes", "fmt_area",
     "fmt_m", "fmt_percent", "fmt_sig", "fmt_threshold", "fmt_years", "gradient_words",
     "grid_styles", "hole_category", "hole_category_of", "thresholds", "truthy", "unit_colour",
-    "unit_colours", "zone_labels",
+    "unit_colours", "zone_labels", "zone_style", "zone_thresholds", "zone_tier_label",
+    "zone_tiers_note",
 ]

@@ -21,6 +21,15 @@ documented default)::
     effective_porosity = 0.30
     k_default_m_s = 1e-4
     k_method = "hazen"
+
+Zones come in two tiers (:class:`ScreeningThresholds`): ``p_window_threshold`` and
+``p_thin_threshold`` set the *likely* tier, ``p_window_possible_threshold`` and
+``p_thin_possible_threshold`` the *possible* tier, the risk tolerance (what the holes cannot
+rule out)::
+
+    [screening]
+    p_window_possible_threshold = 0.15
+    p_thin_possible_threshold = 0.15
 """
 
 from __future__ import annotations
@@ -194,10 +203,19 @@ class ScreeningThresholds:
         zone_basis: ``"probability"`` (window and thin zones where P(window) or P(thin)
             reaches its threshold) or ``"kriged_thickness"`` (where the kriged thickness is
             below the thickness threshold).
-        p_window_threshold: a cell is a window when P(total aquitard thinner than
-            ``window_thickness_m``) is at least this.
-        p_thin_threshold: a cell is thin when P(thinner than ``thin_thickness_m``) is at
-            least this (and it is not a window).
+        p_window_threshold: the *likely* window tier: a cell is a likely window when
+            P(total aquitard thinner than ``window_thickness_m``) is at least this (and a
+            hole proving a window lies within ``window_proof_radius_m``).
+        p_thin_threshold: the *likely* thin tier: a cell is likely thin when P(thinner
+            than ``thin_thickness_m``) is at least this (and it is not a likely window).
+        p_window_possible_threshold: the *possible* window tier, the risk tolerance for
+            windows: a cell is a possible window when P(window) is at least this (a window
+            the holes cannot rule out); ``0 < possible <= p_window_threshold``.
+        p_thin_possible_threshold: the *possible* thin tier likewise, from P(thin);
+            ``0 < possible <= p_thin_threshold``. Lowering either possible threshold flags
+            more ground (fewer missed windows, more false alarms); where two tiers apply
+            to a cell, likely beats possible, then window beats thin
+            (:func:`aquitardmap.screening.zone_tier_masks`).
         probability_draws: Monte Carlo draws of the censored data behind the probabilities.
         probability_seed: seed of those draws (the same seed gives the same grids).
         probability_variance_from_cv: scale the variogram behind the probabilities so that
@@ -206,8 +224,9 @@ class ScreeningThresholds:
             hole that proves a window (m; :func:`aquitardmap.probability.censored_data`).
         window_proof_radius_m: with probability zones, a cell is a window zone only within
             this distance of a hole that proves a window (or where a mapped hazard removes
-            clay); a likely window farther from any such hole is flagged thin (m;
-            :func:`aquitardmap.screening.zone_masks`).
+            clay) for the likely tier; a likely window farther from any such hole is a
+            possible window (m; :func:`aquitardmap.screening.zone_tier_masks`). Also the
+            distance within which a proving hole supports a zone (``supporting_holes``).
         probability_method: how P(window) and P(thin) are made: ``"indicator"`` (default;
             indicator kriging with continuity along chains of proving holes,
             :mod:`aquitardmap.indicator`) or ``"latent_gaussian"`` (a truncated Gaussian of
@@ -227,8 +246,11 @@ class ScreeningThresholds:
     piercing_radius_m: float = 500.0
     piercing_flag_per_km2: float = 10.0
     zone_basis: str = "probability"
+    # Provisional tier thresholds, to be set from measurements over many regions.
     p_window_threshold: float = 0.5
-    p_thin_threshold: float = 0.6
+    p_thin_threshold: float = 0.5
+    p_window_possible_threshold: float = 0.15
+    p_thin_possible_threshold: float = 0.15
     probability_draws: int = 64
     probability_seed: int = 0
     probability_variance_from_cv: bool = True
@@ -238,6 +260,9 @@ class ScreeningThresholds:
     continuity_ratio: float = 4.0
     chain_corridor_m: float = 150.0
     location_sd_m: float = 20.0
+
+
+_SCREENING_DEFAULTS = ScreeningThresholds()
 
 
 @dataclass(frozen=True)
@@ -926,10 +951,20 @@ def read_project(folder: str | Path) -> Project:
                                       "screening", low=0, low_open=True),
         zone_basis=_choice(problems, path, text, sc, "zone_basis", "probability", "screening",
                            ZONE_BASES),
-        p_window_threshold=_number(problems, path, text, sc, "p_window_threshold", 0.5,
-                                   "screening", low=0, low_open=True, high=1.0),
-        p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold", 0.6,
-                                 "screening", low=0, low_open=True, high=1.0),
+        p_window_threshold=_number(problems, path, text, sc, "p_window_threshold",
+                                   _SCREENING_DEFAULTS.p_window_threshold, "screening",
+                                   low=0, low_open=True, high=1.0),
+        p_thin_threshold=_number(problems, path, text, sc, "p_thin_threshold",
+                                 _SCREENING_DEFAULTS.p_thin_threshold, "screening", low=0,
+                                 low_open=True, high=1.0),
+        p_window_possible_threshold=_number(
+            problems, path, text, sc, "p_window_possible_threshold",
+            _SCREENING_DEFAULTS.p_window_possible_threshold, "screening", low=0,
+            low_open=True, high=1.0),
+        p_thin_possible_threshold=_number(
+            problems, path, text, sc, "p_thin_possible_threshold",
+            _SCREENING_DEFAULTS.p_thin_possible_threshold, "screening", low=0, low_open=True,
+            high=1.0),
         probability_draws=int(_number(problems, path, text, sc, "probability_draws", 64,
                                       "screening", low=8, high=5000, integer=True)),
         probability_seed=int(_number(problems, path, text, sc, "probability_seed", 0,
@@ -940,18 +975,30 @@ def read_project(folder: str | Path) -> Project:
                                       "screening", low=0, low_open=True),
         window_proof_radius_m=_number(problems, path, text, sc, "window_proof_radius_m", 300.0,
                                       "screening", low=0),
-        probability_method=_choice(problems, path, text, sc, "probability_method", "indicator",
-                                   "screening", PROBABILITY_METHODS),
-        continuity_ratio=_number(problems, path, text, sc, "continuity_ratio", 4.0,
-                                 "screening", low=1.0, high=20.0),
-        chain_corridor_m=_number(problems, path, text, sc, "chain_corridor_m", 150.0,
-                                 "screening", low=0),
-        location_sd_m=_number(problems, path, text, sc, "location_sd_m", 20.0, "screening",
-                              low=0, high=1000.0),
+        probability_method=_choice(problems, path, text, sc, "probability_method",
+                                   _SCREENING_DEFAULTS.probability_method, "screening",
+                                   PROBABILITY_METHODS),
+        continuity_ratio=_number(problems, path, text, sc, "continuity_ratio",
+                                 _SCREENING_DEFAULTS.continuity_ratio, "screening", low=1.0,
+                                 high=20.0),
+        chain_corridor_m=_number(problems, path, text, sc, "chain_corridor_m",
+                                 _SCREENING_DEFAULTS.chain_corridor_m, "screening", low=0),
+        location_sd_m=_number(problems, path, text, sc, "location_sd_m",
+                              _SCREENING_DEFAULTS.location_sd_m, "screening", low=0,
+                              high=1000.0),
     )
     if screening.thin_thickness_m < screening.window_thickness_m:
         problems.add(path, *_locate(text, "thin_thickness_m", "screening"),
                      "[screening] thin_thickness_m must be >= window_thickness_m")
+    for kind in ("window", "thin"):
+        likely = getattr(screening, f"p_{kind}_threshold")
+        possible = getattr(screening, f"p_{kind}_possible_threshold")
+        if possible > likely:
+            key = (f"p_{kind}_possible_threshold" if f"p_{kind}_possible_threshold" in sc
+                   else f"p_{kind}_threshold")
+            problems.add(path, *_locate(text, key, "screening"),
+                         f"[screening] p_{kind}_possible_threshold ({possible:g}, the possible "
+                         f"tier) must be <= p_{kind}_threshold ({likely:g}, the likely tier)")
     q = _section(problems, path, text, cfg, "qa", tables)
     excl = q.get("exclude_boreholes", [])
     if not isinstance(excl, list) or not all(isinstance(e, str | int) for e in excl):

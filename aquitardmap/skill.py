@@ -6,9 +6,10 @@ This module answers it on a project that carries its truth (``truth/aquitard_thi
 written by :func:`aquitardmap.synthetic.make_synthetic_region`).
 
 Baseline (issue 3): the kriged total thickness (ordinary kriging) thresholded at the window
-and thin thicknesses. Tool: the window and thin zones the run draws
+and thin thicknesses. Tool: the likely tier of the window and thin zones the run draws
 (:func:`aquitardmap.screening.zone_masks`: cells where P(thinner than the threshold)
-reaches the configured probability threshold, windows only near a hole that proves one);
+reaches the configured likely threshold, windows only near a hole that proves one, and the
+cells holding a hole that proves a window or thin clay);
 hazards and the crust are left out (the truth is the thickness of the clay as laid down);
 the thin zones include the window zones. Scores, cell by cell on the study area: *area
 recall* (share of the truth's cells below the threshold that are flagged) and *area
@@ -205,11 +206,12 @@ def zone_skill(project_dir: str | Path, *,
     """
     from aquitardmap.pipeline import (
         aquitard_probabilities,
+        borehole_table,
         build_surfaces,
         load_inputs,
         window_proof_grid,
     )
-    from aquitardmap.screening import zone_masks
+    from aquitardmap.screening import proving_hole_cells, zone_masks
 
     inputs = _with_overrides(load_inputs(project_dir), overrides)
     with warnings.catch_warnings():
@@ -224,9 +226,12 @@ def zone_skill(project_dir: str | Path, *,
     pw, pt = probs.p_below["window"][m], probs.p_below["thin"][m]
     win, thin = truth[m] < th.window_thickness_m, truth[m] < th.thin_thickness_m
     proven = window_proof_grid(inputs)
+    holes = borehole_table(inputs)
+    window_holes, thin_holes = proving_hole_cells(holes[~holes["excluded"]], inputs.grid)
     zones = zone_masks(total.thickness_m, np.full(m.shape, np.nan), inputs.grid, th,
                        p_window=probs.p_below["window"], p_thin=probs.p_below["thin"],
-                       window_proven=proven)
+                       window_proven=proven, window_holes=window_holes,
+                       thin_holes=thin_holes, tiers=("likely",))
     baseline = {"window": score_cells(est < th.window_thickness_m, win),
                 "thin": score_cells(est < th.thin_thickness_m, thin)}
     return {

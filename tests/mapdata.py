@@ -42,8 +42,13 @@ def thickness_at(x: float) -> float:
     return 30.0 * (x - X0) / 1000.0
 
 
-def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True) -> None:
-    """Write a tiny run folder: 9 grids (no cover grid), 3 zones, 3 boreholes, summary."""
+def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True,
+                     tiers: bool = False) -> None:
+    """Write a tiny run folder: 9 grids (no cover grid), 3 zones, 3 boreholes, summary.
+
+    With ``tiers`` the zones are drawn in tiers, as a probability run writes them: the
+    window zone likely, the thin zone possible (with supporting holes, one a hostile id),
+    and the summary says so (likely 0.5 / 0.5, possible 0.15 / 0.2)."""
     run_dir.mkdir(parents=True, exist_ok=True)
     grid = make_grid(study_area(), CELL_M, CRS_UTM32)
     assert (grid.width, grid.height) == (20, 15)
@@ -81,6 +86,13 @@ def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True)
                   box(X0 + 300, Y0, X0 + 350, Y0 + 150)],
         crs=CRS_UTM32,
     )
+    if tiers:
+        zones["tier"] = ["likely", "possible", ""]
+        zones["probability"] = [0.8, 0.61, np.nan]  # thin: its mean_p_thin
+        zones["max_probability"] = [0.97, 0.8, np.nan]
+        zones["p_threshold"] = [0.5, 0.2, np.nan]
+        zones["supporting_holes"] = ["OV-101", f"OV-101,{EVIL_ID}", ""]
+        zones["n_supporting_holes"] = [1, 2, 0]
     zones.to_file(run_dir / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
     holes = gpd.GeoDataFrame(
         {
@@ -118,4 +130,17 @@ def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True)
                            "fast_travel_time_yr": 100.0},
             "hydraulics": {"gradient_assumption": "uniform vertical gradient (unit gradient)"},
             "caution": outputs.CAUTION,
+            **({"zones": {"basis": "probability", "tiers": ["likely", "possible"],
+                          "p_window_threshold": 0.5, "p_thin_threshold": 0.5,
+                          "p_window_possible_threshold": 0.15,
+                          "p_thin_possible_threshold": 0.2, "window_proof_radius_m": 300.0,
+                          "area_m2_by_kind": {"window": 25_000.0, "thin": 1_250_000.0,
+                                              "fast": 7_500.0, "pierced": 0.0},
+                          "count_by_kind": {"window": 1, "thin": 1, "fast": 1, "pierced": 0},
+                          "area_m2_by_kind_and_tier": {
+                              "window": {"likely": 25_000.0, "possible": 0.0},
+                              "thin": {"likely": 0.0, "possible": 1_250_000.0}},
+                          "count_by_kind_and_tier": {"window": {"likely": 1, "possible": 0},
+                                                     "thin": {"likely": 0, "possible": 1}}}}
+               if tiers else {}),
         }), encoding="utf-8")

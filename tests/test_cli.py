@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import shutil
 import subprocess
 import sys
@@ -43,6 +44,15 @@ def test_run_writes_outputs_and_replaces_a_previous_run(project, tmp_path):
     assert r.returncode == 0, r.stderr
     assert (out / outputs.MAP).exists() and (out / outputs.SUMMARY).exists()
     first = (out / outputs.SUMMARY).read_text()
+    # The flagged areas printed after the run are those of summary.json, window and thin
+    # split by tier (the total first).
+    zones = json.loads(first)["zones"]
+    printed = " ".join((r.stdout + r.stderr).split())
+    for kind in ("window", "thin"):
+        tiers = zones["area_m2_by_kind_and_tier"][kind]
+        assert (f"{kind} {zones['area_m2_by_kind'][kind] / 1e6:.2f} km² (likely "
+                f"{tiers['likely'] / 1e6:.2f}, possible {tiers['possible'] / 1e6:.2f})"
+                in printed), printed
     r = _cli("run", project, "--out", out)
     assert r.returncode == 0, r.stderr
     assert (out / outputs.SUMMARY).read_text() != first  # a new run (new start time)

@@ -153,7 +153,7 @@ def test_defaults_of_the_new_keys(tmp_path):
     assert p.kriging.nested_model == "" and p.kriging.anisotropy == "none"
     assert p.kriging.variograms == {}
     assert p.screening.zone_basis == "probability"
-    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.6)
+    assert (p.screening.p_window_threshold, p.screening.p_thin_threshold) == (0.5, 0.5)
     assert p.kriging.external_drift == "auto"
     assert p.screening.probability_variance_from_cv is True
     assert p.screening.window_latent_floor_m == 3.0

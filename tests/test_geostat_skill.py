@@ -2,8 +2,9 @@
 
 Baseline (issue 3): the kriged total thickness (ordinary kriging) thresholded at the window
 (1 m) and thin (5 m) thresholds. Tool: cells where P(thinner than the threshold) reaches the
-configured probability threshold (``p_window_threshold`` 0.5 and ``p_thin_threshold`` 0.6 by
-default), the probabilities honouring holes that prove a window and holes that stopped in
+configured likely-tier probability threshold (``p_window_threshold`` 0.5 and
+``p_thin_threshold`` 0.5 by default) and the cells holding a hole that proves a window or
+thin clay, the probabilities honouring holes that prove a window and holes that stopped in
 the clay, with the ground elevation as an external drift where cross-validation favours it
 and the variance level set by cross-validation (:mod:`aquitardmap.probability`,
 :mod:`aquitardmap.drift`). Scores: area recall (share of the truth's cells below the
@@ -61,12 +62,17 @@ def skill(request, tmp_path_factory):
 #: over 8 seeded regions of each character (``benchmarks/bench_zone_skill.py``) the rule
 #: holds for the thin zones in most esker and bedrock regions and for the window zones in
 #: few (README), which this test does not hide by its choice of regions.
+#: The tool here is the likely tier of the zones. Issue 15 withdrew issue 3's rule; with the
+#: provisional likely thin threshold 0.5 (was 0.6) the thin zones find more (demo recall
+#: 0.265 against 0.159) at a precision a little below the baseline's (0.900 against 0.919;
+#: channel_cut 0.901), so the thin rows of those two regions are floors from these
+#: measured figures until the probability work sets the final defaults.
 MIN_RECALL_GAIN = 0.01
 EXPECT = {
-    "demo": {"window": "criterion", "thin": "criterion"},
+    "demo": {"window": "criterion", "thin": {"recall_gain": 0.09, "precision": 0.89}},
     "bedrock_highs": {"window": "criterion", "thin": "criterion"},
     "channel_cut": {"window": {"recall_gain": 0.28, "precision": 0.90},
-                    "thin": {"recall_gain": 0.13, "precision": 0.92}},
+                    "thin": {"recall_gain": 0.17, "precision": 0.89}},
 }
 
 

@@ -90,9 +90,30 @@ def test_flagged_area_table_lists_each_zone(tiny_report):
     table = text[text.index("Flagged areas"):]
     # Window 25 000 m² = 2.5 ha, thin 1 250 000 m² = 1.25 km², fast 7 500 m² = 0.75 ha,
     # printed to one decimal (1 ha = 10⁴ m², 1 km² = 10⁶ m²); P(thin) 0.93 -> 93 %.
-    assert re.search(r"1 Window 2\.5 ha 0\.40 0 1\.1 93 % under 1 day 1", table)
-    assert re.search(r"2 Thin clay 1\.25 km² 3\.2 2\.0 1\.4 61 % 2\.5 years 0", table)
-    assert re.search(r"3 Fast path 0\.8 ha 6\.0 5\.5 2\.0 20 % 30 years 0", table)
+    # No tier in this run folder ("—"); the chance falls back to the mean P(thin).
+    assert re.search(r"1 Window — 2\.5 ha 0\.40 0 1\.1 93 % under 1 day 1", table)
+    assert re.search(r"2 Thin clay — 1\.25 km² 3\.2 2\.0 1\.4 61 % 2\.5 years 0", table)
+    assert re.search(r"3 Fast path — 0\.8 ha 6\.0 5\.5 2\.0 20 % 30 years 0", table)
+
+
+@needs_poppler
+def test_report_shows_the_zone_tiers(tmp_path):
+    build_run_folder(tmp_path, tiers=True)
+    text = _text(write_report(tmp_path))
+    results = text[text.index("Thresholds and results"):text.index("Caution")]
+    # Areas by kind (all tiers) and by tier: 25 000 m² = 2.5 ha, 1 250 000 m² = 1.25 km².
+    assert re.search(r"Window: clay absent \(under 0\.5 m\), all tiers 1 2\.5 ha "
+                     r"likely \(chance at least 50 %\) 1 2\.5 ha "
+                     r"possible: cannot be ruled out \(chance at least 15 %\) 0 0\.0 ha", results)
+    assert re.search(r"possible: cannot be ruled out \(chance at least 20 %\) 1 1\.25 km²",
+                     results)
+    assert "Window and thin zones come in two tiers" in results
+    table = text[text.index("Flagged areas"):]
+    # Tier, chance (mean, highest) and the count of proving holes of each zone.
+    assert re.search(r"1 Window likely 2\.5 ha 0\.40 0 1\.1 80 % 97 % under 1 day 1 1", table)
+    assert re.search(r"2 Thin clay possible 1\.25 km² 3\.2 2\.0 1\.4 61 % 80 % 2\.5 years 0 2",
+                     table)
+    assert "Zone tiers" in text and "p_window_possible_threshold" in text
 
 
 @needs_poppler

@@ -77,6 +77,104 @@ def test_every_hole_that_proves_a_window_lies_in_a_window_or_thin_zone(demo_run)
     assert proving.within(area).all(), proving.loc[~proving.within(area), "borehole_id"]
 
 
+ZONE_COLUMNS = ["kind", "tier", "area_m2", "reason", "mean_thickness_m", "min_thickness_m",
+                "mean_sd_m", "mean_p_thin", "mean_p_window", "probability", "max_probability",
+                "p_threshold", "mean_travel_time_yr", "n_boreholes", "supporting_holes",
+                "n_supporting_holes", "n_cells", "n_cells_unproven_window",
+                "n_cells_from_holes", "mean_piercing_per_km2"]
+
+
+def test_zones_gpkg_carries_tiers_probabilities_and_supporting_holes(demo_run):
+    zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    assert set(ZONE_COLUMNS) <= set(zones.columns)
+    tiered = zones[zones["kind"].isin(["window", "thin"])]
+    others = zones[~zones["kind"].isin(["window", "thin"])]
+    assert set(tiered["tier"]) == {"likely", "possible"} and set(others["tier"]) == {""}
+    assert (tiered["max_probability"] >= tiered["probability"] - 1e-9).all()
+    assert others["max_probability"].isna().all()
+    # Supporting holes: the ids listed are holes proving thin clay (or a window) within
+    # window_proof_radius_m of the zone (shapely distances as the reference).
+    bh = demo_run.boreholes.set_index("borehole_id")
+    radius = demo_run.inputs.project.screening.window_proof_radius_m
+    n_listed = 0
+    for z in tiered.itertuples():
+        ids = [i for i in z.supporting_holes.split(",") if i]
+        assert len(ids) == z.n_supporting_holes
+        for i in ids:
+            assert bh.loc[i, "proves_thin"] and not bh.loc[i, "excluded"]
+            assert bh.loc[i, "geometry"].distance(z.geometry) <= radius + 1e-6
+        n_listed += len(ids)
+    assert n_listed > 0 and (others["supporting_holes"] == "").all()
+    th = demo_run.inputs.project.screening
+    for tier, col in (("likely", "p_window_threshold"), ("possible",
+                                                         "p_window_possible_threshold")):
+        win = tiered[(tiered["kind"] == "window") & (tiered["tier"] == tier)]
+        assert np.all(win["p_threshold"] == getattr(th, col))
+    assert tiered["reason"].str.contains("tier likely: the probability is at least|tier "
+                                         "possible: cannot be ruled out").all()
+
+
+def test_holes_proving_a_window_or_thin_clay_lie_in_likely_zones(demo_run):
+    # Hard data honoured: each used hole proving a window lies in a likely window zone, each
+    # proving thin clay in a likely window or thin zone.
+    zones = gpd.read_file(demo_run.out_dir / outputs.ZONES, layer=outputs.ZONES_LAYER)
+    bh = demo_run.boreholes[~demo_run.boreholes["excluded"].astype(bool)]
+    likely = zones[zones["tier"] == "likely"]
+    window = likely[likely["kind"] == "window"].union_all()
+    both = likely[likely["kind"].isin(["window", "thin"])].union_all()
+    proving_window = bh[bh["proves_window"].astype(bool)]
+    proving_thin = bh[bh["proves_thin"].astype(bool)]
+    assert len(proving_window) >= 5 and len(proving_thin) > len(proving_window)
+    assert proving_window.within(window).all()
+    assert proving_thin.within(both).all()
+
+
+def test_proving_holes_are_zones_even_where_the_probabilities_say_0(demo_run):
+    # The screening stage fed probability grids of 0 everywhere: no zone but the cells of
+    # the holes that prove a window (likely windows) or thin clay (likely thin).
+    from dataclasses import replace
+
+    from aquitardmap.pipeline import screen
+
+    zero = np.where(demo_run.inputs.grid.mask, 0.0, np.nan)
+    probs = replace(demo_run.probabilities, p_below={"window": zero, "thin": zero})
+    _, zones = screen(demo_run.inputs, demo_run.surfaces, demo_run.hydraulics,
+                      demo_run.boreholes, probabilities=probs)
+    bh = demo_run.boreholes[~demo_run.boreholes["excluded"].astype(bool)]
+    g = demo_run.inputs.grid
+    for kind, col in (("window", "proves_window"), ("thin", "proves_thin")):
+        holes = bh[bh[col].astype(bool)]
+        if kind == "thin":
+            holes = holes[~holes["proves_window"].astype(bool)]
+        r, c = g.rowcol(holes["x"].to_numpy(), holes["y"].to_numpy())
+        # Holes sharing a cell count once; a thin hole sharing a window hole's cell is in
+        # the window zone.
+        cells = set(zip(r, c, strict=True))
+        if kind == "thin":
+            rw, cw = g.rowcol(*(bh.loc[bh["proves_window"].astype(bool), k].to_numpy()
+                                for k in ("x", "y")))
+            cells -= set(zip(rw, cw, strict=True))
+        z = zones[zones["kind"] == kind]
+        assert set(z["tier"]) == {"likely"}
+        assert int(z["n_cells"].sum()) == len(cells) == int(z["n_cells_from_holes"].sum())
+        assert holes.within(zones[zones["kind"].isin(["window", "thin"])].union_all()).all()
+        assert z["reason"].str.contains("flagged likely whatever the probability").all()
+
+
+def test_summary_areas_by_tier_add_up_to_the_areas_by_kind(demo_run):
+    z = demo_run.summary["zones"]
+    th = demo_run.inputs.project.screening
+    for kind in ("window", "thin"):
+        by_tier = z["area_m2_by_kind_and_tier"][kind]
+        assert set(by_tier) == {"likely", "possible"}
+        assert sum(by_tier.values()) == pytest.approx(z["area_m2_by_kind"][kind])
+        assert sum(z["count_by_kind_and_tier"][kind].values()) == z["count_by_kind"][kind]
+    assert z["p_window_possible_threshold"] == th.p_window_possible_threshold
+    assert z["p_thin_possible_threshold"] == th.p_thin_possible_threshold
+    assert demo_run.summary["thresholds"]["p_thin_possible_threshold"] == \
+        th.p_thin_possible_threshold
+
+
 def test_holes_stopped_in_thick_clay_create_no_thin_zone(demo_run):
     # A geotechnical hole that went through >= 5 m of clay without reaching the base proves
     # >= 5 m there: its cell must not be flagged thin or window (DOMAIN §3, common practice).

@@ -173,3 +173,36 @@ def test_byte_order_mark_is_accepted(tmp_path):
     _project(tmp_path, MINIMAL)
     (tmp_path / "project.toml").write_bytes(b"\xef\xbb\xbf" + MINIMAL.encode())
     assert read_project(tmp_path).name == "Test"
+
+
+def test_zone_tiers_have_documented_defaults_and_are_read(tmp_path):
+    p = read_project(_project(tmp_path, MINIMAL))
+    s = p.screening
+    assert (s.p_window_threshold, s.p_thin_threshold) == (0.5, 0.5)
+    assert (s.p_window_possible_threshold, s.p_thin_possible_threshold) == (0.15, 0.15)
+    p = read_project(_project(tmp_path, MINIMAL + "\n[screening]\np_window_threshold = 0.6\n"
+                              "p_window_possible_threshold = 0.6\n"
+                              "p_thin_possible_threshold = 0.05\n"))
+    s = p.screening
+    assert (s.p_window_possible_threshold, s.p_thin_possible_threshold) == (0.6, 0.05)
+
+
+@pytest.mark.parametrize(("lines", "line", "words"), [
+    # possible above likely: pointed at the possible threshold's line (line 20 here)
+    ("p_window_threshold = 0.4\np_window_possible_threshold = 0.5\n", 20,
+     "[screening] p_window_possible_threshold (0.5, the possible tier) must be <= "
+     "p_window_threshold (0.4, the likely tier)"),
+    # only the likely threshold set, below the default possible one: pointed at it
+    ("p_thin_threshold = 0.1\n", 19,
+     "[screening] p_thin_possible_threshold (0.15, the possible tier) must be <= "
+     "p_thin_threshold (0.1, the likely tier)"),
+    ("p_thin_possible_threshold = 0\n", 19, "[screening] p_thin_possible_threshold must be > 0"),
+    ("p_window_possible_threshold = 1.2\n", 19,
+     "[screening] p_window_possible_threshold must be <= 1.0"),
+    ('p_window_possible_threshold = "low"\n', 19,
+     "[screening] p_window_possible_threshold must be a number"),
+])
+def test_zone_tier_thresholds_are_checked_at_their_line(tmp_path, lines, line, words):
+    probs = _problems(tmp_path, MINIMAL + "\n[screening]\n" + lines)
+    assert any(p.file == "project.toml" and p.line == line and p.column == 1
+               and words in p.message for p in probs), probs

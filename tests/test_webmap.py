@@ -495,3 +495,68 @@ def test_variogram_figures_are_linked_and_odd_names_are_not() -> None:
     assert "javascript" not in text and "secret" not in text
     assert "Variograms (figures beside this map)" in header_html(summary, "")
     assert figure_links_html({}) == ""
+
+
+@pytest.fixture(scope="module")
+def tiered_run(tmp_path_factory: pytest.TempPathFactory) -> str:
+    """Map html of the tiny run with its window and thin zones drawn in tiers."""
+    run_dir = tmp_path_factory.mktemp("tiered")
+    build_run_folder(run_dir, tiers=True)
+    return write_map(run_dir).read_text(encoding="utf-8")
+
+
+def _zone_legend_rows(page: str) -> list[tuple[str, str]]:
+    """(swatch style, plain text) of each row of the zones legend."""
+    body = re.search(r'<div class="aqm-legend aqm-sub" id="aqm-legend-zones">(.*?)</div>'
+                     r'(?!<div class="aqm-row)', page, re.S).group(1)
+    rows = re.findall(r'<div class="aqm-row"><span class="aqm-swatch" style="([^"]*)">'
+                      r"</span>(.*?)(?=<div class=\"aqm-row\"|$)", body, re.S)
+    return [(style, html.unescape(re.sub(r"<[^>]+>", "", text)).strip())
+            for style, text in rows]
+
+
+def test_map_legend_lists_each_kind_and_tier(tiered_run: str, tmp_path: Path) -> None:
+    rows = _zone_legend_rows(tiered_run)
+    texts = [t for _, t in rows]
+    assert texts[:4] == [
+        "Window: clay absent (under 0.5 m), likely (chance at least 50 %) — 1 zone, 2.5 ha",
+        "Window: clay absent (under 0.5 m), possible: cannot be ruled out (chance at least "
+        "15 %) — none",
+        "Thin clay (under 5 m), likely (chance at least 50 %) — none",
+        "Thin clay (under 5 m), possible: cannot be ruled out (chance at least 20 %) — 1 "
+        "zone, 1.25 km²",
+    ]
+    assert texts[4].startswith("Fast path")
+    # The possible tier: the same colour, a light fill and a broken outline.
+    likely, possible = rows[0][0], rows[1][0]
+    assert "background:#d7191c;" in likely and "dashed" not in likely
+    assert "background:#d7191c33;" in possible and "border-style:dashed" in possible
+    # An untiered run keeps one row per kind.
+    build_run_folder(tmp_path)
+    untiered = [t for _, t in _zone_legend_rows(write_map(tmp_path).read_text())]
+    assert [t.split(" — ")[0] for t in untiered][:2] == ["Window: clay absent (under 0.5 m)",
+                                                         "Thin clay (under 5 m)"]
+
+
+def test_zone_tooltip_and_style_say_the_tier_and_the_proving_holes(tiered_run: str) -> None:
+    feats = {f["properties"]["kind"]: f for g in _geojson_payloads(tiered_run)
+             for f in g["features"] if "kind" in f["properties"]}
+    win, thin = feats["window"]["properties"], feats["thin"]["properties"]
+    assert (win["tier"], thin["tier"], feats["fast"]["properties"]["tier"]) == \
+        ("likely", "possible", "")
+    assert "Tier: <b>likely (chance at least 50 %)</b>" in win["tooltip_html"]
+    assert ("Tier: <b>possible: cannot be ruled out (chance at least 20 %)</b> — a hole here "
+            "would tell" in thin["tooltip_html"])
+    assert "Chance the clay is thin (mean over the zone): 61 %, highest 80 %" in \
+        thin["tooltip_html"]
+    # Supporting hole ids are listed, escaped.
+    assert ("in or near the zone: OV-101, &lt;img src=x onerror=alert(1)&gt;"
+            in thin["tooltip_html"])
+    assert "Holes proving" not in feats["fast"]["properties"]["tooltip_html"]
+    # The run notes give both tiers' thresholds and the rule.
+    assert "Window, possible tier (cannot be ruled out): P(window) is at least</td><td>0.15" \
+        in tiered_run
+    assert "Thin, possible tier (cannot be ruled out): P(thin) is at least</td><td>0.2" in \
+        tiered_run
+    assert "the higher tier first, then window before thin" in tiered_run
+    assert "Thin area by tier</td><td>likely 0.0 ha, possible 1.25 km²" in tiered_run

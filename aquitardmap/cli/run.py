@@ -16,8 +16,24 @@ from aquitardmap.cli.compare import compare_and_report
 from aquitardmap.compare import check_run, default_changes_dir
 from aquitardmap.pipeline import run
 from aquitardmap.project import ComputeSettings, read_project
-from aquitardmap.screening import ZONE_KINDS
+from aquitardmap.screening import ZONE_KINDS, ZONE_TIERS
 from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
+
+
+def flagged_area_words(zones: dict) -> str:
+    """The flagged area of each zone kind in km² (summary.json ``zones``), window and thin
+    split by tier when they were drawn in tiers: ``window 0.45 km² (likely 0.20, possible
+    0.25)``."""
+    areas = zones.get("area_m2_by_kind", {})
+    by_tier = zones.get("area_m2_by_kind_and_tier") or {}
+    parts = []
+    for k in ZONE_KINDS:
+        text = f"{k} {areas.get(k, 0.0) / 1e6:.2f} km²"
+        if k in by_tier:
+            text += " (" + ", ".join(f"{t} {by_tier[k].get(t, 0.0) / 1e6:.2f}"
+                                     for t in ZONE_TIERS) + ")"
+        parts.append(text)
+    return ", ".join(parts)
 
 
 @click.command("run")
@@ -105,10 +121,8 @@ def _run(project: Path, out_dir: Path, offline_map: bool, compute_mode: str | No
                                      refit_variograms=refit_variograms), debug)
         bar.update(task, description="Done", completed=5)
     s = result.summary
-    areas = s["zones"]["area_m2_by_kind"]
     console.print(f"Wrote {len(s['outputs'])} files to {result.out_dir}", markup=False)
-    console.print("Flagged area: " + ", ".join(f"{k} {areas.get(k, 0.0) / 1e6:.2f} km²"
-                                               for k in ZONE_KINDS))
+    console.print("Flagged area: " + flagged_area_words(s["zones"]), markup=False)
     times = ", ".join(f"{k} {v:.1f} s" for k, v in s["run"].get("stage_seconds", {}).items())
     if times:
         console.print(f"Time per stage: {times}", markup=False)

@@ -7,8 +7,10 @@ The map is a folium (Leaflet) page. It reads only what the run folder holds, by 
   hashes under "About this run") and a caution bar that the map never covers;
 * every grid as a shaded layer, one at a time, chosen in a panel grouped by meaning, with
   an opacity slider and a legend in physical units (:mod:`aquitardmap.presentation`);
-* the flagged zones (window / thin / fast / pierced) with a tooltip saying kind, area,
-  probability, thickness and the reason;
+* the flagged zones (window / thin / fast / pierced; window and thin in a likely and a
+  possible tier, the possible one lighter with a dash-dot outline) with a tooltip saying
+  kind, tier, area, probability, thickness, the holes proving a window or thin clay near
+  it and the reason;
 * the boreholes, coloured by what they prove, with a popup giving the log as a strip
   diagram and its values;
 * the study-area outline, a scale bar, and a click read-out of coordinates (WGS 84 and the
@@ -191,7 +193,7 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
 
     zones = read_layer(run_dir / outputs.ZONES, outputs.ZONES_LAYER, crs, LONLAT)
     if zones is not None:
-        layer, rows = zones_layer(zones, zone_labels(summary))
+        layer, rows = zones_layer(zones, zone_labels(summary), summary)
         layer.add_to(fmap)
         layers["zones"] = (layer.get_name(), "aqm-legend-zones")
         toggles.append(("zones", "Flagged zones", True,

@@ -20,7 +20,6 @@ from shapely.ops import unary_union
 from aquitardmap.presentation import (
     HOLE_STYLES,
     ZONE_COLOURS,
-    ZONE_DASHES,
     ZONE_OTHER_COLOUR,
     finite_float,
     fmt_area,
@@ -29,7 +28,10 @@ from aquitardmap.presentation import (
     fmt_years,
     hole_category_of,
     truthy,
+    zone_style,
+    zone_tier_label,
 )
+from aquitardmap.screening import TIERED_KINDS, ZONE_TIERS
 from aquitardmap.webmap.markup import esc
 from aquitardmap.webmap.overlays import LONLAT
 from aquitardmap.webmap.striplog import parse_log, strip_log_svg
@@ -70,18 +72,35 @@ def feature_collection(gdf: gpd.GeoDataFrame, properties: list[dict[str, Any]]
 # --------------------------------------------------------------------------- zones
 
 
-def zone_tooltip(row: dict[str, Any], labels: dict[str, str]) -> str:
-    """Tooltip HTML of one zone: kind, area, probability, thickness, reason."""
+def _zone_tier(row: dict[str, Any]) -> str:
+    tier = _text(row.get("tier")).lower()
+    return tier if tier in ZONE_TIERS else ""
+
+
+def zone_tooltip(row: dict[str, Any], labels: dict[str, str],
+                 summary: dict[str, Any] | None = None) -> str:
+    """Tooltip HTML of one zone: kind, tier, area, probability, thickness, supporting
+    holes, reason."""
     kind = _text(row.get("kind")).lower()
+    tier = _zone_tier(row)
     label = esc(labels.get(kind, f"Zone ({_text(row.get('kind')) or 'unspecified'})"))
-    lines = [f"<b>{label}</b>", f"Area: {fmt_area(finite_float(row.get('area_m2')))}"]
+    lines = [f"<b>{label}</b>"]
+    if tier:
+        lines.append(f"Tier: <b>{esc(zone_tier_label(summary or {}, kind, tier))}</b>"
+                     + (" — a hole here would tell" if tier == "possible" else ""))
+    lines.append(f"Area: {fmt_area(finite_float(row.get('area_m2')))}")
+    p_max = finite_float(row.get("max_probability"))
     p_thin = finite_float(row.get("mean_p_thin"))
     if p_thin is not None:
-        lines.append(f"Chance the clay is thin (mean over the zone): {fmt_percent(p_thin)}")
+        most = f", highest {fmt_percent(p_max)}" if kind == "thin" and p_max is not None else ""
+        lines.append(f"Chance the clay is thin (mean over the zone): {fmt_percent(p_thin)}"
+                     + most)
     p_window = finite_float(row.get("mean_p_window"))
     if p_window is not None:
+        most = (f", highest {fmt_percent(p_max)}" if kind == "window" and p_max is not None
+                else "")
         lines.append(f"Chance the clay is absent (mean over the zone): "
-                     f"{fmt_percent(p_window)}")
+                     f"{fmt_percent(p_window)}{most}")
     lines.append(f"Clay thickness: mean {fmt_m(finite_float(row.get('mean_thickness_m')))}, least "
                  f"{fmt_m(finite_float(row.get('min_thickness_m')))}, uncertainty ± "
                  f"{fmt_m(finite_float(row.get('mean_sd_m')))}")
@@ -93,33 +112,53 @@ def zone_tooltip(row: dict[str, Any], labels: dict[str, str]) -> str:
         lines.append(f"Travel time to the aquifer (mean): {fmt_years(travel)}")
     n = finite_float(row.get("n_boreholes"))
     lines.append(f"Boreholes inside: {'n/a' if n is None else int(n)}")
+    if kind in TIERED_KINDS and "supporting_holes" in row:
+        ids = [i for i in _text(row.get("supporting_holes")).split(",") if i]
+        lines.append("Holes proving a window or thin clay in or near the zone: "
+                     + (esc(", ".join(ids)) if ids
+                        else "none (the zone rests on the interpolation)"))
     reason = _text(row.get("reason"))
     if reason:
         lines.append(f"<i>Why: {esc(reason)}</i>")
     return "<br>".join(lines)
 
 
-def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
-                ) -> tuple[folium.GeoJson, list[tuple[str, str, str]]]:
+def _tiered(rows: list[dict[str, Any]], summary: dict[str, Any]) -> bool:
+    """Whether window and thin zones are shown by tier: some carry a tier, or (none drawn)
+    the summary says the run drew them in tiers."""
+    window_thin = [r for r in rows if _text(r.get("kind")).lower() in TIERED_KINDS]
+    if window_thin:
+        return any(_zone_tier(r) for r in window_thin)
+    zones = summary.get("zones") if isinstance(summary.get("zones"), dict) else {}
+    return bool(zones.get("tiers"))
+
+
+def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str],
+                summary: dict[str, Any] | None = None
+                ) -> tuple[folium.GeoJson, list[tuple[str, ...]]]:
     """Zones (lon/lat) as a GeoJson layer with tooltips, and its legend rows
-    (fill, edge, label html) with the count and area of each kind."""
-    # Drawn in this order: thin, window, then fast paths and pierced zones on top (their
-    # outlines are open).
-    order = {"thin": 0, "window": 1, "fast": 2, "pierced": 3}
-    gdf = gdf.iloc[sorted(range(len(gdf)), key=lambda i: order.get(
-        _text(gdf["kind"].iloc[i]).lower() if "kind" in gdf.columns else "", -1))]
+    (fill, edge, label html, swatch css) with the count and area of each kind and tier."""
+    summary = summary or {}
+    # Drawn in this order: possible tiers, thin, window, then fast paths and pierced zones on
+    # top (their outlines are open).
+    order = {("thin", "possible"): 0, ("window", "possible"): 1, ("thin", ""): 2,
+             ("thin", "likely"): 2, ("window", ""): 3, ("window", "likely"): 3,
+             ("fast", ""): 4, ("pierced", ""): 5}
     rows = gdf.drop(columns="geometry").to_dict("records")
-    props = [{"kind": _text(r.get("kind")).lower(), "tooltip_html": zone_tooltip(r, labels)}
-             for r in rows]
+    keys = [(_text(r.get("kind")).lower(), _zone_tier(r)) for r in rows]
+    pos = sorted(range(len(gdf)), key=lambda i: order.get(keys[i], -1))
+    gdf, rows, keys = gdf.iloc[pos], [rows[i] for i in pos], [keys[i] for i in pos]
+    props = [{"kind": k, "tier": t, "tooltip_html": zone_tooltip(r, labels, summary)}
+             for (k, t), r in zip(keys, rows, strict=True)]
     data = feature_collection(gdf, props)
 
     def style(feature: dict[str, Any]) -> dict[str, Any]:
-        kind = feature["properties"]["kind"]
-        colour = ZONE_COLOURS.get(kind, ZONE_OTHER_COLOUR)
-        if kind in ZONE_DASHES:  # may coincide with a window: an open dashed outline on top
-            return {"color": colour, "weight": 3, "dashArray": ZONE_DASHES[kind],
-                    "fillColor": colour, "fillOpacity": 0.08}
-        return {"color": colour, "weight": 2.5, "fillColor": colour, "fillOpacity": 0.2}
+        st = zone_style(feature["properties"]["kind"], feature["properties"]["tier"])
+        out = {"color": st.colour, "weight": st.weight, "fillColor": st.colour,
+               "fillOpacity": st.fill_opacity}
+        if st.dash:
+            out["dashArray"] = st.dash
+        return out
 
     def highlight(feature: dict[str, Any]) -> dict[str, Any]:
         return {"weight": 4, "fillOpacity": 0.4}
@@ -132,15 +171,24 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str]
                                        class_name="aqm-tip", sticky=True) if has else None),
         control=False,
     )
-    legend = []
-    kinds = [p["kind"] for p in props]
+    legend: list[tuple[str, ...]] = []
     areas = [finite_float(r.get("area_m2")) or 0.0 for r in rows]
+    tiered = _tiered(rows, summary)
     for k, colour in ZONE_COLOURS.items():
-        n = kinds.count(k)
-        area = sum(a for kk, a in zip(kinds, areas, strict=True) if kk == k)
-        extra = f" — {n} zone{'s' if n != 1 else ''}, {fmt_area(area)}" if n else " — none"
-        legend.append((colour, colour, esc(labels.get(k, k)) + extra))
-    if set(kinds) - set(ZONE_COLOURS):
+        for tier in (ZONE_TIERS if tiered and k in TIERED_KINDS else ("",)):
+            picked = [a for key, a in zip(keys, areas, strict=True)
+                      if key[0] == k and (key[1] == tier or not tiered)]
+            n = len(picked)
+            extra = f" — {n} zone{'s' if n != 1 else ''}, {fmt_area(sum(picked))}" if n \
+                else " — none"
+            words = esc(labels.get(k, k))
+            if tier:
+                words += f", <b>{esc(zone_tier_label(summary, k, tier))}</b>"
+            # The possible tier: a light fill and a broken outline, as on the map.
+            fill = f"{colour}33" if tier == "possible" else colour
+            css = "border-style:dashed;" if tier == "possible" else ""
+            legend.append((fill, colour, words + extra, css))
+    if {k for k, _ in keys} - set(ZONE_COLOURS):
         legend.append((ZONE_OTHER_COLOUR, ZONE_OTHER_COLOUR, "Other zone"))
     if not has:
         legend = [("transparent", "#999999", "No zones were flagged in this run")]

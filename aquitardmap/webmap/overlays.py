@@ -219,13 +219,14 @@ def class_legend(legend_id: str, style: GridStyle, present: set[int]) -> str:
             f'<div class="aqm-legend-title">{esc(style.label)}</div>{"".join(rows)}{note}</div>')
 
 
-def swatch_legend(legend_id: str, rows: list[tuple[str, str, str]], *,
+def swatch_legend(legend_id: str, rows: list[tuple[str, ...]], *,
                   round_swatch: bool) -> str:
     """Legend of a vector layer (its title is the layer's switch): rows of
-    (fill, edge, label html)."""
+    (fill, edge, label html) or (fill, edge, label html, extra swatch css)."""
     shape = "border-radius:50%;" if round_swatch else ""
     items = "".join(
-        f'<div class="aqm-row"><span class="aqm-swatch" style="{shape}background:{fill};'
-        f'border-color:{edge}"></span>{label}</div>' for fill, edge, label in rows
+        f'<div class="aqm-row"><span class="aqm-swatch" style="{shape}background:{row[0]};'
+        f'border-color:{row[1]};{row[3] if len(row) > 3 else ""}"></span>{row[2]}</div>'
+        for row in rows
     )
     return f'<div class="aqm-legend aqm-sub" id="{legend_id}">{items}</div>'

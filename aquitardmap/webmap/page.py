@@ -23,9 +23,11 @@ from aquitardmap.presentation import (
     UNCERTAINTY,
     GridStyle,
     finite_float,
+    fmt_area,
     fmt_threshold,
     run_date,
     thresholds,
+    zone_tiers_note,
     zones_and_thickness_note,
 )
 from aquitardmap.runfolder import GridData, section
@@ -111,14 +113,28 @@ def zone_method_html(summary: dict[str, Any]) -> str:
     if basis != "probability":
         return ""
     prob = section(summary, "probability")
-    rows = [("Window where P(window) is at least", finite_float(zones.get("p_window_threshold"))),
-            ("Thin where P(thin) is at least", finite_float(zones.get("p_thin_threshold")))]
+    rows = [("Window, likely tier: P(window) is at least",
+             finite_float(zones.get("p_window_threshold"))),
+            ("Window, possible tier (cannot be ruled out): P(window) is at least",
+             finite_float(zones.get("p_window_possible_threshold"))),
+            ("Thin, likely tier: P(thin) is at least",
+             finite_float(zones.get("p_thin_threshold"))),
+            ("Thin, possible tier (cannot be ruled out): P(thin) is at least",
+             finite_float(zones.get("p_thin_possible_threshold")))]
     body = "".join(f"<tr><td>{label}</td><td>{v:g}</td></tr>" for label, v in rows
                    if v is not None)
     radius = finite_float(zones.get("window_proof_radius_m"))
     if radius is not None:
-        body += ("<tr><td>Window only within (m) of a hole proving a window, or where a "
-                 f"mapped hazard removes clay</td><td>{radius:g}</td></tr>")
+        body += ("<tr><td>Likely window only within (m) of a hole proving a window, or where "
+                 f"a mapped hazard removes clay</td><td>{radius:g}</td></tr>")
+    tiers = zone_tiers_note(summary)
+    if tiers:
+        body += f"<tr><td>Tiers</td><td>{esc(tiers)}</td></tr>"
+    by_tier = section(zones, "area_m2_by_kind_and_tier")
+    for kind, areas in by_tier.items():
+        if isinstance(areas, dict):
+            text = ", ".join(f"{esc(t)} {fmt_area(finite_float(a))}" for t, a in areas.items())
+            body += f"<tr><td>{esc(kind.capitalize())} area by tier</td><td>{text}</td></tr>"
     if prob.get("method"):
         body += f"<tr><td>Probabilities from</td><td>{esc(prob['method'])}</td></tr>"
     drift = section(prob, "external_drift")
