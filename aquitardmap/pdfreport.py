@@ -11,8 +11,11 @@ in its footer:
 3. the variogram of the total thickness (experimental points from the run's full-
    penetration holes with their pair counts, and the fitted model) and any variogram
    figures the run wrote, with the cross-validation statistics of every surface;
+   then, when the run checked them, how well the probabilities held up at the holes (block
+   cross-validation: Brier score against the constant share, reliability table);
 4. the table of flagged areas;
-5. the parameters with their sources (units and conductivity, settings, methods).
+5. the parameters with their sources (units and conductivity, settings, methods; the
+   probability method as the run's summary names it).
 
 Like the map, the report reads only the run folder (names in :mod:`aquitardmap.outputs`,
 styles in :mod:`aquitardmap.presentation`), so it can be rebuilt from what was delivered.
@@ -41,7 +44,9 @@ from matplotlib.ticker import FuncFormatter
 from aquitardmap import __version__, outputs
 from aquitardmap.presentation import (
     AVI_CLASS_FILE,
+    CALIBRATION_HEADING,
     COUNT_WORDS,
+    EMPTY_BIN,
     HOLE_STYLES,
     P_THIN_FILE,
     P_WINDOW_FILE,
@@ -49,13 +54,18 @@ from aquitardmap.presentation import (
     ZONE_DASHES,
     ZONE_OTHER_COLOUR,
     GridStyle,
+    calibration_checks,
+    calibration_reading,
     finite_float,
     fmt_area,
+    fmt_bin_share,
+    fmt_brier,
     fmt_percent,
     fmt_sig,
     fmt_threshold,
     fmt_years,
     hole_category_of,
+    probability_method_notes,
     run_date,
     thresholds,
     zone_labels,
@@ -92,6 +102,8 @@ MAP_FILES: tuple[tuple[str, ...], ...] = (
 )
 ZONE_TABLE_ROWS_PER_PAGE = 34
 
+#: Methods of every run; the probability method of the run follows them
+#: (:func:`aquitardmap.presentation.probability_method_notes`).
 METHODS: tuple[tuple[str, str], ...] = (
     ("Thickness surfaces", "ordinary kriging (Matheron; Isaaks & Srivastava 1989, An "
      "Introduction to Applied Geostatistics, ch. 12), variogram fitted by weighted least "
@@ -106,20 +118,15 @@ METHODS: tuple[tuple[str, str], ...] = (
      "Stempvoort, Ewert & Wassenaar 1993, Canadian Water Resources Journal 18(1))"),
     ("Chance of thin clay (approx.)", "Gaussian error of the kriged thickness, "
      "P = Φ((T* − t)/σ) (p_thin_approx.tif)"),
-    ("Chance of thin clay or a window", "latent Gaussian thickness with inequality data: "
-     "window holes −L ≤ Z ≤ 0 (L = window_latent_floor_m), holes stopped in the clay "
-     "Z ≥ depth, drawn by a Gibbs sampler "
-     "(Freulon & de Fouquet 1993) and kriged (Verly 1983); p_thin.tif, p_window.tif"),
-    ("Zone tiers", "likely: the chance reaches p_window_threshold / p_thin_threshold "
+)
+#: How the zone tiers are drawn from the chances (after the probability method's rows).
+ZONE_TIERS_METHOD: tuple[str, str] = (
+    "Zone tiers", "likely: the chance reaches p_window_threshold / p_thin_threshold "
      "(a likely window also needs a hole proving a window within window_proof_radius_m); "
      "possible, what the holes cannot rule out: it reaches p_window_possible_threshold / "
      "p_thin_possible_threshold; a cell holding a hole that proves a window or thin clay is "
      "likely whatever the chance; one zone per cell: higher tier first, then window before "
-     "thin (our screening rule)"),
-    ("Ground as external drift", "kriging with an external drift (Wackernagel 2003, "
-     "Multivariate Geostatistics; Hengl et al. 2007), used for the probabilities when "
-     "cross-validation favours it"),
-)
+     "thin (our screening rule)")
 
 
 # --------------------------------------------------------------------------- text helpers
@@ -584,6 +591,54 @@ def _variogram_page(pages: _Pages, run_dir: Path) -> None:
             ax.text(0, 0.5, f"{_plain(p.name)} could not be read.", fontsize=9)
 
 
+# --------------------------------------------------------------------------- calibration
+
+def _calibration_page(pages: _Pages) -> None:
+    """The block cross-validation of P(window) and P(thin) at the holes: scores and the
+    reliability table (no page when the summary has no check)."""
+    s = pages.summary
+    checks = calibration_checks(s)
+    if not checks:
+        return
+    fig = pages.new(CALIBRATION_HEADING)
+    flow = _Flow(fig, 0.895)
+    flow.para(calibration_reading(s), size=8.5, width=118)
+    flow.heading("Scores", size=10)
+    rows = [[c.label + ("" if c.threshold_m is None else
+                        f" (under {fmt_threshold(c.threshold_m)} m)"),
+             "n/a" if c.n_holes is None else str(c.n_holes),
+             "n/a" if c.n_event is None else str(c.n_event),
+             ("n/a" if c.n_blocks is None else str(c.n_blocks)) + " of "
+             + ("n/a" if c.block_m is None else f"{fmt_sig(c.block_m, 3)} m"),
+             fmt_brier(c.brier), fmt_brier(c.brier_reference), fmt_brier(c.skill_score)]
+            for c in checks]
+    flow.table(rows, ["Chance of", "Holes scored", "showing it", "Blocks", "Brier score",
+                      "Constant share", "Skill score"],
+               [0.2, 0.12, 0.11, 0.15, 0.14, 0.15, 0.13], fontsize=8)
+    flow.heading("Reliability: holes by the chance they were given", size=10)
+    edges = []
+    for c in checks:
+        edges += [b.label for b in c.bins if b.label not in edges]
+    header = ["Chance given"]
+    widths = [0.16]
+    for c in checks:
+        header += [f"{c.label} n", "mean P", "observed"]
+        widths += [0.14, 0.14, 0.14]
+    widths = [w / sum(widths) for w in widths]
+    rel_rows = []
+    for label in edges:
+        row = [label]
+        for c in checks:
+            b = next((b for b in c.bins if b.label == label), None)
+            row += ([EMPTY_BIN] * 3 if b is None else
+                    [str(b.n), fmt_bin_share(b.mean_p), fmt_bin_share(b.observed)])
+        rel_rows.append(row)
+    flow.table(rel_rows, header, widths, fontsize=8)
+    flow.para(f"{EMPTY_BIN}: no hole was given a chance in that bin. Observed: the share of "
+              "the bin's holes that logged a window (P(window)) or thin clay (P(thin)).",
+              size=7.5, width=135, colour="#444444")
+
+
 # --------------------------------------------------------------------------- zones table
 
 
@@ -702,12 +757,11 @@ def _parameter_pages(pages: _Pages, run_dir: Path) -> None:
     fig = pages.new("Methods and sources")
     flow = _Flow(fig, 0.895)
     rows = [[m, ref] for m, ref in METHODS]
+    rows += [[_plain(m), _plain(ref)] for m, ref in probability_method_notes(s)]
+    rows.append(list(ZONE_TIERS_METHOD))
     avi = section(s, "avi")
     if avi.get("source"):
         rows.append(["AVI classes used", _plain(avi["source"])])
-    drift = section(section(s, "probability"), "external_drift")
-    if drift.get("reason"):
-        rows.append(["External drift in this run", _plain(drift["reason"])])
     if zones_and_thickness_note(s):
         rows.append(["Zones and the thickness map", _plain(zones_and_thickness_note(s))])
     flow.table(rows, ["What", "Method and published source"], [0.25, 0.75], fontsize=7.5,
@@ -739,6 +793,7 @@ def write_report(run_dir: str | Path) -> Path:
     _title_page(pages, run_dir)
     _map_pages(pages, run_dir)
     _variogram_page(pages, run_dir)
+    _calibration_page(pages)
     _zone_pages(pages, run_dir)
     _parameter_pages(pages, run_dir)
     target = run_dir / outputs.REPORT

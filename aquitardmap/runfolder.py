@@ -22,7 +22,7 @@ from pyproj.exceptions import CRSError
 from aquitardmap import outputs
 from aquitardmap.grid import read_raster
 from aquitardmap.hydraulics import avi_class
-from aquitardmap.presentation import GridStyle, grid_styles
+from aquitardmap.presentation import GridStyle, grid_styles, section
 
 
 def read_summary(run_dir: Path) -> dict[str, Any]:
@@ -32,12 +32,6 @@ def read_summary(run_dir: Path) -> dict[str, Any]:
     except (OSError, ValueError):
         return {}
     return data if isinstance(data, dict) else {}
-
-
-def section(summary: dict[str, Any], key: str) -> dict[str, Any]:
-    """``summary[key]`` when it is a dict, else ``{}``."""
-    value = summary.get(key)
-    return value if isinstance(value, dict) else {}
 
 
 def project_crs(run_dir: Path, summary: dict[str, Any]) -> CRS | None:

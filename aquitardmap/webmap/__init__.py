@@ -3,8 +3,10 @@
 The map is a folium (Leaflet) page. It reads only what the run folder holds, by the names in
 :mod:`aquitardmap.outputs`, and shows what is there:
 
-* a title bar (project, run date, package version, CRS; input files with their SHA-256
-  hashes under "About this run") and a caution bar that the map never covers;
+* a title bar (project, run date, package version, CRS; under "About this run" the input
+  files with their SHA-256 hashes, how the zones were drawn with the probability method the
+  run used, and how well the probabilities held up at the holes) and a caution bar that the
+  map never covers;
 * every grid as a shaded layer, one at a time, chosen in a panel grouped by meaning, with
   an opacity slider and a legend in physical units (:mod:`aquitardmap.presentation`);
 * the flagged zones (window / thin / fast / pierced; window and thin in a likely and a

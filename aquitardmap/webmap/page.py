@@ -17,14 +17,22 @@ from pyproj import CRS, Transformer
 
 from aquitardmap import outputs
 from aquitardmap.presentation import (
+    CALIBRATION_HEADING,
     COUNT_WORDS,
+    EMPTY_BIN,
     GROUPS,
     PROTECTION,
     UNCERTAINTY,
     GridStyle,
+    calibration_checks,
+    calibration_reading,
     finite_float,
     fmt_area,
+    fmt_bin_share,
+    fmt_brier,
+    fmt_sig,
     fmt_threshold,
+    probability_method_notes,
     run_date,
     thresholds,
     zone_tiers_note,
@@ -52,7 +60,9 @@ def crs_label(crs: CRS | None) -> str:
 
 def header_html(summary: dict[str, Any], crs_text: str) -> str:
     """The title bar: project name, run date, package version, CRS, and a drop-down with
-    the input files and their SHA-256 hashes, the thresholds and the counts."""
+    the input files and their SHA-256 hashes, the thresholds, how the zones were drawn,
+    how well the probabilities held up at the holes, the variogram figures and the
+    counts."""
     project = section(summary, "project")
     run = section(summary, "run")
     name = str(project.get("name") or "").strip() or "Aquitard screening map"
@@ -85,6 +95,9 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
     zones_how = zone_method_html(summary)
     if zones_how:
         about.append(zones_how)
+    held_up = calibration_html(summary)
+    if held_up:
+        about.append(held_up)
     figures = figure_links_html(summary)
     if figures:
         about.append(figures)
@@ -103,8 +116,9 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
 
 def zone_method_html(summary: dict[str, Any]) -> str:
     """How the window and thin zones were drawn: from the kriged thickness, or from the
-    probabilities with their thresholds, method and the external-drift decision ("" when
-    the summary does not say)."""
+    probabilities with their thresholds and the method the run used
+    (:func:`aquitardmap.presentation.probability_method_notes`, with the external-drift
+    decision) ("" when the summary does not say)."""
     zones = section(summary, "zones")
     basis = zones.get("basis")
     if basis == "kriged_thickness":
@@ -112,7 +126,6 @@ def zone_method_html(summary: dict[str, Any]) -> str:
                 "kriged total thickness is below the thresholds.</p>")
     if basis != "probability":
         return ""
-    prob = section(summary, "probability")
     rows = [("Window, likely tier: P(window) is at least",
              finite_float(zones.get("p_window_threshold"))),
             ("Window, possible tier (cannot be ruled out): P(window) is at least",
@@ -135,15 +148,39 @@ def zone_method_html(summary: dict[str, Any]) -> str:
         if isinstance(areas, dict):
             text = ", ".join(f"{esc(t)} {fmt_area(finite_float(a))}" for t, a in areas.items())
             body += f"<tr><td>{esc(kind.capitalize())} area by tier</td><td>{text}</td></tr>"
-    if prob.get("method"):
-        body += f"<tr><td>Probabilities from</td><td>{esc(prob['method'])}</td></tr>"
-    drift = section(prob, "external_drift")
-    if drift.get("reason"):
-        body += (f"<tr><td>Ground elevation as external drift</td>"
-                 f"<td>{esc(drift['reason'])}</td></tr>")
+    body += "".join(f"<tr><td>{esc(what)}</td><td>{esc(how)}</td></tr>"
+                    for what, how in probability_method_notes(summary))
     body += (f"<tr><td>Zones and the thickness layer</td>"
              f"<td>{esc(zones_and_thickness_note(summary))}</td></tr>")
     return f"<b>How the zones were drawn</b><table>{body}</table>"
+
+
+def calibration_html(summary: dict[str, Any]) -> str:
+    """The block cross-validation of P(window) and P(thin) at the holes, compact: holes
+    scored, block size, Brier score beside the constant share and the skill score, the
+    reliability bins and how to read them ("" when the summary has no check)."""
+    checks = calibration_checks(summary)
+    if not checks:
+        return ""
+    body = ""
+    for c in checks:
+        under = "" if c.threshold_m is None else f" (under {fmt_threshold(c.threshold_m)} m)"
+        blocks = ("n/a" if c.n_blocks is None else str(c.n_blocks)) + " blocks of " + (
+            "n/a" if c.block_m is None else f"{fmt_sig(c.block_m, 3)} m")
+        body += (f"<tr><td>{esc(c.label + under)}</td><td>"
+                 f"{'n/a' if c.n_holes is None else c.n_holes} holes scored "
+                 f"({'n/a' if c.n_event is None else c.n_event} showing it), {blocks}; "
+                 f"Brier score {fmt_brier(c.brier)} (constant share "
+                 f"{fmt_brier(c.brier_reference)}), skill {fmt_brier(c.skill_score)}</td></tr>")
+        bins = "; ".join(
+            f"{esc(b.label)}: {b.n} holes, mean {esc(fmt_bin_share(b.mean_p))}, observed "
+            f"{esc(fmt_bin_share(b.observed))}" if b.n else f"{esc(b.label)}: {EMPTY_BIN}"
+            for b in c.bins)
+        if bins:
+            body += (f"<tr><td>{esc(c.label)} reliability (chance given: holes, mean P, "
+                     f"observed share)</td><td>{bins}</td></tr>")
+    body += f"<tr><td>How to read it</td><td>{esc(calibration_reading(summary))}</td></tr>"
+    return f"<b>{esc(CALIBRATION_HEADING)}</b><table>{body}</table>"
 
 
 def figure_links_html(summary: dict[str, Any]) -> str:
