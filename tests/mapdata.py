@@ -144,3 +144,66 @@ def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True,
                                                      "thin": {"likely": 0, "possible": 1}}}}
                if tiers else {}),
         }), encoding="utf-8")
+
+
+def _bins(rows: list[tuple[int, float | None, float | None]]) -> list[dict]:
+    edges = (0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0)
+    return [{"p_from": lo, "p_to": hi, "n": n, "mean_p": mp, "observed": ob}
+            for lo, hi, (n, mp, ob) in zip(edges[:-1], edges[1:], rows, strict=True)]
+
+
+def indicator_probability() -> dict:
+    """An invented ``probability`` section as an indicator run writes it (method name from
+    :mod:`aquitardmap.indicator`), with a block cross-validation of both events."""
+    from aquitardmap.indicator import METHOD
+
+    cutoff = {"n_left_out_lower_bounds": 0, "variogram_source": "fitted",
+              "variogram": {"model": "exponential", "nugget": 0.01, "psill": 0.1,
+                            "range_m": 1234.0, "anisotropy_ratio": 1.0,
+                            "anisotropy_angle_deg": 0.0}}
+    return {
+        "method": METHOD, "continuity_ratio": 3.5, "chain_corridor_m": 175.0,
+        "location_sd_m": 25.0, "hard_data_floor": 0.9,
+        "cutoffs": [{**cutoff, "threshold_m": 0.5, "n_data": 120, "n_event": 9,
+                     "n_continuity_segments": 7},
+                    {**cutoff, "threshold_m": 5.0, "n_data": 110, "n_event": 17,
+                     "n_continuity_segments": 11},
+                    {**cutoff, "threshold_m": 40.0, "n_data": 100, "n_event": 100,
+                     "n_continuity_segments": 30, "variogram_source": "default"}],
+        "external_drift": {"used": False},
+        "cross_validation": {
+            "window": {"threshold_m": 0.5, "block_m": 300.0, "n_blocks": 40, "n_holes": 120,
+                       "n_event": 9, "mean_p": 0.08, "brier": 0.0123,
+                       "brier_reference": 0.0456, "brier_skill_score": 0.7303,
+                       "reliability": _bins([(100, 0.004, 0.0), (11, 0.21, 0.1818),
+                                             (4, 0.41, 0.5), (3, 0.62, 0.6667),
+                                             (2, 0.83, 1.0), (0, None, None)])},
+            "thin": {"threshold_m": 5.0, "block_m": 300.0, "n_blocks": 40, "n_holes": 110,
+                     "n_event": 17, "mean_p": 0.15, "brier": 0.0789,
+                     "brier_reference": 0.1306, "brier_skill_score": 0.3959,
+                     "reliability": _bins([(70, 0.03, 0.0286), (21, 0.27, 0.2381),
+                                           (9, 0.44, 0.3333), (6, 0.58, 0.6667),
+                                           (4, 0.77, 0.75), (0, None, None)])}},
+        "notes": []}
+
+
+def latent_probability() -> dict:
+    """An invented ``probability`` section as a latent Gaussian run writes it (method name
+    from :mod:`aquitardmap.probability`): no cross-validation at the holes."""
+    from aquitardmap.probability import METHOD
+
+    return {"method": METHOD, "n_full_positive": 1, "n_proving_absence": 1,
+            "n_lower_bounds": 1, "window_latent_floor_m": 3.0, "n_draws": 64,
+            "gibbs_sweeps": 40, "seed": 1, "variance_scale": 1.0,
+            "external_drift": {"used": False, "reason": "not used: RMSE 3.3 m with it, "
+                               "3.1 m without"}, "notes": []}
+
+
+def set_probability(run_dir: Path, probability: dict | None) -> None:
+    """Put ``probability`` in the run folder's summary.json (None: take the section out)."""
+    path = run_dir / outputs.SUMMARY
+    summary = json.loads(path.read_text(encoding="utf-8"))
+    summary.pop("probability", None)
+    if probability is not None:
+        summary["probability"] = probability
+    path.write_text(json.dumps(summary), encoding="utf-8")

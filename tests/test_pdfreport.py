@@ -15,10 +15,16 @@ from pathlib import Path
 
 import matplotlib.image
 import pytest
-from mapdata import build_run_folder
+from mapdata import build_run_folder, indicator_probability, latent_probability, set_probability
 
 from aquitardmap import outputs
 from aquitardmap.pdfreport import write_report
+from aquitardmap.presentation import (
+    CALIBRATION_HEADING,
+    calibration_checks,
+    fmt_bin_share,
+    fmt_brier,
+)
 
 POPPLER = all(shutil.which(t) for t in ("pdftoppm", "pdftotext", "pdfinfo"))
 needs_poppler = pytest.mark.skipif(
@@ -31,8 +37,10 @@ def _pages(pdf: Path) -> int:
     return int(re.search(r"^Pages:\s+(\d+)", info.stdout, re.M).group(1))
 
 
-def _text(pdf: Path, page: int | None = None) -> str:
-    args = ["pdftotext", "-layout"]
+def _text(pdf: Path, page: int | None = None, *, layout: bool = True) -> str:
+    """What a reader sees, one space between words; without ``layout`` in reading order, so
+    the wrapped lines of one table cell stay together."""
+    args = ["pdftotext", "-layout"] if layout else ["pdftotext"]
     if page is not None:
         args += ["-f", str(page), "-l", str(page)]
     out = subprocess.run([*args, str(pdf), "-"], capture_output=True, text=True, check=True)
@@ -155,6 +163,93 @@ def test_pipeline_writes_the_report_with_the_demo_variogram(demo_run):
     n_full = demo_run.summary["counts"]["reached_aquifer"]
     assert f"Total clay thickness: {n_full} holes that reached the aquifer" in text
     assert "fitted spherical" in text
+    # The method the demo used, and its check at the holes with the summary's numbers.
+    assert demo_run.summary["probability"]["method"].startswith("indicator kriging")
+    _, methods = _page_with(pdf, "Methods and sources", layout=False)
+    assert "Journel 1983" in methods and "Gibbs" not in text
+    _, page = _page_with(pdf, CALIBRATION_HEADING)
+    for row in _calibration_rows(demo_run.summary):
+        assert re.search(row, page), row
     n_zones = sum(demo_run.summary["zones"]["count_by_kind"].values())
     assert re.search(rf"\b{n_zones} (Fast path|Thin clay|Window|Pierced)", text)
     assert not [p for p in demo_run.out_dir.iterdir() if p.name.endswith(".tmp")]
+
+
+def _page_with(pdf: Path, heading: str, *, layout: bool = True) -> tuple[int, str]:
+    """The number and text of the first page whose heading is ``heading``."""
+    for page in range(1, _pages(pdf) + 1):
+        text = _text(pdf, page, layout=layout)
+        if heading in text:
+            return page, text
+    raise AssertionError(f"no page with {heading!r}")
+
+
+def _calibration_rows(summary: dict) -> list[str]:
+    """What the report's calibration tables must print, row by row, from the summary's
+    numbers (Brier scores as stored, four decimals; shares in per cent; – for empty bins)."""
+    checks = calibration_checks(summary)
+    rows = [rf"{re.escape(c.label)} \(under {c.threshold_m:g} m\) {c.n_holes} {c.n_event} "
+            rf"{c.n_blocks} of {c.block_m:.3g} m {re.escape(fmt_brier(c.brier))} "
+            rf"{re.escape(fmt_brier(c.brier_reference))} "
+            rf"{re.escape(fmt_brier(c.skill_score))}" for c in checks]
+    for i, b in enumerate(checks[0].bins):
+        cells = [b.label]
+        for c in checks:
+            cb = c.bins[i]
+            cells += ([str(cb.n), fmt_bin_share(cb.mean_p), fmt_bin_share(cb.observed)]
+                      if cb.n else ["0", "–", "–"])
+        rows.append(" ".join(re.escape(x) for x in cells))
+    # pdftotext may close up the space before a per cent sign ("0%").
+    return [r.replace(r"\ %", " ?%") for r in rows]
+
+
+@needs_poppler
+def test_report_shows_how_well_the_probabilities_held_up_at_the_holes(tmp_path):
+    build_run_folder(tmp_path)
+    set_probability(tmp_path, indicator_probability())
+    pdf = write_report(tmp_path)
+    _, text = _page_with(pdf, CALIBRATION_HEADING)
+    summary = json.loads((tmp_path / outputs.SUMMARY).read_text(encoding="utf-8"))
+    # Scores as stored in summary.json (invented numbers, tests/mapdata.py): holes scored,
+    # holes showing the event, blocks and their size, Brier, constant share, skill.
+    assert re.search(r"P\(window\) \(under 0\.5 m\) 120 9 40 of 300 m 0\.0123 0\.0456 "
+                     r"0\.7303", text)
+    assert re.search(r"P\(thin\) \(under 5 m\) 110 17 40 of 300 m 0\.0789 0\.1306 0\.3959",
+                     text)
+    # Reliability bins: n, mean P and observed share of each event; empty bins as –.
+    assert re.search(r"10–30 ?% 11 21 ?% 18 ?% 21 27 ?% 24 ?%", text)
+    assert re.search(r"90–100 ?% 0 – – 0 – –", text)
+    for row in _calibration_rows(summary):
+        assert re.search(row, text), row
+    # How to read it, with the run's own example (the fullest P(thin) bin from 10 %).
+    assert "in the 21 holes given about 27 % for P(thin), the clay was thinner than 5 m in " \
+           "24 %" in text
+    assert "Block cross-validation is a pessimistic check" in text
+    assert "not a substitute for site-specific investigation" in text  # the caution
+
+
+@needs_poppler
+def test_methods_page_describes_the_method_the_run_used(tmp_path):
+    build_run_folder(tmp_path)
+    set_probability(tmp_path, indicator_probability())
+    _, text = _page_with(write_report(tmp_path), "Methods and sources", layout=False)
+    for words in ("indicator kriging", "Journel 1983", "Goovaerts 1997",
+                  "te Stroet & Snepvangers 2005", "ratio 3.5", "within 175 m",
+                  "within 25 m of one", "at least 90 %", "3 cutoffs from 0.5 to 40 m"):
+        assert words in text, words
+    assert "Gibbs" not in text and "window_latent_floor_m" not in text
+
+    set_probability(tmp_path, latent_probability())
+    pdf = write_report(tmp_path)
+    _, text = _page_with(pdf, "Methods and sources", layout=False)
+    assert "latent Gaussian thickness" in text and "Gibbs sampler" in text
+    assert "window_latent_floor_m" in text and "Ground as external drift" in text
+    assert "not used: RMSE 3.3 m with it" in text  # the run's drift decision
+    assert "Journel" not in text and "te Stroet" not in text
+    # No check at the holes in this run: no calibration page, nothing invented.
+    assert CALIBRATION_HEADING not in _text(pdf)
+
+    set_probability(tmp_path, None)  # a run folder from before either method
+    text = _text(write_report(tmp_path))
+    assert "Methods and sources" in text and CALIBRATION_HEADING not in text
+    assert "Gibbs" not in text and "Journel" not in text
