@@ -7,6 +7,7 @@ pipeline: they are the outside reference here.
 from __future__ import annotations
 
 import hashlib
+import html
 import json
 
 import geopandas as gpd
@@ -204,6 +205,24 @@ def test_summary_records_hashes_version_and_caution(demo_run):
         s["piercing"]["flagged_area_km2"])
     html = (demo_run.out_dir / outputs.MAP).read_text()
     assert "not a substitute for site-specific investigation" in html
+
+
+def test_map_and_report_say_how_the_demo_probabilities_held_up(demo_run):
+    # The run's own check at the holes reaches the map's run notes with summary.json's
+    # numbers, and the notes name the method the run used (indicator kriging by default).
+    s = json.loads((demo_run.out_dir / outputs.SUMMARY).read_text())
+    prob = s["probability"]
+    assert prob["method"].startswith("indicator kriging")
+    page = html.unescape((demo_run.out_dir / outputs.MAP).read_text())
+    notes = page[page.index("How well the probabilities held up at the holes"):]
+    for event, label in (("window", "P(window)"), ("thin", "P(thin)")):
+        cv = prob["cross_validation"][event]
+        assert 0 < cv["n_holes"] <= s["counts"]["boreholes"]
+        assert (f"{label} (under {cv['threshold_m']:g} m)</td><td>{cv['n_holes']} holes "
+                f"scored ({cv['n_event']} showing it)") in notes
+        assert (f"Brier score {cv['brier']:.4f} (constant share "
+                f"{cv['brier_reference']:.4f}), skill {cv['brier_skill_score']:.4f}") in notes
+    assert "Journel 1983" in page and "Gibbs" not in page
 
 
 def _skill(estimate: np.ndarray, truth: np.ndarray, threshold_m: float) -> tuple[float, float]:

@@ -29,6 +29,9 @@ from mapdata import (
     X0,
     Y0,
     build_run_folder,
+    indicator_probability,
+    latent_probability,
+    set_probability,
 )
 from pyproj import CRS, Transformer
 
@@ -477,6 +480,55 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
     assert "kriged total thickness" in zone_method_html({"zones": {"basis":
                                                                    "kriged_thickness"}})
     assert zone_method_html({}) == ""
+
+
+def test_run_notes_name_the_method_the_run_used() -> None:
+    # One wording (presentation.probability_method_notes) for the report and the map; it
+    # follows the method the summary names.
+    from aquitardmap.presentation import probability_method_notes
+    from aquitardmap.webmap.page import zone_method_html
+
+    zones = {"basis": "probability", "p_window_threshold": 0.5}
+    indicator = {"zones": zones, "thresholds": {"window_thickness_m": 0.5,
+                                                "thin_thickness_m": 5.0},
+                 "probability": indicator_probability()}
+    latent = {"zones": zones, "probability": latent_probability()}
+    text = zone_method_html(indicator)
+    for words in ("indicator kriging", "Journel 1983", "Goovaerts 1997",
+                  "te Stroet &amp; Snepvangers 2005", "(ratio 3.5)", "within 175 m",
+                  "within 25 m of one", "at least 90 %"):
+        assert words in text, words
+    assert "Gibbs" not in text
+    text = zone_method_html(latent)
+    assert "Gibbs sampler" in text and "window_latent_floor_m" in text
+    assert "not used: RMSE 3.3 m with it" in text and "Journel" not in text
+    assert [w for w, _ in probability_method_notes(latent)] == [
+        "Chance of thin clay or a window", "Ground as external drift",
+        "External drift in this run"]
+    assert probability_method_notes({}) == []
+
+
+def test_run_notes_say_how_well_the_probabilities_held_up(tmp_path: Path) -> None:
+    # The block cross-validation of summary.json, compact, under "About this run".
+    from aquitardmap.webmap.page import calibration_html
+
+    build_run_folder(tmp_path)
+    set_probability(tmp_path, indicator_probability())
+    text = html.unescape(write_map(tmp_path).read_text(encoding="utf-8"))
+    notes = text[text.index("How well the probabilities held up at the holes"):]
+    notes = notes[:notes.index("</table>")]
+    # Invented numbers of tests/mapdata.py, as stored (Brier scores to four decimals).
+    assert ("P(window) (under 0.5 m)</td><td>120 holes scored (9 showing it), 40 blocks of "
+            "300 m; Brier score 0.0123 (constant share 0.0456), skill 0.7303") in notes
+    assert "Brier score 0.0789 (constant share 0.1306), skill 0.3959" in notes
+    assert "10–30 %: 21 holes, mean 27 %, observed 24 %" in notes
+    assert "90–100 %: –" in notes
+    assert "Block cross-validation is a pessimistic check" in notes
+    assert "not a substitute for site-specific investigation" in text  # the caution bar
+    # Latent Gaussian runs and older runs have no check: nothing is shown, nothing breaks.
+    assert calibration_html({"probability": latent_probability()}) == ""
+    assert calibration_html({"probability": {"cross_validation": {"thin": "odd"}}}) == ""
+    assert calibration_html({}) == ""
 
 
 def test_variogram_figures_are_linked_and_odd_names_are_not() -> None:
