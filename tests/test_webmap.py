@@ -516,13 +516,16 @@ def test_run_notes_say_how_well_the_probabilities_held_up(tmp_path: Path) -> Non
     set_probability(tmp_path, indicator_probability())
     text = html.unescape(write_map(tmp_path).read_text(encoding="utf-8"))
     notes = text[text.index("How well the probabilities held up at the holes"):]
-    notes = notes[:notes.index("</table>")]
+    notes = notes[:notes.index("</p>")]
     # Invented numbers of tests/mapdata.py, as stored (Brier scores to four decimals).
     assert ("P(window) (under 0.5 m)</td><td>120 holes scored (9 showing it), 40 blocks of "
             "300 m; Brier score 0.0123 (constant share 0.0456), skill 0.7303") in notes
     assert "Brier score 0.0789 (constant share 0.1306), skill 0.3959" in notes
-    assert "10–30 %: 21 holes, mean 27 %, observed 24 %" in notes
-    assert "90–100 %: –" in notes
+    # Reliability bins: n, mean P and observed share of P(window) then P(thin); empty as –.
+    assert ("<tr><td>10–30 %</td><td>11</td><td>21 %</td><td>18 %</td><td>21</td>"
+            "<td>27 %</td><td>24 %</td></tr>") in notes
+    assert ("<tr><td>90–100 %</td><td>0</td><td>–</td><td>–</td><td>0</td><td>–</td>"
+            "<td>–</td></tr>") in notes
     assert "Block cross-validation is a pessimistic check" in notes
     assert "not a substitute for site-specific investigation" in text  # the caution bar
     # Latent Gaussian runs and older runs have no check: nothing is shown, nothing breaks.

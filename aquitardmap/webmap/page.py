@@ -172,15 +172,23 @@ def calibration_html(summary: dict[str, Any]) -> str:
                  f"({'n/a' if c.n_event is None else c.n_event} showing it), {blocks}; "
                  f"Brier score {fmt_brier(c.brier)} (constant share "
                  f"{fmt_brier(c.brier_reference)}), skill {fmt_brier(c.skill_score)}</td></tr>")
-        bins = "; ".join(
-            f"{esc(b.label)}: {b.n} holes, mean {esc(fmt_bin_share(b.mean_p))}, observed "
-            f"{esc(fmt_bin_share(b.observed))}" if b.n else f"{esc(b.label)}: {EMPTY_BIN}"
-            for b in c.bins)
-        if bins:
-            body += (f"<tr><td>{esc(c.label)} reliability (chance given: holes, mean P, "
-                     f"observed share)</td><td>{bins}</td></tr>")
-    body += f"<tr><td>How to read it</td><td>{esc(calibration_reading(summary))}</td></tr>"
-    return f"<b>{esc(CALIBRATION_HEADING)}</b><table>{body}</table>"
+    labels: list[str] = []
+    for c in checks:
+        labels += [b.label for b in c.bins if b.label not in labels]
+    head = "<tr><th>Chance given</th>" + "".join(
+        f"<th>{esc(c.label)} n</th><th>mean P</th><th>observed</th>" for c in checks) + "</tr>"
+    rows = ""
+    for label in labels:
+        rows += f"<tr><td>{esc(label)}</td>"
+        for c in checks:
+            b = next((b for b in c.bins if b.label == label), None)
+            cells = ([EMPTY_BIN] * 3 if b is None else
+                     [str(b.n), fmt_bin_share(b.mean_p), fmt_bin_share(b.observed)])
+            rows += "".join(f"<td>{esc(x)}</td>" for x in cells)
+        rows += "</tr>"
+    reliability = (f'<table class="aqm-reliability">{head}{rows}</table>' if labels else "")
+    return (f"<b>{esc(CALIBRATION_HEADING)}</b><table>{body}</table>{reliability}"
+            f"<p>{esc(calibration_reading(summary))}</p>")
 
 
 def figure_links_html(summary: dict[str, Any]) -> str:
