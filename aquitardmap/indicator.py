@@ -143,7 +143,7 @@ def indicator_variogram(data: IndicatorData, spacing_m: float) -> tuple[Variogra
     locations on either side of the cutoff, a failed fit or a fit that is mostly nugget
     (structured part under :data:`MIN_STRUCTURED_SHARE` of the sill), a spherical model of
     sill ``p(1 − p)`` (the indicator variance, Goovaerts 1997 §7.2, from memory) and range
-    three hole spacings."""
+    three hole spacings (family :data:`INDICATOR_MODEL`)."""
     v = data.value
     p = float(np.clip(v.mean() if v.size else 0.0, 1e-3, 1 - 1e-3))
     var = p * (1.0 - p)
@@ -380,8 +380,8 @@ def indicator_cdf(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
             notes.append(f"cutoff {t:g} m: {data.n_event} of {data.value.size} locations "
                          "prove it; the indicator variogram could not be fitted with a "
                          "structure (too few holes, or mostly nugget at the hole spacing): "
-                         f"a spherical model of range {model.range_m:.0f} m (three hole "
-                         "spacings) was used")
+                         f"an {model.model} model of range {model.range_m:.0f} m (three "
+                         "hole spacings) was used")
     cdf = correct_order(cdf)
     cdf = honour_hard_data(cdf, cut, x, y, thickness_m, status, tx, ty,
                            settings.location_sd_m, settings.hard_floor, own_target)
