@@ -28,8 +28,8 @@ Zones come in two tiers (:class:`ScreeningThresholds`): ``p_window_threshold`` a
 rule out)::
 
     [screening]
-    p_window_possible_threshold = 0.15
-    p_thin_possible_threshold = 0.15
+    p_window_possible_threshold = 0.2
+    p_thin_possible_threshold = 0.2
 """
 
 from __future__ import annotations
@@ -249,8 +249,8 @@ class ScreeningThresholds:
     # Provisional tier thresholds, to be set from measurements over many regions.
     p_window_threshold: float = 0.5
     p_thin_threshold: float = 0.5
-    p_window_possible_threshold: float = 0.15
-    p_thin_possible_threshold: float = 0.15
+    p_window_possible_threshold: float = 0.2
+    p_thin_possible_threshold: float = 0.2
     probability_draws: int = 64
     probability_seed: int = 0
     probability_variance_from_cv: bool = True

@@ -37,6 +37,7 @@ from pathlib import Path
 
 import numpy as np
 
+from aquitardmap.calibration import RELIABILITY_EDGES, Reliability, reliability
 from aquitardmap.grid import Grid, read_raster
 from aquitardmap.kriging import merge_coincident, prepare_locations, weights_at
 from aquitardmap.variogram import (
@@ -135,57 +136,6 @@ def recall_at_precision(p: np.ndarray, truth_below: np.ndarray, min_precision: f
     best = ok[np.argmax(tp[ok])]
     return MatchedRecall(float(tp[best] / n_true), float(tp[best] / n[best]), float(ps[best]),
                          float(min_precision))
-
-
-#: Probability bins of the reliability table.
-RELIABILITY_EDGES = (0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0)
-
-
-@dataclass(frozen=True)
-class Reliability:
-    """How often the event happened in the truth among cells of each probability bin: the
-    reliability table of a probability forecast (a forecast is reliable when, in each bin,
-    the observed frequency matches the mean forecast probability; Murphy & Winkler 1977,
-    Applied Statistics 26:41–47, from memory).
-
-    Attributes:
-        edges: bin edges (the last bin includes 1).
-        cells: number of cells in each bin.
-        mean_p: mean forecast probability in each bin (NaN for an empty bin).
-        observed: share of the bin's cells where the event is true in the truth (NaN for
-            an empty bin).
-    """
-
-    edges: tuple[float, ...]
-    cells: np.ndarray
-    mean_p: np.ndarray
-    observed: np.ndarray
-
-    def pooled(self, other: Reliability) -> Reliability:
-        """This table and ``other`` (same edges) counted together."""
-        n = self.cells + other.cells
-        with np.errstate(invalid="ignore"):
-            mp = (np.nan_to_num(self.mean_p) * self.cells
-                  + np.nan_to_num(other.mean_p) * other.cells) / n
-            ob = (np.nan_to_num(self.observed) * self.cells
-                  + np.nan_to_num(other.observed) * other.cells) / n
-        return Reliability(self.edges, n, mp, ob)
-
-
-def reliability(p: np.ndarray, event: np.ndarray,
-                edges: tuple[float, ...] = RELIABILITY_EDGES) -> Reliability:
-    """Reliability table of probabilities ``p`` against the boolean truth ``event`` (same
-    shape; NaN probabilities are left out)."""
-    p = np.asarray(p, float).ravel()
-    event = np.asarray(event, bool).ravel()
-    ok = np.isfinite(p)
-    p, event = p[ok], event[ok]
-    b = np.clip(np.searchsorted(np.asarray(edges), p, side="right") - 1, 0, len(edges) - 2)
-    n = np.bincount(b, minlength=len(edges) - 1).astype(float)
-    with np.errstate(invalid="ignore"):
-        mean_p = np.bincount(b, p, minlength=len(edges) - 1) / n
-        observed = np.bincount(b, event.astype(float), minlength=len(edges) - 1) / n
-    return Reliability(tuple(edges), n.astype(int), mean_p, observed)
 
 
 def zone_skill(project_dir: str | Path, *,
