@@ -390,15 +390,16 @@ def probability_score(p: np.ndarray, event: np.ndarray,
 @dataclass(frozen=True)
 class ProvingHoles:
     """Boreholes (not excluded) that passed through the aquitard and logged less than
-    ``threshold_m`` of it, and where the run's zones put them.
+    ``threshold_m`` of it inside the study area, and where the run's zones put them.
 
     Attributes:
         threshold_m: the thickness they prove the clay thinner than (m).
-        borehole_ids: their ids.
+        borehole_ids: their ids (holes whose cell lies in the study area).
         in_window_zone: how many lie in a cell of a window zone.
         in_any_zone: how many lie in a cell of a window or thin zone.
-        p_at_cell: P(thinner than ``threshold_m``) of the run at each one's cell (NaN off
-            the study area).
+        p_at_cell: P(thinner than ``threshold_m``) of the run at each one's cell.
+        n_outside: such holes whose reported location lies outside the study area (no
+            cell to flag; water-well records near the boundary, tens of metres off).
     """
 
     threshold_m: float
@@ -406,6 +407,7 @@ class ProvingHoles:
     in_window_zone: int
     in_any_zone: int
     p_at_cell: np.ndarray
+    n_outside: int = 0
 
     @property
     def count(self) -> int:
@@ -417,7 +419,8 @@ class ProvingHoles:
         return ProvingHoles(self.threshold_m, self.borehole_ids + other.borehole_ids,
                             self.in_window_zone + other.in_window_zone,
                             self.in_any_zone + other.in_any_zone,
-                            np.concatenate([self.p_at_cell, other.p_at_cell]))
+                            np.concatenate([self.p_at_cell, other.p_at_cell]),
+                            self.n_outside + other.n_outside)
 
 
 @dataclass(frozen=True)
@@ -571,10 +574,11 @@ def screening_skill(project_dir: str | Path, *,
         row, col = grid.rowcol(holes["x"].to_numpy(float), holes["y"].to_numpy(float))
         r, c = np.maximum(row, 0), np.maximum(col, 0)
         inside = (row >= 0) & grid.mask[r, c]
+        r, c = r[inside], c[inside]
         proving[kind] = ProvingHoles(
-            thr, tuple(str(i) for i in holes.index),
-            int((inside & masks["window"][r, c]).sum()), int((inside & any_zone[r, c]).sum()),
-            np.where(inside, p_grid[kind][r, c], np.nan))
+            thr, tuple(str(i) for i in holes.index[inside]),
+            int(masks["window"][r, c].sum()), int(any_zone[r, c].sum()),
+            p_grid[kind][r, c], int((~inside).sum()))
 
     return ScreeningSkill(
         cells=int(m.sum()),

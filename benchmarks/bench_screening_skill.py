@@ -206,9 +206,11 @@ def summary_block(label: str, s: ScreeningSkill) -> list[str]:
                                 strict=True))
         lines.append(f"  reliability P({kind}) [bin cells meanP observed]: {bins}")
     lines += [
-        f"  proving      window holes {pw.count}: {pw.in_window_zone} in a window zone, "
+        f"  proving      window holes {pw.count} (and {pw.n_outside} outside the study area): "
+        f"{pw.in_window_zone} in a window zone, "
         f"{pw.in_any_zone} in any zone, median P(window) at them {_median(pw.p_at_cell):.2f}"
-        f"; thin holes {pt.count}: {pt.in_any_zone} in a window or thin zone, median "
+        f"; thin holes {pt.count} (and {pt.n_outside} outside): {pt.in_any_zone} in a window "
+        f"or thin zone, median "
         f"P(thin) {_median(pt.p_at_cell):.2f}",
         f"  indicator kriging P(T<{s.thin_thickness_m:g} m) ≥ {INDICATOR_OPERATING_P:g}: "
         f"{_rp(s.indicator)} (flagged {s.indicator.flagged_cells}); tool at its precision: "

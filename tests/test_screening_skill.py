@@ -83,7 +83,9 @@ def test_proving_holes_are_counted_in_the_written_zones(region):
     window = zones[zones["kind"] == "window"]
     for kind, column in (("window", "proves_window"), ("thin", "proves_thin")):
         provers = holes[holes[column].astype(str).str.lower() == "true"]
-        assert sorted(s.proving[kind].borehole_ids) == sorted(provers["borehole_id"])
+        ids = s.proving[kind].borehole_ids
+        assert set(ids) <= set(provers["borehole_id"])
+        assert len(ids) + s.proving[kind].n_outside == len(provers)
         in_any = gpd.sjoin(provers, area[["geometry"]], predicate="within")
         in_window = gpd.sjoin(provers, window[["geometry"]], predicate="within")
         assert s.proving[kind].in_any_zone == in_any["borehole_id"].nunique()
