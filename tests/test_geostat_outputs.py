@@ -4,7 +4,6 @@ them, cross-validation residuals, variogram figures, suspicious logs, summary re
 from __future__ import annotations
 
 import json
-import shutil
 
 import geopandas as gpd
 import numpy as np
@@ -17,7 +16,7 @@ from aquitardmap import outputs
 from aquitardmap.grid import NODATA, read_raster
 from aquitardmap.indicator import METHOD as INDICATOR_METHOD
 
-from conftest import DEMO
+from conftest import demo_copy
 
 SURFACES = ("aquitard", "SAND", "UMC", "LMC", "LAM")
 
@@ -114,14 +113,8 @@ def latent_demo_run(tmp_path_factory):
     """The demo region run with ``probability_method = "latent_gaussian"``: the external
     drift of the probabilities exists only with that method (the default, indicator
     kriging, has none)."""
-    proj = tmp_path_factory.mktemp("latent") / "proj"
-    shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
-    toml = proj / "project.toml"
-    text = toml.read_text(encoding="utf-8")
-    assert text.count("[screening]\n") == 1
-    toml.write_text(text.replace("[screening]\n",
-                                 '[screening]\nprobability_method = "latent_gaussian"\n'),
-                    encoding="utf-8")
+    proj = demo_copy(tmp_path_factory.mktemp("latent"),
+                     screening='probability_method = "latent_gaussian"\n')
     return aquitardmap.run(proj, proj.parent / "out")
 
 
