@@ -28,6 +28,15 @@ The influence distance is the range of B's fitted variogram of the total aquitar
 thickness: beyond it a datum has (almost) no weight in ordinary kriging (Isaaks &
 Srivastava 1989, ch. 12), so a zone that changed with no changed hole within it changed
 for another reason (a refitted variogram, other settings), and the reason says so.
+
+The probabilities behind the window and thin zones come from a model refitted at every run
+(``summary.json`` → ``probability``). When that model changed between the runs
+(:func:`probability_model_changes`: the method; per cutoff the source of the indicator
+variogram, its range by more than :data:`MODEL_RANGE_CHANGE`, its nugget share by more than
+:data:`MODEL_NUGGET_SHARE_CHANGE`, the number of chain segments; for the latent-Gaussian
+method the ground drift used or not and the variance scale by more than
+:data:`MODEL_VARIANCE_SCALE_CHANGE`), the summary, the text and the zone reasons name it as
+a likely cause of zone changes: zones may then move far from any new hole.
 """
 
 from __future__ import annotations
@@ -64,6 +73,21 @@ THICKNESS_CHANGE_REPORT_M = 0.5
 #: AVI class names (Van Stempvoort, Ewert & Wassenaar 1993), class 1 to 5.
 AVI_NAMES = {1: "extremely high", 2: "high", 3: "moderate", 4: "low", 5: "extremely low"}
 _HOLE_FIELDS = ("x", "y", "ground_elev_m", "total_depth_m", "log")
+#: Probability-model changes reported as a likely cause of zone changes
+#: (:func:`probability_model_changes`): a variogram range that moved by more than this share
+#: of the earlier range, ...
+MODEL_RANGE_CHANGE = 0.25
+#: ... a nugget share of the sill (nugget / (nugget + partial sills)) that moved by more
+#: than this, ...
+MODEL_NUGGET_SHARE_CHANGE = 0.2
+#: ... and, for the latent-Gaussian method, a variance scale that moved by more than this
+#: share of the earlier one.
+MODEL_VARIANCE_SCALE_CHANGE = 0.25
+#: Zone kinds drawn from the probabilities.
+PROBABILITY_KINDS = ("window", "thin")
+#: Changes whose effect stays near the changed holes (``reach`` of
+#: :func:`probability_model_changes`); every other change acts on the whole study area.
+LOCAL_CHANGES = {"n_continuity_segments": "near the changed holes"}
 
 
 @dataclass
@@ -176,7 +200,10 @@ def _hole_changes(run_a: Path, run_b: Path) -> gpd.GeoDataFrame:
 
 
 def _zone_changes(za: gpd.GeoDataFrame, zb: gpd.GeoDataFrame, holes: gpd.GeoDataFrame,
-                  influence_m: float, cell_area_m2: float, crs) -> gpd.GeoDataFrame:
+                  influence_m: float, cell_area_m2: float, crs, *,
+                  model_changed: bool = False) -> gpd.GeoDataFrame:
+    """Zones gained and lost per kind; with ``model_changed`` (the probability model
+    changed between the runs) every window and thin reason names it as a likely cause."""
     rows = []
     kinds = sorted(set(za["kind"]) | set(zb["kind"]))
     for kind in kinds:
@@ -193,9 +220,18 @@ def _zone_changes(za: gpd.GeoDataFrame, zb: gpd.GeoDataFrame, holes: gpd.GeoData
                 near = holes[holes.distance(part) <= influence_m] if len(holes) else holes
                 near = near.assign(d=near.distance(part)).sort_values("d")
                 ids = [f"{r.borehole_id} ({r.change})" for r in near.itertuples()]
+                by_model = model_changed and kind in PROBABILITY_KINDS
                 if ids:
                     reason = (f"{kind} zone {change}; boreholes within {influence_m:,.0f} m: "
                               + ", ".join(ids[:8]) + (" ..." if len(ids) > 8 else ""))
+                    if by_model:
+                        reason += ("; the probability model also changed between the runs "
+                                   "and may be the cause (see the summary)")
+                elif by_model:
+                    reason = (f"{kind} zone {change} with no new, changed or removed borehole "
+                              f"within {influence_m:,.0f} m: the likely cause is the change "
+                              "of the probability model between the runs (see the summary), "
+                              "not nearby data")
                 else:
                     reason = (f"{kind} zone {change} with no new, changed or removed borehole "
                               f"within {influence_m:,.0f} m: the change comes from the "
@@ -218,6 +254,139 @@ def _influence_m(summary_b: dict, cell_size_m: float) -> float:
     except (KeyError, TypeError, ValueError):
         pass
     return 20.0 * cell_size_m
+
+
+def _distance_text(m: float) -> str:
+    return f"{m / 1000:.1f} km" if m >= 1000 else f"{m:,.0f} m"
+
+
+def _nugget_share(v: dict) -> float:
+    sill = sum(float(v.get(k) or 0.0) for k in ("nugget", "psill", "psill2"))
+    return float(v.get("nugget") or 0.0) / sill if sill > 0 else float("nan")
+
+
+def _cutoff_name(threshold_m: float, prob: dict) -> str:
+    if np.isclose(threshold_m, float(prob.get("window_thickness_m", np.nan))):
+        return "window"
+    if np.isclose(threshold_m, float(prob.get("thin_thickness_m", np.nan))):
+        return "thin-clay"
+    return f"{threshold_m:g} m"
+
+
+def _cutoff_changes(ca: dict, cb: dict) -> list[tuple[str, object, object, str]]:
+    """(what, before, after, words) for one cutoff present in both runs."""
+    out: list[tuple[str, object, object, str]] = []
+    sa, sb = ca.get("variogram_source"), cb.get("variogram_source")
+    if sa != sb:
+        out.append(("variogram_source", sa, sb,
+                    f"its variogram was {sa} and is now {sb}"
+                    + (" (the holes no longer show a structure at this cutoff)"
+                       if sb == "default" else "")))
+    va, vb = ca.get("variogram") or {}, cb.get("variogram") or {}
+    if va.get("model") != vb.get("model"):
+        out.append(("variogram_model", va.get("model"), vb.get("model"),
+                    f"its variogram family went from {va.get('model')} to {vb.get('model')}"))
+    ra, rb = float(va.get("range_m") or np.nan), float(vb.get("range_m") or np.nan)
+    if np.isfinite(ra) and np.isfinite(rb) and ra > 0 \
+            and abs(rb - ra) > MODEL_RANGE_CHANGE * ra:
+        out.append(("range_m", ra, rb, f"its variogram range went from {_distance_text(ra)} "
+                    f"to {_distance_text(rb)}"))
+    na, nb = _nugget_share(va), _nugget_share(vb)
+    if np.isfinite(na) and np.isfinite(nb) and abs(nb - na) > MODEL_NUGGET_SHARE_CHANGE:
+        out.append(("nugget_share", round(na, 4), round(nb, 4),
+                    f"the nugget share of its variogram went from {na:.0%} to {nb:.0%}"))
+    ga, gb = ca.get("n_continuity_segments"), cb.get("n_continuity_segments")
+    if ga is not None and gb is not None and ga != gb:
+        out.append(("n_continuity_segments", int(ga), int(gb),
+                    f"the chains of proving holes it follows went from {ga} to {gb} "
+                    "segments"))
+    return out
+
+
+def probability_model_changes(summary_a: dict, summary_b: dict) -> list[dict]:
+    """Changes of the probability model behind the window and thin zones between two runs,
+    from the ``probability`` section of their ``summary.json`` (module docstring), earliest
+    cutoffs first; ``[]`` when nothing reportable changed.
+
+    Each change: ``{"cutoff_m": threshold or None, "cutoff": "window", "thin-clay", "7.5 m"
+    or "" (for the whole model), "what": "method", "variogram_source", "variogram_model",
+    "range_m", "nugget_share", "n_continuity_segments", "external_drift" or
+    "variance_scale", "before", "after", "reach", "text": plain words}``. ``reach`` is
+    ``"study area"`` for a choice that acts on every cell (a variogram, the drift, the
+    variance scale, the method), ``"near the changed holes"`` for the chains of proving
+    holes: a segment joins two holes at most a few hole spacings apart and is broken by a
+    hole between them, so its count changes only where holes changed.
+    """
+    pa, pb = summary_a.get("probability") or {}, summary_b.get("probability") or {}
+    if not pa or not pb:
+        return []
+    out: list[dict] = []
+
+    def add(cutoff_m, cutoff, what, before, after, text):
+        out.append({"cutoff_m": cutoff_m, "cutoff": cutoff, "what": what, "before": before,
+                    "after": after, "reach": LOCAL_CHANGES.get(what, "study area"),
+                    "text": text})
+
+    if pa.get("method") != pb.get("method"):
+        add(None, "", "method", pa.get("method"), pb.get("method"),
+            f"the probabilities were made by another method ({pa.get('method')} before, "
+            f"{pb.get('method')} now)")
+        return out
+    by_t = {round(float(c["threshold_m"]), 6): c for c in pa.get("cutoffs") or []}
+    for cb in sorted(pb.get("cutoffs") or [], key=lambda c: float(c["threshold_m"])):
+        t = round(float(cb["threshold_m"]), 6)
+        if t not in by_t:
+            continue
+        for what, before, after, text in _cutoff_changes(by_t[t], cb):
+            add(t, _cutoff_name(t, pb), what, before, after, text)
+    da, db = pa.get("external_drift") or {}, pb.get("external_drift") or {}
+    if bool(da.get("used")) != bool(db.get("used")):
+        now = "used" if db.get("used") else "no longer used"
+        add(None, "", "external_drift", bool(da.get("used")), bool(db.get("used")),
+            f"the ground elevation is {now} as a drift of the thickness"
+            + (f" ({db['reason']})" if db.get("reason") else ""))
+    sa, sb = pa.get("variance_scale"), pb.get("variance_scale")
+    if sa is not None and sb is not None and float(sa) > 0 \
+            and abs(float(sb) - float(sa)) > MODEL_VARIANCE_SCALE_CHANGE * float(sa):
+        add(None, "", "variance_scale", float(sa), float(sb),
+            f"the variance scale set by cross-validation went from {float(sa):.2f} to "
+            f"{float(sb):.2f}")
+    return out
+
+
+def probability_model_text(changes: list[dict]) -> str:
+    """The changes of :func:`probability_model_changes` in plain words ("" for none): one
+    sentence for the whole model, one per window and thin-clay cutoff, one for the other
+    cutoffs (used where hazards or the crust cut the clay) when a choice that acts on the
+    whole study area changed there. A sentence with such a change says that zones may have
+    moved for that reason; one with only changes near the changed holes says where they
+    act."""
+    if not changes:
+        return ""
+
+    def sentence(head: str, group: list[dict]) -> str:
+        far = any(c["reach"] == "study area" for c in group)
+        tail = ("zones may have moved for that reason rather than because of the new holes "
+                "nearby." if far else "this acts only near the changed holes.")
+        return head + "; ".join(c["text"] for c in group) + "; " + tail
+
+    sentences = []
+    whole = [c for c in changes if c["cutoff_m"] is None]
+    if whole:
+        sentences.append(sentence("The probability model changed: ", whole))
+    for name in ("window", "thin-clay"):
+        group = [c for c in changes if c["cutoff"] == name]
+        if group:
+            sentences.append(sentence(f"The {name} probability model changed: ", group))
+    others = sorted({c["cutoff"] for c in changes
+                     if c["cutoff_m"] is not None and c["reach"] == "study area"
+                     and c["cutoff"] not in ("window", "thin-clay")},
+                    key=lambda n: float(n.split()[0]))
+    if others:
+        sentences.append("The probability model also changed at the cutoff(s) "
+                         + ", ".join(others) + " (used where hazards or the weathered crust "
+                         "cut the clay); see changes.json.")
+    return " ".join(sentences)
 
 
 def default_changes_dir(run_b: str | Path) -> Path:
@@ -269,10 +438,17 @@ def compare_runs(run_a: str | Path, run_b: str | Path, *, name_a: str | None = N
 
     holes = _hole_changes(run_a, run_b)
     influence = _influence_m(sb, grid.cell_size_m)
+    model = probability_model_changes(sa, sb)
+    model_far = any(c["reach"] == "study area" for c in model)
     zones = _zone_changes(_read_zones(run_a), _read_zones(run_b), holes, influence,
-                          grid.cell_area_m2, grid.crs)
+                          grid.cell_area_m2, grid.crs, model_changed=model_far)
     cmp = Comparison(run_a, run_b, zones, holes, grid, change, avi_change, influence)
     cmp.summary = _summary(cmp, sa, sb, avi_counts, both)
+    cmp.summary["probability_model"] = {
+        "method_a": (sa.get("probability") or {}).get("method"),
+        "method_b": (sb.get("probability") or {}).get("method"),
+        "changed": bool(model), "changed_over_study_area": model_far, "changes": model,
+        "text": probability_model_text(model)}
     if name_a is not None:
         cmp.summary["run_a"]["folder"] = name_a
     cmp.text = _plain_text(cmp.summary)
@@ -354,6 +530,9 @@ def _plain_text(s: dict) -> str:
         a = s["avi_class"]
         lines.append(f"Vulnerability class (AVI): {_km2(a['more_vulnerable_km2'])} became more "
                      f"vulnerable and {_km2(a['less_vulnerable_km2'])} less vulnerable.")
+    model = (s.get("probability_model") or {}).get("text")
+    if model:
+        lines.append(model)
     lines.append(f"Each changed zone lists the changed boreholes within "
                  f"{s['influence_distance_m']:,.0f} m (the range of the fitted variogram); "
                  "see changes.gpkg and changes_map.html.")
@@ -434,4 +613,4 @@ def write_comparison(cmp: Comparison, out_dir: str | Path) -> list[str]:
 
 
 __all__ = ["Comparison", "check_run", "compare_runs", "default_changes_dir",
-           "write_comparison"]
+           "probability_model_changes", "probability_model_text", "write_comparison"]

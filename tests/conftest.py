@@ -54,14 +54,28 @@ def pytest_terminal_summary(terminalreporter):
         terminalreporter.write_line(f"{sum(GENERATED_CASES.values()):6d}  in total")
 
 
-def demo_copy_with_new_hole(tmp_path: Path, hole_id: str) -> tuple[Path, list[Path]]:
-    """A copy of the demo project in ``tmp_path / "proj"`` (no truth, no scripts) and one
-    new full-penetration hole ``hole_id`` (3 m sand, 1 m clay, then the aquifer) as
-    ``collars_n.csv`` and ``intervals_n.csv`` beside it, ready to ``add``."""
+def demo_copy(tmp_path: Path, name: str = "proj", *, screening: str = "") -> Path:
+    """A copy of the demo project in ``tmp_path / name`` (no truth, no scripts); the lines
+    ``screening`` (e.g. ``'probability_method = "latent_gaussian"\n'``) are added at the
+    top of its ``[screening]`` table."""
     import shutil
 
-    proj = tmp_path / "proj"
+    proj = tmp_path / name
     shutil.copytree(DEMO, proj, ignore=shutil.ignore_patterns("truth", "*.py"))
+    if screening:
+        toml = proj / "project.toml"
+        text = toml.read_text(encoding="utf-8")
+        assert text.count("[screening]\n") == 1
+        toml.write_text(text.replace("[screening]\n", "[screening]\n" + screening),
+                        encoding="utf-8")
+    return proj
+
+
+def demo_copy_with_new_hole(tmp_path: Path, hole_id: str) -> tuple[Path, list[Path]]:
+    """A copy of the demo project in ``tmp_path / "proj"`` (:func:`demo_copy`) and one
+    new full-penetration hole ``hole_id`` (3 m sand, 1 m clay, then the aquifer) as
+    ``collars_n.csv`` and ``intervals_n.csv`` beside it, ready to ``add``."""
+    proj = demo_copy(tmp_path)
     collars, intervals = tmp_path / "collars_n.csv", tmp_path / "intervals_n.csv"
     collars.write_text("borehole_id,x,y,ground_elev_m,total_depth_m\n"
                        f"{hole_id},551000.0,6716000.0,55.0,30.0\n")

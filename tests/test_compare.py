@@ -30,6 +30,8 @@ from aquitardmap.compare import (
     THICKNESS_CHANGE,
     ZONE_CHANGES_LAYER,
     compare_runs,
+    probability_model_changes,
+    probability_model_text,
     write_comparison,
 )
 from aquitardmap.errors import InputError
@@ -42,7 +44,8 @@ CELL = 50.0
 X0, Y0 = 500000.0, 6700000.0  # upper-left corner of run A's grid
 
 
-def _run(folder, *, x0, width, height, thickness, zones, holes, avi=None, range_m=300.0):
+def _run(folder, *, x0, width, height, thickness, zones, holes, avi=None, range_m=300.0,
+         probability=None):
     folder.mkdir()
     t = Affine(CELL, 0, x0, 0, -CELL, Y0)
     g = Grid(t, width, height, CRS_M, np.ones((height, width), bool))
@@ -60,7 +63,8 @@ def _run(folder, *, x0, width, height, thickness, zones, holes, avi=None, range_
     (folder / outputs.SUMMARY).write_text(json.dumps({
         "run": {"started_utc": "2030-01-01T00:00:00+00:00"},
         "counts": {"boreholes": len(holes)},
-        "surfaces": {"aquitard": {"variogram": {"range_m": range_m}}}}))
+        "surfaces": {"aquitard": {"variogram": {"range_m": range_m}}},
+        **({"probability": probability} if probability is not None else {})}))
     return folder
 
 
@@ -149,6 +153,129 @@ def test_escapes_user_text_in_the_map(runs, tmp_path):
     write_comparison(cmp, tmp_path / "out")
     text = (tmp_path / "out" / CHANGES_MAP).read_text()
     assert evil not in text and "&lt;img src=x onerror=alert(1)&gt;" in text
+
+
+# ------------------------------------------------------ changes of the probability model
+def _cutoff(threshold_m, *, source="fitted", nugget=0.01, psill=0.09, range_m=1900.0,
+            segments=10):
+    return {"threshold_m": threshold_m, "n_data": 300, "n_event": 20,
+            "variogram": {"model": "exponential", "nugget": nugget, "psill": psill,
+                          "range_m": range_m, "anisotropy_ratio": 1.0,
+                          "anisotropy_angle_deg": 0.0, "model2": "", "psill2": 0.0,
+                          "range2_m": 0.0},
+            "variogram_source": source, "n_continuity_segments": segments}
+
+
+def _indicator(window=None, thin=None, other=None):
+    """A ``summary.json`` of the indicator method: cutoffs 1 m (window), 5 m (thin) and
+    7.5 m (a hazard-cut cell's)."""
+    return {"probability": {
+        "method": "indicator kriging with continuity along chains of proving holes",
+        "window_thickness_m": 1.0, "thin_thickness_m": 5.0,
+        "cutoffs": [_cutoff(1.0, **(window or {})), _cutoff(5.0, **(thin or {})),
+                    _cutoff(7.5, **(other or {}))],
+        "external_drift": {"used": False}}}
+
+
+def _latent(used=True, scale=0.26):
+    return {"probability": {"method": "latent Gaussian", "variance_scale": scale,
+                            "external_drift": {"used": used, "reason": "cross-validation"}}}
+
+
+def _what(changes):
+    return {(c["cutoff"], c["what"]): (c["before"], c["after"]) for c in changes}
+
+
+def test_same_model_reports_nothing():
+    assert probability_model_changes(_indicator(), _indicator()) == []
+    assert probability_model_changes(_latent(), _latent(scale=0.3)) == []  # 15 % < 25 %
+    assert probability_model_text([]) == ""
+    assert probability_model_changes({}, _indicator()) == []  # a run without probabilities
+
+
+def test_a_range_change_beyond_a_quarter_is_reported_in_plain_words():
+    changes = probability_model_changes(_indicator(thin={"range_m": 1900.0}),
+                                        _indicator(thin={"range_m": 3100.0}))
+    assert _what(changes) == {("thin-clay", "range_m"): (1900.0, 3100.0)}
+    assert changes[0]["cutoff_m"] == 5.0 and changes[0]["reach"] == "study area"
+    assert probability_model_text(changes) == (
+        "The thin-clay probability model changed: its variogram range went from 1.9 km to "
+        "3.1 km; zones may have moved for that reason rather than because of the new holes "
+        "nearby.")
+    # 1900 m x 1.2 is within the 25 % (hand arithmetic)
+    assert probability_model_changes(_indicator(thin={"range_m": 1900.0}),
+                                     _indicator(thin={"range_m": 2280.0})) == []
+
+
+def test_a_source_flip_and_a_nugget_share_change_are_reported():
+    # nugget shares: 0.01 / 0.10 = 0.10 before; 0.04 / 0.10 = 0.40 after (change 0.30)
+    a = _indicator(window={"source": "fitted"}, other={"nugget": 0.01, "psill": 0.09})
+    b = _indicator(window={"source": "default"}, other={"nugget": 0.04, "psill": 0.06})
+    got = _what(probability_model_changes(a, b))
+    assert got == {("window", "variogram_source"): ("fitted", "default"),
+                   ("7.5 m", "nugget_share"): (0.1, 0.4)}
+    text = probability_model_text(probability_model_changes(a, b))
+    assert text.startswith("The window probability model changed: its variogram was fitted "
+                           "and is now default")
+    assert "at the cutoff(s) 7.5 m" in text
+    # a change of 0.15 in the nugget share is not reported: 0.01/0.1 -> 0.025/0.1
+    assert probability_model_changes(
+        _indicator(other={"nugget": 0.01, "psill": 0.09}),
+        _indicator(other={"nugget": 0.025, "psill": 0.075})) == []
+
+
+def test_chain_segments_are_reported_as_acting_near_the_changed_holes():
+    changes = probability_model_changes(_indicator(window={"segments": 50}),
+                                        _indicator(window={"segments": 48}))
+    assert _what(changes) == {("window", "n_continuity_segments"): (50, 48)}
+    assert changes[0]["reach"] == "near the changed holes"
+    assert probability_model_text(changes) == (
+        "The window probability model changed: the chains of proving holes it follows went "
+        "from 50 to 48 segments; this acts only near the changed holes.")
+
+
+def test_latent_drift_flip_and_variance_scale_are_reported():
+    # the issue's numbers: the drift choice flipped, the variance scale went 0.26 -> 0.63
+    changes = probability_model_changes(_latent(True, 0.26), _latent(False, 0.63))
+    assert _what(changes) == {("", "external_drift"): (True, False),
+                              ("", "variance_scale"): (0.26, 0.63)}
+    text = probability_model_text(changes)
+    assert text.startswith("The probability model changed: the ground elevation is no "
+                           "longer used as a drift of the thickness")
+    assert "the variance scale set by cross-validation went from 0.26 to 0.63" in text
+    assert text.endswith("zones may have moved for that reason rather than because of the "
+                         "new holes nearby.")
+
+
+def test_a_method_change_is_reported_alone():
+    changes = probability_model_changes(_latent(), _indicator())
+    assert [c["what"] for c in changes] == ["method"]
+    assert "another method" in probability_model_text(changes)
+
+
+def test_compare_names_a_changed_probability_model_in_summary_text_and_zone_reasons(
+        runs, tmp_path):
+    a, b = runs
+    for folder, summary in ((a, _indicator(thin={"range_m": 1900.0})),
+                            (b, _indicator(thin={"range_m": 3100.0}))):
+        s = json.loads((folder / outputs.SUMMARY).read_text())
+        (folder / outputs.SUMMARY).write_text(json.dumps({**s, **summary}))
+    cmp = compare_runs(a, b)
+    pm = cmp.summary["probability_model"]
+    assert pm["changed"] and pm["changed_over_study_area"]
+    assert _what(pm["changes"]) == {("thin-clay", "range_m"): (1900.0, 3100.0)}
+    assert "its variogram range went from 1.9 km to 3.1 km" in cmp.text
+    assert cmp.zone_changes["reason"].str.contains("probability model").all()
+    write_comparison(cmp, tmp_path / "out")
+    written = json.loads((tmp_path / "out" / CHANGES_JSON).read_text())
+    assert written["probability_model"] == json.loads(json.dumps(pm))
+
+
+def test_runs_without_a_model_change_say_nothing_about_it(runs):
+    cmp = compare_runs(*runs)  # no probability records in these summaries
+    assert cmp.summary["probability_model"]["changed"] is False
+    assert "probability model" not in cmp.text
+    assert not cmp.zone_changes["reason"].str.contains("probability model").any()
 
 
 @pytest.mark.slow

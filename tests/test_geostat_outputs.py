@@ -11,8 +11,12 @@ import pandas as pd
 import pytest
 import rasterio
 
+import aquitardmap
 from aquitardmap import outputs
 from aquitardmap.grid import NODATA, read_raster
+from aquitardmap.indicator import METHOD as INDICATOR_METHOD
+
+from conftest import demo_copy
 
 SURFACES = ("aquitard", "SAND", "UMC", "LMC", "LAM")
 
@@ -104,7 +108,25 @@ def test_a_variogram_figure_per_surface_listed_in_the_summary(demo_run, summary)
                                               "variance_standardised_error"}
 
 
-def test_the_drift_residual_variogram_is_drawn_and_linked_when_used(demo_run, summary):
+@pytest.fixture(scope="module")
+def latent_demo_run(tmp_path_factory):
+    """The demo region run with ``probability_method = "latent_gaussian"``: the external
+    drift of the probabilities exists only with that method (the default, indicator
+    kriging, has none)."""
+    proj = demo_copy(tmp_path_factory.mktemp("latent"),
+                     screening='probability_method = "latent_gaussian"\n')
+    return aquitardmap.run(proj, proj.parent / "out")
+
+
+def test_the_default_method_has_no_drift_and_draws_no_residual_variogram(summary):
+    assert summary["probability"]["external_drift"] == {"used": False}
+    assert "aquitard_residual" not in summary["figures"]["variograms"]
+
+
+def test_the_drift_residual_variogram_is_drawn_and_linked_when_used(latent_demo_run):
+    run = latent_demo_run
+    summary = json.loads((run.out_dir / outputs.SUMMARY).read_text())
+    assert summary["probability"]["method"] != INDICATOR_METHOD
     drift = summary["probability"]["external_drift"]
     assert drift["used"]  # the demo's ground explains part of the thickness (README)
     assert drift["cross_validation_with_drift"]["rmse"] < drift["cross_validation_ordinary"][
@@ -112,8 +134,8 @@ def test_the_drift_residual_variogram_is_drawn_and_linked_when_used(demo_run, su
     fname = outputs.variogram_figure("aquitard_residual")
     assert summary["figures"]["variograms"]["aquitard_residual"] == fname
     assert fname in summary["outputs"]
-    assert (demo_run.out_dir / fname).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    page = (demo_run.out_dir / "map.html").read_text(encoding="utf-8")
+    assert (run.out_dir / fname).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (run.out_dir / "map.html").read_text(encoding="utf-8")
     for name in [*SURFACES, "aquitard_residual"]:
         assert f'href="{outputs.variogram_figure(name)}"' in page
 
