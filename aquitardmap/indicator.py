@@ -42,7 +42,7 @@ correction (Deutsch & Journel 1998, *GSLIB*, 2nd ed., §IV.1.9, from memory).
 centre lies within ``location_sd_m`` of it, gets at least ``hard_floor`` (0.9): the
 location error of water-well records may spread the evidence, never erase it.
 
-All functions are pure numpy on arrays; :func:`indicator_probabilities` makes the grids.
+All functions work on plain arrays; :func:`indicator_probabilities` makes the grids.
 """
 
 from __future__ import annotations
@@ -299,6 +299,10 @@ def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray
     geometrically anisotropic along that direction (rounded to one of
     :data:`DIRECTION_BINS`): the major range stays the model's range and the minor one is
     divided by ``continuity_ratio``.
+
+    Each model's targets are kriged by :func:`aquitardmap.kriging.krige_points` (the local
+    engine, nearest ``max_neighbours`` data in the anisotropy frame), so memory stays
+    bounded by its tiles whatever the number of targets.
     """
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     out = np.empty(tx.size)

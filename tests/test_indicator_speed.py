@@ -5,8 +5,10 @@ Reference: the loop versions of ``continuity_segments``, ``local_direction_deg``
 ``honour_hard_data``, and ``krige_indicator`` on :func:`aquitardmap.kriging.weights_at`
 (batched LAPACK solves of every system; itself checked against gstools in
 tests/test_indicator.py), copied below as they were before the speed-up. Segments, directions
-and the honoured cdf must be identical; the kriged indicators equal to 1e-12 (the local
-engine orders each neighbourhood's sums differently and reuses factorisations).
+and the honoured cdf must be identical; the kriged indicators equal to 1e-12 near the origin
+(the local engine orders each neighbourhood's sums differently and reuses factorisations),
+and to 1e-10 at projected coordinates of millions of metres, where the former code's own
+result moves by about 1e-11 under a shift of the origin.
 """
 
 from __future__ import annotations
@@ -267,6 +269,28 @@ def test_kriged_indicators_at_the_data_and_across_blocks():
     ref = ref_krige_indicator(data, m, xt, yt, max_neighbours=32)
     assert np.allclose(got, ref, rtol=0, atol=1e-12)
     assert np.allclose(got[:400], data.value, atol=1e-12)
+
+
+def test_kriged_indicators_in_projected_coordinates_agree_to_their_own_rounding():
+    # Data and targets at UTM-like coordinates (6.7e6 m: one unit in the last place is
+    # about 1e-9 m). The former code rotates about the origin, the engine about the data's
+    # centre, so distances differ in their last places: the former code's own result moves
+    # by about as much when everything is shifted to the origin (checked here), and the new
+    # one stays within 1e-10 of it.
+    data, (xt, yt) = _data(600, 13, 0.2, side_m=12_000.0), _targets(13, n=2_000)
+    xt, yt = xt * 4, yt * 4
+    rng = np.random.default_rng(13)
+    direction = np.where(rng.uniform(size=xt.size) < 0.5, rng.uniform(0, 180, xt.size), np.nan)
+    m = VariogramModel("exponential", nugget=0.0, psill=0.16, range_m=1500.0)
+    ox, oy = 548_000.0, 6_712_000.0
+    far = IndicatorData(data.x_m + ox, data.y_m + oy, data.value, 5.0)
+    for kwargs in ({}, {"direction_deg": direction, "continuity_ratio": 4.0}):
+        ref_here = ref_krige_indicator(data, m, xt, yt, **kwargs)
+        ref_far = ref_krige_indicator(far, m, xt + ox, yt + oy, **kwargs)
+        got_far = krige_indicator(far, m, xt + ox, yt + oy, **kwargs)
+        assert np.abs(ref_far - ref_here).max() > 1e-13  # the former code's own rounding
+        assert np.allclose(got_far, ref_far, rtol=0, atol=1e-10)
+        assert np.allclose(got_far, ref_here, rtol=0, atol=1e-10)
 
 
 # ------------------------------------------------------------------ honour_hard_data
