@@ -42,11 +42,12 @@ correction (Deutsch & Journel 1998, *GSLIB*, 2nd ed., §IV.1.9, from memory).
 centre lies within ``location_sd_m`` of it, gets at least ``hard_floor`` (0.9): the
 location error of water-well records may spread the evidence, never erase it.
 
-All functions are pure numpy on arrays; :func:`indicator_probabilities` makes the grids.
+All functions work on plain arrays; :func:`indicator_probabilities` makes the grids.
 """
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, field, replace
 
@@ -54,7 +55,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import merge_coincident, prepare_locations, weights_at
+from aquitardmap.kriging import krige_points, merge_coincident
 from aquitardmap.variogram import (
     VariogramModel,
     default_lags,
@@ -81,8 +82,6 @@ INDICATOR_MODEL = "exponential"
 MIN_STRUCTURED_SHARE = 0.5
 #: Directions the local anisotropy is rounded to (degrees between them: 180 / this).
 DIRECTION_BINS = 12
-#: Cells handled at once (bounds the memory of the kriging weights).
-CELLS_PER_BLOCK = 65_536
 
 
 @dataclass(frozen=True)
@@ -169,46 +168,77 @@ def continuity_segments(data: IndicatorData, *, max_length_m: float, corridor_m:
                         ) -> np.ndarray:
     """Segments (n, 4: x0, y0, x1, y1) between pairs of event locations at most
     ``max_length_m`` apart with no non-event location within ``corridor_m`` of the segment
-    between them: where the holes suggest a feature runs on (module docstring)."""
+    between them: where the holes suggest a feature runs on (module docstring).
+
+    Pairs come in the order of the data (first by the earlier location, then by the later).
+    Only pairs a k-d tree finds within ``max_length_m`` are tested (the test itself is
+    unchanged), and the corridors of all pairs are searched in one call.
+    """
     ev = np.flatnonzero(data.value > 0.5)
     non = np.flatnonzero(data.value <= 0.5)
     if ev.size < 2:
         return np.empty((0, 4))
     x, y = data.x_m, data.y_m
-    tree = cKDTree(np.column_stack([x[non], y[non]])) if non.size else None
-    segs = []
-    for a_i, a in enumerate(ev[:-1]):
-        for b in ev[a_i + 1:]:
-            dx, dy = x[b] - x[a], y[b] - y[a]
-            length = math.hypot(dx, dy)
-            if length > max_length_m or length <= COINCIDENT_M:
-                continue
-            blocked = False
-            if tree is not None:
-                near = tree.query_ball_point([(x[a] + x[b]) / 2, (y[a] + y[b]) / 2],
-                                             length / 2 + corridor_m)
-                if near:
-                    px, py = x[non[near]] - x[a], y[non[near]] - y[a]
-                    s = (px * dx + py * dy) / length**2
-                    off = np.abs(py * dx - px * dy) / length
-                    blocked = bool(np.any((s > 0) & (s < 1) & (off < corridor_m)))
-            if not blocked:
-                segs.append((x[a], y[a], x[b], y[b]))
-    return np.array(segs, dtype=float).reshape(-1, 4)
+    # candidate pairs: a slightly larger radius, so that the exact length test below (the
+    # one that decides) sees every pair it would accept
+    pairs = cKDTree(np.column_stack([x[ev], y[ev]])).query_pairs(
+        max_length_m * (1.0 + 1e-9) + 1e-9, output_type="ndarray")
+    if pairs.size == 0:
+        return np.empty((0, 4))
+    pairs = pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))]
+    a, b = ev[pairs[:, 0]], ev[pairs[:, 1]]
+    dx, dy = x[b] - x[a], y[b] - y[a]
+    # lengths and their squares in Python floats, as the tests of the pairs always were
+    length_list = [math.hypot(u, v) for u, v in zip(dx.tolist(), dy.tolist(), strict=True)]
+    length = np.array(length_list)
+    length2 = np.array([v**2 for v in length_list])
+    keep = (length <= max_length_m) & (length > COINCIDENT_M)
+    a, b, dx, dy = a[keep], b[keep], dx[keep], dy[keep]
+    length, length2 = length[keep], length2[keep]
+    if a.size == 0:
+        return np.empty((0, 4))
+    blocked = np.zeros(a.size, bool)
+    if non.size:
+        tree = cKDTree(np.column_stack([x[non], y[non]]))
+        near = tree.query_ball_point(np.column_stack([(x[a] + x[b]) / 2, (y[a] + y[b]) / 2]),
+                                     length / 2 + corridor_m)
+        counts = np.fromiter((len(n) for n in near), dtype=np.int64, count=a.size)
+        if counts.sum():
+            pair = np.repeat(np.arange(a.size), counts)
+            pts = non[np.fromiter(itertools.chain.from_iterable(near), dtype=np.int64,
+                                  count=int(counts.sum()))]
+            px, py = x[pts] - x[a[pair]], y[pts] - y[a[pair]]
+            pdx, pdy = dx[pair], dy[pair]
+            s = (px * pdx + py * pdy) / length2[pair]
+            off = np.abs(py * pdx - px * pdy) / length[pair]
+            hit = (s > 0) & (s < 1) & (off < corridor_m)
+            blocked = np.bincount(pair[hit], minlength=a.size) > 0
+    ok = ~blocked
+    return np.column_stack([x[a[ok]], y[a[ok]], x[b[ok]], y[b[ok]]]).astype(float).reshape(-1, 4)
 
 
 def local_direction_deg(segments: np.ndarray, xt_m: np.ndarray, yt_m: np.ndarray,
                         reach_m: float) -> np.ndarray:
     """Direction (degrees counter-clockwise from east, in [0, 180)) of the segment nearest
-    each target within ``reach_m`` of it; NaN where no segment is that near."""
+    each target within ``reach_m`` of it; NaN where no segment is that near (on a tie, the
+    earlier segment).
+
+    The targets are sorted once into square buckets of about ``reach_m``; each segment then
+    looks only at the buckets its box (the segment's bounding box grown by ``reach_m``)
+    touches, so the cost follows the cells near the chains, not the whole grid.
+    """
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     angle = np.full(tx.size, np.nan)
     best = np.full(tx.size, np.inf)
-    for x0, y0, x1, y1 in segments:
+    segs = np.asarray(segments, float).reshape(-1, 4)
+    if tx.size == 0 or segs.shape[0] == 0:
+        return angle
+    buckets = _TargetBuckets(tx, ty, reach_m)
+    for x0, y0, x1, y1 in segs.tolist():
         dx, dy = x1 - x0, y1 - y0
         lo_x, hi_x = min(x0, x1) - reach_m, max(x0, x1) + reach_m
         lo_y, hi_y = min(y0, y1) - reach_m, max(y0, y1) + reach_m
-        box = np.flatnonzero((tx >= lo_x) & (tx <= hi_x) & (ty >= lo_y) & (ty <= hi_y))
+        box = buckets.within(lo_x, hi_x, lo_y, hi_y)
         if box.size == 0:
             continue
         s = np.clip(((tx[box] - x0) * dx + (ty[box] - y0) * dy) / (dx * dx + dy * dy), 0, 1)
@@ -217,6 +247,46 @@ def local_direction_deg(segments: np.ndarray, xt_m: np.ndarray, yt_m: np.ndarray
         best[box[better]] = d[better]
         angle[box[better]] = math.degrees(math.atan2(dy, dx)) % 180.0
     return angle
+
+
+class _TargetBuckets:
+    """Targets sorted into square buckets (row by row) for box queries."""
+
+    def __init__(self, x_m: np.ndarray, y_m: np.ndarray, side_m: float) -> None:
+        self.x, self.y = x_m, y_m
+        finite = np.isfinite(x_m) & np.isfinite(y_m)
+        self.x0 = float(x_m[finite].min()) if finite.any() else 0.0
+        self.y0 = float(y_m[finite].min()) if finite.any() else 0.0
+        span = max(float(np.ptp(x_m[finite])) if finite.any() else 0.0,
+                   float(np.ptp(y_m[finite])) if finite.any() else 0.0, 1.0)
+        # about reach-sized buckets, but never more than about 4 per target
+        self.side = max(float(side_m), span / max(2.0 * math.sqrt(x_m.size), 1.0), 1e-6)
+        ix = np.where(finite, np.floor((x_m - self.x0) / self.side), 0).astype(np.int64)
+        iy = np.where(finite, np.floor((y_m - self.y0) / self.side), 0).astype(np.int64)
+        self.nx, self.ny = int(ix.max()) + 1, int(iy.max()) + 1
+        key = iy * self.nx + ix
+        self.order = np.argsort(key, kind="stable")
+        self.start = np.searchsorted(key[self.order], np.arange(self.nx * self.ny + 1))
+        self.finite = finite
+
+    def within(self, lo_x: float, hi_x: float, lo_y: float, hi_y: float) -> np.ndarray:
+        """Indices (ascending) of the targets with lo_x ≤ x ≤ hi_x and lo_y ≤ y ≤ hi_y."""
+        c0 = max(int(math.floor((lo_x - self.x0) / self.side)) - 1, 0)
+        c1 = min(int(math.floor((hi_x - self.x0) / self.side)) + 1, self.nx - 1)
+        r0 = max(int(math.floor((lo_y - self.y0) / self.side)) - 1, 0)
+        r1 = min(int(math.floor((hi_y - self.y0) / self.side)) + 1, self.ny - 1)
+        if c0 > c1 or r0 > r1:
+            return np.empty(0, dtype=np.int64)
+        rows = np.arange(r0, r1 + 1) * self.nx
+        lo, hi = self.start[rows + c0], self.start[rows + c1 + 1]
+        n = hi - lo
+        if n.sum() == 0:
+            return np.empty(0, dtype=np.int64)
+        idx = self.order[np.repeat(lo - np.cumsum(np.r_[0, n[:-1]]), n)
+                         + np.arange(int(n.sum()))]
+        tx, ty = self.x[idx], self.y[idx]
+        inside = (tx >= lo_x) & (tx <= hi_x) & (ty >= lo_y) & (ty <= hi_y)
+        return np.sort(idx[inside])
 
 
 def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray,
@@ -229,6 +299,10 @@ def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray
     geometrically anisotropic along that direction (rounded to one of
     :data:`DIRECTION_BINS`): the major range stays the model's range and the minor one is
     divided by ``continuity_ratio``.
+
+    Each model's targets are kriged by :func:`aquitardmap.kriging.krige_points` (the local
+    engine, nearest ``max_neighbours`` data in the anisotropy frame), so memory stays
+    bounded by its tiles whatever the number of targets.
     """
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     out = np.empty(tx.size)
@@ -249,11 +323,8 @@ def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray
     for m, sel in groups:
         if sel.size == 0:
             continue
-        loc = prepare_locations(data.x_m, data.y_m, m)
-        for start in range(0, sel.size, CELLS_PER_BLOCK):
-            part = sel[start:start + CELLS_PER_BLOCK]
-            w = weights_at(loc, tx[part], ty[part], max_neighbours=max_neighbours)
-            out[part] = w.apply(data.value)
+        out[sel] = krige_points(data.x_m, data.y_m, data.value, m, tx[sel], ty[sel],
+                                max_neighbours=max_neighbours).estimate
     return np.clip(out, 0.0, 1.0)
 
 
@@ -406,14 +477,17 @@ def honour_hard_data(cdf: np.ndarray, cutoffs_m: np.ndarray, x_m: np.ndarray,
     own = (np.full(hx.size, -1) if own_target is None
            else np.asarray(own_target, int).ravel()[proves])
     near = tree.query_ball_point(np.column_stack([hx, hy]), max(radius_m, 0.0))
-    for i in range(hx.size):
-        cols = np.flatnonzero(cutoffs_m > ht[i])
-        cells = np.asarray(near[i], int)
-        if own[i] >= 0:
-            cells = np.unique(np.r_[own[i], cells])
-        if cols.size == 0 or cells.size == 0:
-            continue
-        out[np.ix_(cells, cols)] = np.maximum(out[np.ix_(cells, cols)], floor)
+    # every (cell, hole) pair, the hole's own cell included; a cell is raised at each cutoff
+    # above the thinnest thickness proven in it (raising to the floor twice changes nothing)
+    counts = np.fromiter((len(n) for n in near), dtype=np.int64, count=hx.size)
+    cells = np.r_[np.fromiter(itertools.chain.from_iterable(near), dtype=np.int64,
+                              count=int(counts.sum())), own[own >= 0]]
+    thin = np.r_[np.repeat(ht, counts), ht[own >= 0]]
+    cut = np.asarray(cutoffs_m, float)
+    for j in range(cut.size):
+        rows = np.unique(cells[cut[j] > thin])
+        if rows.size:
+            out[rows, j] = np.maximum(out[rows, j], floor)
     return out
 
 
