@@ -179,7 +179,7 @@ def test_zone_tiers_have_documented_defaults_and_are_read(tmp_path):
     p = read_project(_project(tmp_path, MINIMAL))
     s = p.screening
     assert (s.p_window_threshold, s.p_thin_threshold) == (0.5, 0.5)
-    assert (s.p_window_possible_threshold, s.p_thin_possible_threshold) == (0.15, 0.15)
+    assert (s.p_window_possible_threshold, s.p_thin_possible_threshold) == (0.2, 0.2)
     p = read_project(_project(tmp_path, MINIMAL + "\n[screening]\np_window_threshold = 0.6\n"
                               "p_window_possible_threshold = 0.6\n"
                               "p_thin_possible_threshold = 0.05\n"))
@@ -194,7 +194,7 @@ def test_zone_tiers_have_documented_defaults_and_are_read(tmp_path):
      "p_window_threshold (0.4, the likely tier)"),
     # only the likely threshold set, below the default possible one: pointed at it
     ("p_thin_threshold = 0.1\n", 19,
-     "[screening] p_thin_possible_threshold (0.15, the possible tier) must be <= "
+     "[screening] p_thin_possible_threshold (0.2, the possible tier) must be <= "
      "p_thin_threshold (0.1, the likely tier)"),
     ("p_thin_possible_threshold = 0\n", 19, "[screening] p_thin_possible_threshold must be > 0"),
     ("p_window_possible_threshold = 1.2\n", 19,

@@ -140,8 +140,8 @@ def test_a_cell_at_0_3_is_possible_and_one_at_0_6_likely():
     hi, mid, lo = _square_patches(g, [(500, 500), (1500, 500), (2500, 500)])
     p = np.where(hi, 0.6, np.where(mid, 0.3, np.where(lo, 0.1, 0.0)))
     t = np.full(p.shape, 20.0)
-    th = ScreeningThresholds()  # likely 0.5, possible 0.15 (provisional defaults)
-    assert (th.p_window_threshold, th.p_window_possible_threshold) == (0.5, 0.15)
+    th = ScreeningThresholds()  # likely 0.5, possible 0.2 (README, Zones)
+    assert (th.p_window_threshold, th.p_window_possible_threshold) == (0.5, 0.2)
     # Thin zones from P(thin) alone (P(window) 0 everywhere).
     zones = zones_from_grids(t, t * 0 + 1, t * 100, p, g, th, p_window=np.zeros(p.shape))
     thin = zones[zones.kind == "thin"].set_index("tier")
@@ -151,9 +151,9 @@ def test_a_cell_at_0_3_is_possible_and_one_at_0_6_likely():
     assert thin.loc["likely", "probability"] == pytest.approx(0.6)
     assert thin.loc["possible", "max_probability"] == pytest.approx(0.3)
     assert thin.loc["likely", "p_threshold"] == 0.5
-    assert thin.loc["possible", "p_threshold"] == 0.15
+    assert thin.loc["possible", "p_threshold"] == 0.2
     assert "tier likely: the probability is at least 50%" in thin.loc["likely", "reason"]
-    assert ("tier possible: cannot be ruled out, probability at least 15%; a hole here "
+    assert ("tier possible: cannot be ruled out, probability at least 20%; a hole here "
             "would "
             "tell" in thin.loc["possible", "reason"])
     areas = zone_tier_areas_m2(zones)
