@@ -486,10 +486,19 @@ def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarr
 def aquitard_probabilities(inputs: Inputs, total: Surface,
                            thresholds_m: dict[str, float | np.ndarray]
                            ) -> ThicknessProbabilities:
-    """P(total aquitard thickness < threshold) grids (:mod:`aquitardmap.probability`), with
-    the ground elevation as an external drift when ``[kriging] external_drift`` and the
-    cross-validation say so (:mod:`aquitardmap.drift`); otherwise with the total thickness's
-    variogram. The variance level comes from the cross-validation of the model used."""
+    """P(total aquitard thickness < threshold) grids by the ``[screening]
+    probability_method``.
+
+    ``"indicator"`` (default): indicator kriging with continuity along chains of proving
+    holes (:mod:`aquitardmap.indicator`; ``total`` is not used), its neighbourhood the
+    kriging's ``max_neighbours`` up to 32, and the blocked cross-validation of the window
+    and thin probabilities at the holes (:func:`aquitardmap.indicator.cross_validate`) in
+    the record's ``cross_validation``.
+
+    ``"latent_gaussian"``: :mod:`aquitardmap.probability`, with the ground elevation as an
+    external drift when ``[kriging] external_drift`` and the cross-validation say so
+    (:mod:`aquitardmap.drift`), otherwise with the total thickness's variogram; the
+    variance level comes from the cross-validation of the model used."""
     p = inputs.project
     th = p.screening
     used = inputs.columns[~inputs.columns["excluded"]]
