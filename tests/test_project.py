@@ -206,3 +206,25 @@ def test_zone_tier_thresholds_are_checked_at_their_line(tmp_path, lines, line, w
     probs = _problems(tmp_path, MINIMAL + "\n[screening]\n" + lines)
     assert any(p.file == "project.toml" and p.line == line and p.column == 1
                and words in p.message for p in probs), probs
+
+
+@pytest.mark.parametrize(("lines", "words"), [
+    ('probability_method = "kriging"\n',
+     "[screening] probability_method must be one of indicator, latent_gaussian, got "
+     "'kriging'"),
+    ("continuity_ratio = 0.5\n", "[screening] continuity_ratio must be >= 1"),
+    ("chain_corridor_m = -5\n", "[screening] chain_corridor_m must be >= 0"),
+    ('location_sd_m = "20 m"\n', "[screening] location_sd_m must be a number"),
+])
+def test_indicator_settings_are_checked_at_their_line(tmp_path, lines, words):
+    # Bad settings of the indicator method name project.toml, the setting's line (19: the
+    # first line after [screening]) and column 1.
+    probs = _problems(tmp_path, MINIMAL + "\n[screening]\n" + lines)
+    assert any(p.file == "project.toml" and p.line == 19 and p.column == 1
+               and words in p.message for p in probs), probs
+
+
+def test_indicator_settings_have_documented_defaults(tmp_path):
+    s = read_project(_project(tmp_path, MINIMAL)).screening
+    assert (s.probability_method, s.continuity_ratio, s.chain_corridor_m,
+            s.location_sd_m) == ("indicator", 4.0, 150.0, 20.0)
