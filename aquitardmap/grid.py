@@ -92,20 +92,36 @@ def make_grid(area: BaseGeometry, cell_size_m: float, crs: CRS) -> Grid:
     return Grid(transform, width, height, crs, mask)
 
 
-def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str = "float32",
-                 nodata: float | int = NODATA, description: str = "", units: str = "") -> Path:
-    """Write one band on ``grid`` as a compressed GeoTIFF; cells outside the mask get nodata.
+#: Tile size of the written GeoTIFFs (pixels); also the size below which no overview is
+#: made (GDAL's COG driver).
+COG_BLOCK_PX = 256
 
-    NaN inside the mask is also written as nodata. The band carries ``description`` and
-    ``units`` as metadata.
+
+def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str = "float32",
+                 nodata: float | int = NODATA, description: str = "", units: str = "",
+                 colours: dict[int, str] | None = None) -> Path:
+    """Write one band on ``grid`` as a Cloud-Optimized GeoTIFF; cells outside the mask get
+    nodata.
+
+    NaN inside the mask is also written as nodata. The file is tiled
+    (:data:`COG_BLOCK_PX` square), deflate-compressed with a predictor (floating-point for
+    float bands, horizontal differencing for integers), carries internal overviews
+    (averaged for float bands, nearest for integer classes) and the band's
+    ``description`` and ``units`` as metadata: GDAL's COG driver (GDAL ≥ 3.1; the layout
+    of the COG specification, cogeo.org). ``colours`` (``{value: "#rrggbb"}``, integer
+    bands only) is written as the band's colour table, so a GIS shows classes in the map's
+    colours.
     """
     path = Path(path)
     arr = np.asarray(values, dtype=float)
     arr = np.where(grid.mask & np.isfinite(arr) | np.isposinf(arr) & grid.mask, arr, nodata)
+    is_float = np.dtype(dtype).kind == "f"
     profile = {
-        "driver": "GTiff", "width": grid.width, "height": grid.height, "count": 1,
+        "driver": "COG", "width": grid.width, "height": grid.height, "count": 1,
         "dtype": dtype, "crs": grid.crs, "transform": grid.transform, "nodata": nodata,
-        "compress": "deflate", "tiled": False,
+        "compress": "deflate", "predictor": 3 if is_float else 2,
+        "blocksize": COG_BLOCK_PX,
+        "overview_resampling": "average" if is_float else "nearest",
     }
     with rasterio.open(path, "w", **profile) as dst:
         dst.write(arr.astype(dtype), 1)
@@ -113,7 +129,15 @@ def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str
             dst.set_band_description(1, description)
         if units:
             dst.update_tags(1, units=units)
+        if colours:
+            dst.write_colormap(1, {int(k): _rgba(v) for k, v in colours.items()})
     return path
+
+
+def _rgba(colour: str) -> tuple[int, int, int, int]:
+    """``"#rrggbb"`` as an opaque (r, g, b, 255)."""
+    c = colour.lstrip("#")
+    return int(c[0:2], 16), int(c[2:4], 16), int(c[4:6], 16), 255
 
 
 def read_raster(path: str | Path) -> tuple[np.ndarray, Affine, CRS, float | None]:

@@ -66,6 +66,7 @@ from aquitardmap.indicator import (
 from aquitardmap.logs import Boreholes, column_table
 from aquitardmap.pdfreport import write_report
 from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
+from aquitardmap.presentation import avi_classes
 from aquitardmap.probability import (
     ThicknessProbabilities,
     cv_variance_scale,
@@ -1026,7 +1027,8 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         cls = np.where(hyd.avi_class > 0, hyd.avi_class, np.nan).astype(float)
         write_raster(folder / outputs.AVI_CLASS, cls, g, dtype="uint8", nodata=0,
                      description="Aquifer Vulnerability Index class (1 extremely high to 5 "
-                     "extremely low vulnerability)", units="class")
+                     "extremely low vulnerability)", units="class",
+                     colours={c.code: c.colour for c in avi_classes()})
         extra.append(outputs.AVI_CLASS)
     if hyd.piercing is not None:
         hyd.piercing.to_csv(folder / outputs.PIERCING_BOREHOLES, index=False,
