@@ -96,6 +96,7 @@ from aquitardmap.store import has_store, project_boreholes
 from aquitardmap.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
 from aquitardmap.suspicious import suspicious_columns, suspicious_list
 from aquitardmap.webmap import find_web_assets, write_map
+from aquitardmap.webmap.qml import write_qml_sidecars
 
 #: Called with (stage description, stage number from 1, number of stages).
 ProgressFn = Callable[[str, int, int], None]
@@ -1030,6 +1031,15 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
                      "extremely low vulnerability)", units="class",
                      colours={c.code: c.colour for c in avi_classes()})
         extra.append(outputs.AVI_CLASS)
+    # style sidecars: each GeoTIFF opens in a desktop GIS with the map's colours (ranges
+    # from the values as written, float32)
+    values_of = {name: np.where(g.mask, np.asarray(arr, np.float32), np.nan)
+                 for name, (arr, _, _) in grids.items()}
+    if hyd.avi_class is not None:
+        values_of[outputs.AVI_CLASS] = cls
+    extra.extend(write_qml_sidecars(
+        folder, values_of, summary,
+        {name: (desc, units) for name, (_, desc, units) in grids.items()}))
     if hyd.piercing is not None:
         hyd.piercing.to_csv(folder / outputs.PIERCING_BOREHOLES, index=False,
                             float_format="%.6g")
