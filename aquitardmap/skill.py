@@ -39,7 +39,8 @@ import numpy as np
 
 from aquitardmap.calibration import RELIABILITY_EDGES, Reliability, reliability
 from aquitardmap.grid import Grid, read_raster
-from aquitardmap.kriging import merge_coincident, prepare_locations, weights_at
+from aquitardmap.indicator import indicator_data
+from aquitardmap.kriging import prepare_locations, weights_at
 from aquitardmap.variogram import (
     VariogramModel,
     default_lags,
@@ -236,16 +237,12 @@ def thickness_indicators(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarr
     is at least the threshold and is left out otherwise (the clay may or may not end within
     the threshold); ``"unknown"`` holes and missing thicknesses are left out (indicator
     coding of censored data, Goovaerts 1997, *Geostatistics for Natural Resources
-    Evaluation*, ch. 7, from memory).
+    Evaluation*, ch. 7, from memory). The coding is the product's own
+    (:func:`aquitardmap.indicator.indicator_data`): the baseline differs from the tool in
+    its variogram and in having no chains and no hard-data floor, not in what a hole says.
     """
-    t = np.asarray(thickness_m, float).ravel()
-    st = np.asarray(status).ravel()
-    full = (st == "full") & np.isfinite(t)
-    bound_above = (st == "lower_bound") & np.isfinite(t) & (t >= threshold_m)
-    keep = full | bound_above
-    ind = np.where(full & (t < threshold_m), 1.0, 0.0)[keep]
-    return merge_coincident(np.asarray(x_m, float).ravel()[keep],
-                            np.asarray(y_m, float).ravel()[keep], ind)
+    d = indicator_data(x_m, y_m, thickness_m, status, threshold_m)
+    return d.x_m, d.y_m, d.value
 
 
 def indicator_variogram(x_m: np.ndarray, y_m: np.ndarray, indicators: np.ndarray
