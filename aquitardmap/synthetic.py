@@ -163,20 +163,8 @@ k_default_m_s = 1e-3
 k_method = "hazen"
 """
 
-_PROJECT_TOML = """\
-# {name} — an INVENTED, synthetic region written by aquitardmap.synthetic (seed {seed},
-# character "{character}"). Every place, borehole and value here is synthetic; the truth it
-# was drawn from is in truth/.
-
-[project]
-name = "{name}"
-crs = "{crs}"
-
-[grid]
-cell_size_m = {cell_size_m:g}
-buffer_m = 250
-
-""" + DEMO_STACK_TOML + """
+#: The settings sections of a generated region's ``project.toml`` (after the stack).
+SETTINGS_TOML = """
 [kriging]
 variogram_model = "spherical"
 n_lags = 12
@@ -195,6 +183,21 @@ fast_travel_time_yr = 50.0
 dem_misfit_m = 3.0
 exclude_boreholes = []
 """
+
+_PROJECT_TOML = """\
+# {name} — an INVENTED, synthetic region written by aquitardmap.synthetic (seed {seed},
+# character "{character}"). Every place, borehole and value here is synthetic; the truth it
+# was drawn from is in truth/.
+
+[project]
+name = "{name}"
+crs = "{crs}"
+
+[grid]
+cell_size_m = {cell_size_m:g}
+buffer_m = 250
+
+""" + DEMO_STACK_TOML + SETTINGS_TOML
 
 
 def project_toml_text(name: str, *, seed: int, character: str, crs: str = "EPSG:32632",

@@ -56,7 +56,7 @@ from shapely.geometry import LineString, Polygon
 
 from aquitardmap import outputs
 from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
-from aquitardmap.synthetic import DEMO_STACK_TOML
+from aquitardmap.synthetic import DEMO_STACK_TOML, SETTINGS_TOML
 
 __all__ = ["INDEPENDENT_CHARACTERS", "LAYOUTS", "make_independent_region"]
 
@@ -92,25 +92,6 @@ crs = "{crs}"
 cell_size_m = {cell_size_m:g}
 buffer_m = 250
 
-"""
-_TOML_TAIL = """
-[kriging]
-variogram_model = "spherical"
-n_lags = 12
-max_neighbours = 64
-
-[hydraulics]
-groundwater_temp_c = 8.0
-vertical_gradient = 1.0
-
-[screening]
-window_thickness_m = 1.0
-thin_thickness_m = 5.0
-fast_travel_time_yr = 50.0
-
-[qa]
-dem_misfit_m = 3.0
-exclude_boreholes = []
 """
 
 
@@ -659,7 +640,7 @@ def make_independent_region(out_dir: str | Path, *, seed: int, character: str,
     name = f"Independent {character} region (seed {seed})"
     (root / "project.toml").write_text(
         _TOML_HEAD.format(name=name, seed=seed, character=character, layout=layout, crs=_CRS,
-                          cell_size_m=cell_size_m) + DEMO_STACK_TOML + _TOML_TAIL,
+                          cell_size_m=cell_size_m) + DEMO_STACK_TOML + SETTINGS_TOML,
         encoding="utf-8")
 
     inside = grid.mask
