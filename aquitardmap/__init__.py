@@ -1,17 +1,10 @@
 """aquitardmap: screening maps of clay aquitard integrity from borehole logs.
 
-Screening-level estimates only: see ``aquitardmap.outputs.CAUTION``.
+Screening-level estimates only: see ``aquitardmap.outputs.names.CAUTION``.
 """
 
-from importlib.metadata import PackageNotFoundError, version
-
-try:
-    __version__ = version("aquitardmap")
-except PackageNotFoundError:  # running from a source tree that is not installed
-    __version__ = "0.0.0+source"
-
-
-from aquitardmap.pipeline import (  # noqa: E402 - needs __version__ above
+from aquitardmap._version import __version__
+from aquitardmap.pipeline import (
     RunResult,
     build_surfaces,
     compute_hydraulics,

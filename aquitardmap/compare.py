@@ -53,10 +53,10 @@ from affine import Affine
 from shapely.geometry import box
 from shapely.ops import unary_union
 
-from aquitardmap import outputs
 from aquitardmap.errors import InputError, Problem
 from aquitardmap.grid import Grid, read_raster, write_raster
-from aquitardmap.staging import staged_output_dir
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.staging import staged_output_dir
 
 CHANGES_GPKG = "changes.gpkg"
 ZONE_CHANGES_LAYER = "zone_changes"
@@ -589,7 +589,7 @@ def write_comparison(cmp: Comparison, out_dir: str | Path) -> list[str]:
 
     An existing ``out_dir`` is replaced only when it is empty or holds a previous
     comparison (``changes.json``); the replacement is atomic (see
-    :func:`aquitardmap.staging.staged_output_dir`).
+    :func:`aquitardmap.outputs.staging.staged_output_dir`).
 
     Returns the names of the files written.
     """

@@ -26,21 +26,34 @@ from pyproj import CRS, Transformer
 from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
-from aquitardmap import __version__, outputs, tilecache, variogramreuse
-from aquitardmap.compute import compute_session, describe
-from aquitardmap.conductivity import lab_k_magnitude_warnings, unit_conductivity
-from aquitardmap.drift import RESIDUAL_NAME, choose_drift
-from aquitardmap.errors import InputError, Problem, ProblemList
-from aquitardmap.figures import variogram_figure
-from aquitardmap.grid import Grid, make_grid, resample_to_grid, snapped_bounds, write_raster
-from aquitardmap.hazards import (
-    annotate_zones,
-    hazard_table,
-    read_hazards,
-    removed_depth_grid_m,
+from aquitardmap._version import __version__
+from aquitardmap.config.project import (
+    PROJECT_FILE,
+    ComputeSettings,
+    Project,
+    ScreeningThresholds,
+    read_project,
+    setting_location,
 )
-from aquitardmap.heads import HEAD_KEYS, HeadSurface, read_head_surface
-from aquitardmap.hydraulics import (
+from aquitardmap.errors import InputError, Problem, ProblemList
+from aquitardmap.files import file_sha256
+from aquitardmap.geostat.cache import tiles as tilecache
+from aquitardmap.geostat.cache import variograms as variogramreuse
+from aquitardmap.geostat.compute import compute_session, describe
+from aquitardmap.geostat.drift import RESIDUAL_NAME, choose_drift
+from aquitardmap.geostat.indicator import (
+    IndicatorSettings,
+    cross_validate,
+    thickness_probabilities_by_indicator,
+)
+from aquitardmap.geostat.probability import (
+    ThicknessProbabilities,
+    cv_variance_scale,
+    thickness_probabilities,
+)
+from aquitardmap.geostat.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
+from aquitardmap.grid import Grid, make_grid, resample_to_grid, snapped_bounds, write_raster
+from aquitardmap.hydraulics.column import (
     AVI_CLASSES,
     SECONDS_PER_YEAR,
     advective_travel_time_yr,
@@ -58,30 +71,27 @@ from aquitardmap.hydraulics import (
     series_flux_m_s,
     series_resistance_s,
 )
-from aquitardmap.indicator import (
-    IndicatorSettings,
-    cross_validate,
-    thickness_probabilities_by_indicator,
+from aquitardmap.hydraulics.conductivity import lab_k_magnitude_warnings, unit_conductivity
+from aquitardmap.hydraulics.heads import HEAD_KEYS, HeadSurface, read_head_surface
+from aquitardmap.hydraulics.piercing import piercing_mask, piercing_table, point_density_per_km2
+from aquitardmap.inputs.hazards import (
+    annotate_zones,
+    hazard_table,
+    read_hazards,
+    removed_depth_grid_m,
 )
-from aquitardmap.logs import Boreholes, column_table
-from aquitardmap.pdfreport import write_report
-from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
-from aquitardmap.presentation import avi_classes
-from aquitardmap.probability import (
-    ThicknessProbabilities,
-    cv_variance_scale,
-    thickness_probabilities,
-)
-from aquitardmap.project import (
-    PROJECT_FILE,
-    ComputeSettings,
-    Project,
-    ScreeningThresholds,
-    read_project,
-    setting_location,
-)
-from aquitardmap.report import file_sha256, write_summary
-from aquitardmap.screening import (
+from aquitardmap.inputs.logs import Boreholes, column_table
+from aquitardmap.inputs.store import has_store, project_boreholes
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.figures import variogram_figure
+from aquitardmap.outputs.presentation import avi_classes
+from aquitardmap.outputs.report import write_report
+from aquitardmap.outputs.staging import staged_output_dir, tidy_output_dir  # noqa: F401
+from aquitardmap.outputs.summary import write_summary
+from aquitardmap.outputs.webmap import find_web_assets, write_map
+from aquitardmap.outputs.webmap.qml import write_qml_sidecars
+from aquitardmap.screening.suspicious import suspicious_columns, suspicious_list
+from aquitardmap.screening.zones import (
     ZONE_KINDS,
     ZONE_TIERS,
     probability_below,
@@ -91,12 +101,6 @@ from aquitardmap.screening import (
     zone_tier_counts,
     zones_from_grids,
 )
-from aquitardmap.staging import staged_output_dir, tidy_output_dir  # noqa: F401
-from aquitardmap.store import has_store, project_boreholes
-from aquitardmap.surfaces import CV_COLUMNS, Surface, krige_column, surface_summary
-from aquitardmap.suspicious import suspicious_columns, suspicious_list
-from aquitardmap.webmap import find_web_assets, write_map
-from aquitardmap.webmap.qml import write_qml_sidecars
 
 #: Called with (stage description, stage number from 1, number of stages).
 ProgressFn = Callable[[str, int, int], None]
@@ -471,7 +475,7 @@ def proves_thinner_than(columns: pd.DataFrame, thickness_m: float) -> pd.Series:
 
 
 def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarray:
-    """Where probability zones may draw a window (:func:`aquitardmap.screening.zone_masks`):
+    """Where probability zones may draw a window (:func:`aquitardmap.screening.zones.zone_masks`):
     cells within ``[screening] window_proof_radius_m`` of a hole (not excluded) that proves a
     window, and, with ``hyd``, cells where a mapped hazard (pit, cutting, scar) removes clay
     of the aquitard."""
@@ -492,14 +496,14 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
     probability_method``.
 
     ``"indicator"`` (default): indicator kriging with continuity along chains of proving
-    holes (:mod:`aquitardmap.indicator`; ``total`` is not used), its neighbourhood the
+    holes (:mod:`aquitardmap.geostat.indicator`; ``total`` is not used), its neighbourhood the
     kriging's ``max_neighbours`` up to 32, and the blocked cross-validation of the window
-    and thin probabilities at the holes (:func:`aquitardmap.indicator.cross_validate`) in
+    and thin probabilities at the holes (:func:`aquitardmap.geostat.indicator.cross_validate`) in
     the record's ``cross_validation``.
 
-    ``"latent_gaussian"``: :mod:`aquitardmap.probability`, with the ground elevation as an
+    ``"latent_gaussian"``: :mod:`aquitardmap.geostat.probability`, with the ground elevation as an
     external drift when ``[kriging] external_drift`` and the cross-validation say so
-    (:mod:`aquitardmap.drift`), otherwise with the total thickness's variogram; the
+    (:mod:`aquitardmap.geostat.drift`), otherwise with the total thickness's variogram; the
     variance level comes from the cross-validation of the model used."""
     p = inputs.project
     th = p.screening
@@ -647,7 +651,8 @@ def borehole_table(inputs: Inputs, surfaces: dict[str, Surface] | None = None
                    ) -> gpd.GeoDataFrame:
     """Every borehole with its derived values, as points in the project CRS.
 
-    With ``surfaces`` the suspicious-log columns are added (:mod:`aquitardmap.suspicious`):
+    With ``surfaces`` the suspicious-log columns are added
+    (:mod:`aquitardmap.screening.suspicious`):
     ``cv_error_m``, ``cv_standardised_error``, ``suspicious``, ``suspicious_reasons``.
     """
     c = inputs.columns.copy()
@@ -673,7 +678,7 @@ def screen(inputs: Inputs, surfaces: dict[str, Surface], hyd: Hydraulics,
 
     With ``[screening] zone_basis = "probability"`` window and thin zones are drawn from
     ``probabilities`` (computed here by :func:`thickness_probability_grids` when not given)
-    in a likely and a possible tier (:func:`aquitardmap.screening.zone_tier_masks`);
+    in a likely and a possible tier (:func:`aquitardmap.screening.zones.zone_tier_masks`);
     otherwise from the kriged thickness. Either way the cells holding a used hole that
     proves a window or thin clay (``proves_window`` / ``proves_thin`` of ``boreholes``,
     :func:`proves_thinner_than`) are flagged whatever the grids say.
@@ -1008,7 +1013,7 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     """Stage 5: write every output file into ``folder``; returns the file names.
 
     ``self_contained_map`` writes a map that needs no network (see
-    :func:`aquitardmap.webmap.write_map`)."""
+    :func:`aquitardmap.outputs.webmap.write_map`)."""
     g = inputs.grid
     p = inputs.project
     grids = output_grids(inputs, surfaces, hyd, p_thin, probabilities)
@@ -1094,7 +1099,7 @@ def _variogram_book(project: Project, folder: Path | None, refit: bool
 
 def kept_variograms(project: Project) -> AbstractContextManager[variogramreuse.VariogramBook]:
     """Inside the block, surfaces of ``project`` are kriged with the variograms its last
-    run kept, under the same reuse rule as ``run`` (:mod:`aquitardmap.variogramreuse`);
+    run kept, under the same reuse rule as ``run`` (:mod:`aquitardmap.geostat.cache.variograms`);
     nothing is written. For stages outside ``run`` (e.g. ``suggest``) that must use the
     run's models. Without a project cache every surface is fitted afresh."""
     return _variogram_book(project, _tile_folder(project, None), False)
@@ -1140,13 +1145,13 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         WebAssetsNotFound: ``self_contained_map`` and no local Leaflet (nothing is written).
 
     ``tile_cache``: grid kriging reuses the tiles whose deciding data are unchanged
-    (:mod:`aquitardmap.tilecache`; same numbers as without it). By default (None) this is
+    (:mod:`aquitardmap.geostat.cache.tiles`; same numbers as without it). By default (None) this is
     on for a project with a store, in ``PROJECT/.aquitardmap-cache/tiles``; False turns it
     off; a path names the folder. ``summary.json`` then counts tiles reused and kriged.
 
     Variograms: with the cache, a surface reuses the model the previous run used while a
     fresh fit differs from it by less than ``[kriging] reuse_variogram_within``
-    (:mod:`aquitardmap.variogramreuse`); ``refit_variograms=True`` always uses the fresh
+    (:mod:`aquitardmap.geostat.cache.variograms`); ``refit_variograms=True`` always uses the fresh
     fit. ``summary.json`` records each surface's decision (``variogram_reuse``).
     """
     def step(i: int) -> None:

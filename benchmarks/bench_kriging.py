@@ -3,7 +3,8 @@
     python benchmarks/bench_kriging.py            # 20,000 holes; 250k, 1M, 4M cells (~15 min)
     python benchmarks/bench_kriging.py --quick    # 4,000 holes; 250k cells (~1 min)
 
-Data: a synthetic region from :func:`aquitardmap.synthetic.make_synthetic_region` (invented,
+Data: a synthetic region from
+:func:`aquitardmap.evaluation.synthetic.make_synthetic_region` (invented,
 water-well-like clustering of holes), read through the pipeline's input stage; the values are
 the total aquitard thickness of the holes that reached the aquifer. Model: spherical with a
 nugget, fitted to those data the way the pipeline fits it (nugget kept at least 10 % of the
@@ -48,15 +49,15 @@ K = 16
 def make_data(folder: Path, n_holes: int, seed: int) -> Path:
     """Generate the region, read its holes, fit the model; save everything to an .npz."""
     sys.path.insert(0, str(ROOT))
-    from aquitardmap.kriging import merge_coincident
-    from aquitardmap.pipeline import load_inputs
-    from aquitardmap.synthetic import make_synthetic_region
-    from aquitardmap.variogram import (
+    from aquitardmap.evaluation.synthetic import make_synthetic_region
+    from aquitardmap.geostat.kriging import merge_coincident
+    from aquitardmap.geostat.variogram import (
         VariogramModel,
         default_lags,
         experimental_variogram,
         fit_variogram,
     )
+    from aquitardmap.pipeline import load_inputs
 
     side = float(np.sqrt(n_holes / 20_000.0))  # 20,000 holes over 40 km × 28 km
     t0 = time.perf_counter()
@@ -112,10 +113,10 @@ def run_case(engine: str, data_path: Path, cells: int, max_cells: int) -> dict:
         from affine import Affine
         from pyproj import CRS
 
+        from aquitardmap.geostat.kriging import krige_grid
+        from aquitardmap.geostat.localkrige import numba_available
+        from aquitardmap.geostat.variogram import VariogramModel
         from aquitardmap.grid import Grid
-        from aquitardmap.kriging import krige_grid
-        from aquitardmap.localkrige import numba_available
-        from aquitardmap.variogram import VariogramModel
 
         model = VariogramModel("spherical", nugget=nugget, psill=psill, range_m=range_m)
         krige_grid(x, y, z, model, _tiny_grid(bounds), max_neighbours=K)  # load the kernel

@@ -1,4 +1,4 @@
-"""Benchmark: the P grids of :func:`aquitardmap.probability.probability_below_grid` with the
+"""Benchmark: the P grids of :func:`aquitardmap.geostat.probability.probability_below_grid` with the
 data's kriging setup built once per grid against building it once per block (not a test).
 
     python benchmarks/bench_probability_blocks.py                  # 3,000 holes, ~600k cells
@@ -11,10 +11,10 @@ with about ``--cells`` cells. The run is timed twice in one process, in CPU seco
 (``time.process_time``; BLAS threads counted):
 
 - ``per_block`` (the baseline, the code before the setup was shared): every block of
-  ``CELLS_PER_BLOCK`` cells calls :func:`aquitardmap.kriging.kriging_weights`, which builds
+  ``CELLS_PER_BLOCK`` cells calls :func:`aquitardmap.geostat.kriging.kriging_weights`, which builds
   the k-d tree, the n × n semivariance table and the scaled drift again;
-- ``once``: the shipped code (:func:`aquitardmap.kriging.prepare_locations` once, then
-  :func:`aquitardmap.kriging.weights_at` per block).
+- ``once``: the shipped code (:func:`aquitardmap.geostat.kriging.prepare_locations` once, then
+  :func:`aquitardmap.geostat.kriging.weights_at` per block).
 
 The two grids are compared (max abs difference) and the last line is
 ``speedup_vs_per_block=<ratio>``. Nothing here asserts on time.
@@ -44,10 +44,10 @@ def main() -> None:
     from pyproj import CRS
     from shapely.geometry import box
 
-    import aquitardmap.probability as prob
+    import aquitardmap.geostat.probability as prob
+    from aquitardmap.geostat.kriging import kriging_weights
+    from aquitardmap.geostat.variogram import VariogramModel
     from aquitardmap.grid import make_grid
-    from aquitardmap.kriging import kriging_weights
-    from aquitardmap.variogram import VariogramModel
 
     side_m = 12_000.0
     rng = np.random.default_rng(7)

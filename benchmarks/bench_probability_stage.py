@@ -4,13 +4,14 @@
     python benchmarks/bench_probability_stage.py --quick    # 4,000 holes, same grid
 
 Data (invented): ``make_synthetic_region(seed=5, n_holes=20000, extent_m=(40000, 28000),
-cell_size_m=25)`` of :mod:`aquitardmap.synthetic`, written once into ``--folder`` (kept and
+cell_size_m=25)`` of
+:mod:`aquitardmap.evaluation.synthetic`, written once into ``--folder`` (kept and
 reused when it is already there). In one process, wall and CPU seconds of:
 
 - ``surfaces``: :func:`aquitardmap.pipeline.build_surfaces`;
 - ``probability``: :func:`aquitardmap.pipeline.aquitard_probabilities` with the
   thresholds ``{"window": 1.0, "thin": 5.0}``, split into the parts of
-  :mod:`aquitardmap.indicator` (``indicator_data``, ``indicator_variogram``,
+  :mod:`aquitardmap.geostat.indicator` (``indicator_data``, ``indicator_variogram``,
   ``continuity_segments``, ``local_direction_deg``, ``krige_indicator``,
   ``honour_hard_data``), once for the grid and once summed over the folds of
   ``cross_validate``.
@@ -55,9 +56,9 @@ def main() -> None:
                     help="also trace Python allocations in the probability stage")
     args = ap.parse_args()
     sys.path.insert(0, str(ROOT))
-    import aquitardmap.indicator as ind
+    import aquitardmap.geostat.indicator as ind
+    from aquitardmap.evaluation.synthetic import make_synthetic_region
     from aquitardmap.pipeline import aquitard_probabilities, build_surfaces, load_inputs
-    from aquitardmap.synthetic import make_synthetic_region
 
     n_holes = args.holes or (4000 if args.quick else 20000)
     folder = args.folder or Path(tempfile.gettempdir()) / f"aquitardmap_bench_{n_holes}"

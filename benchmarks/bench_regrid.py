@@ -29,10 +29,10 @@ import numpy as np
 from affine import Affine
 from pyproj import CRS
 
+from aquitardmap.geostat.cache.tiles import tile_cache
+from aquitardmap.geostat.kriging import krige_grid
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import krige_grid
-from aquitardmap.tilecache import tile_cache
-from aquitardmap.variogram import VariogramModel
 
 CELL_M = 25.0
 K = 16

@@ -30,9 +30,9 @@ import time
 from pathlib import Path
 
 import aquitardmap
-from aquitardmap.project import read_project
-from aquitardmap.store import add_files, create_store
-from aquitardmap.synthetic import hold_back_holes, make_synthetic_region
+from aquitardmap.config.project import read_project
+from aquitardmap.evaluation.synthetic import hold_back_holes, make_synthetic_region
+from aquitardmap.inputs.store import add_files, create_store
 
 STAGES = ("inputs", "surfaces", "hydraulics", "zones", "outputs")
 

@@ -1,7 +1,7 @@
 """Benchmark of a whole screening run's skill against known truths, beside ordinary
 indicator kriging (the textbook method), over many seeded invented regions.
 
-For each region (``aquitardmap.skill.screening_skill``: the pipeline's own stages, so it
+For each region (``aquitardmap.evaluation.skill.screening_skill``: the pipeline's own stages, so it
 scores whatever the pipeline's probability method and zone rule produce) it prints one
 line, then per character and POOLED over every region (cells summed across regions, not a
 mean of ratios):
@@ -18,7 +18,7 @@ mean of ratios):
 - indicator kriging of I(T < 5 m) read at P ≥ 0.2: recall / precision; the tool's recall
   at that precision (the best one threshold on P(thin), chosen knowing the truth).
 
-Regions: every character of ``aquitardmap.synthetic`` with its default hole layout on the
+Regions: every character of ``aquitardmap.evaluation.synthetic`` with its default hole layout on the
 size of ``bench_zone_skill`` (250 holes, 7 km × 5 km, no hazards); ``ridge_and_channel``
 (when the generator has it) on 12 km × 10 km with ``--holes`` holes (default 260 and 600)
 laid out evenly; each character of the independent generator
@@ -45,8 +45,8 @@ from pathlib import Path
 
 import numpy as np
 
-from aquitardmap import synthetic
-from aquitardmap.skill import (
+from aquitardmap.evaluation import synthetic
+from aquitardmap.evaluation.skill import (
     INDICATOR_OPERATING_P,
     RELIABILITY_EDGES,
     TEN_BINS,
@@ -144,7 +144,7 @@ def region_kinds(names: list[str] | None, ridge_holes: list[int]) -> list[Region
         bare = name.removeprefix(INDEPENDENT_PREFIX)
         if name == RIDGE_AND_CHANNEL:
             if RIDGE_AND_CHANNEL not in synthetic.CHARACTERS:
-                print(f"skipped {name}: aquitardmap.synthetic has no such character yet")
+                print(f"skipped {name}: aquitardmap.evaluation.synthetic has no such character yet")
                 continue
             kinds.extend(_ridge_kind(n) for n in ridge_holes)
         elif name in own:

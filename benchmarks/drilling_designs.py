@@ -18,8 +18,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from aquitardmap.drilling_trial import compare_designs, trials_table
-from aquitardmap.synthetic import CHARACTERS, make_synthetic_region
+from aquitardmap.evaluation.drilling_trial import compare_designs, trials_table
+from aquitardmap.evaluation.synthetic import CHARACTERS, make_synthetic_region
 
 
 def main() -> None:

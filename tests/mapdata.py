@@ -15,8 +15,8 @@ import numpy as np
 from pyproj import CRS
 from shapely.geometry import Point, Polygon, box
 
-from aquitardmap import outputs
 from aquitardmap.grid import make_grid, write_raster
+from aquitardmap.outputs import names as outputs
 
 CRS_UTM32 = CRS.from_epsg(32632)
 X0, Y0, CELL_M = 500_000.0, 6_100_000.0, 50.0  # 20 x 15 cells
@@ -154,8 +154,8 @@ def _bins(rows: list[tuple[int, float | None, float | None]]) -> list[dict]:
 
 def indicator_probability() -> dict:
     """An invented ``probability`` section as an indicator run writes it (method name from
-    :mod:`aquitardmap.indicator`), with a block cross-validation of both events."""
-    from aquitardmap.indicator import METHOD
+    :mod:`aquitardmap.geostat.indicator`), with a block cross-validation of both events."""
+    from aquitardmap.geostat.indicator import METHOD
 
     cutoff = {"n_left_out_lower_bounds": 0, "variogram_source": "fitted",
               "variogram": {"model": "exponential", "nugget": 0.01, "psill": 0.1,
@@ -189,8 +189,8 @@ def indicator_probability() -> dict:
 
 def latent_probability() -> dict:
     """An invented ``probability`` section as a latent Gaussian run writes it (method name
-    from :mod:`aquitardmap.probability`): no cross-validation at the holes."""
-    from aquitardmap.probability import METHOD
+    from :mod:`aquitardmap.geostat.probability`): no cross-validation at the holes."""
+    from aquitardmap.geostat.probability import METHOD
 
     return {"method": METHOD, "n_full_positive": 1, "n_proving_absence": 1,
             "n_lower_bounds": 1, "window_latent_floor_m": 3.0, "n_draws": 64,

@@ -447,7 +447,7 @@ def check_result(result) -> None:
             # cell (the same draws are compared with both thresholds)
             pw, pt2 = probs.p_below["window"], probs.p_below["thin"]
             assert (pw[m] <= pt2[m] + 1e-12).all(), "P(window) above P(thin)"
-    from aquitardmap.screening import ZONE_KINDS
+    from aquitardmap.screening.zones import ZONE_KINDS
 
     z = result.zones
     assert set(z["kind"]) <= set(ZONE_KINDS)
@@ -461,7 +461,7 @@ def check_result(result) -> None:
 
 
 def _json_ready(summary: dict) -> object:
-    from aquitardmap.report import _clean
+    from aquitardmap.outputs.summary import _clean
 
     return _clean(summary)
 
@@ -472,7 +472,7 @@ def check_outputs(out_dir: Path, result) -> None:
     import geopandas as gpd
     import rasterio
 
-    from aquitardmap import outputs
+    from aquitardmap.outputs import names as outputs
     from aquitardmap.pipeline import crs_code
 
     summary = json.loads((out_dir / outputs.SUMMARY).read_text(encoding="utf-8"),

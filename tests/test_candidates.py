@@ -14,7 +14,7 @@ from shapely.geometry import (
     box,
 )
 
-from aquitardmap.candidates import grid_sites, read_candidates
+from aquitardmap.drilling.candidates import grid_sites, read_candidates
 from aquitardmap.errors import InputError
 from aquitardmap.grid import make_grid
 

@@ -9,7 +9,7 @@ import sys
 
 import pytest
 
-from aquitardmap import outputs
+from aquitardmap.outputs import names as outputs
 
 from conftest import DEMO
 

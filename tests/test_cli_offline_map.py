@@ -10,10 +10,10 @@ import sys
 import pytest
 from click.testing import CliRunner
 
-from aquitardmap import outputs
 from aquitardmap.cli import cli
-from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
-from aquitardmap.webmap import assets as webmap_assets
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets
+from aquitardmap.outputs.webmap import assets as webmap_assets
 
 from conftest import DEMO
 

@@ -4,7 +4,7 @@ on the map.
 Reference: rio-cogeo's ``cog_validate`` (PyPI), an independent validator of the COG layout
 (tiles, overviews after the main image, the header's order of IFDs; cogeo.org); the
 colour table of ``avi_class.tif`` is read back with rasterio and compared with the map's
-AVI colours (:func:`aquitardmap.presentation.avi_classes`).
+AVI colours (:func:`aquitardmap.outputs.presentation.avi_classes`).
 """
 
 from __future__ import annotations
@@ -16,9 +16,9 @@ from pyproj import CRS
 from rio_cogeo.cogeo import cog_validate
 from shapely.geometry import box
 
-from aquitardmap import outputs
 from aquitardmap.grid import COG_BLOCK_PX, make_grid, read_raster, write_raster
-from aquitardmap.presentation import avi_classes
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.presentation import avi_classes
 
 
 def _hex(rgba: tuple[int, int, int, int]) -> str:

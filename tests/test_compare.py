@@ -20,7 +20,6 @@ from affine import Affine
 from pyproj import CRS
 from shapely.geometry import Point, box
 
-from aquitardmap import outputs
 from aquitardmap.compare import (
     AVI_CLASS_CHANGE,
     CHANGES_GPKG,
@@ -36,6 +35,7 @@ from aquitardmap.compare import (
 )
 from aquitardmap.errors import InputError
 from aquitardmap.grid import Grid, write_raster
+from aquitardmap.outputs import names as outputs
 
 from conftest import DEMO, demo_copy_with_new_hole
 
@@ -298,8 +298,8 @@ def test_compare_command_after_adding_holes_that_open_a_window(tmp_path, demo_ru
                               capture_output=True, text=True, timeout=300)
 
     import aquitardmap
-    from aquitardmap.project import read_project
-    from aquitardmap.store import add_files
+    from aquitardmap.config.project import read_project
+    from aquitardmap.inputs.store import add_files
 
     add_files(read_project(proj), [tmp_path / "collars_w.csv", tmp_path / "intervals_w.csv"])
     aquitardmap.run(proj, tmp_path / "B")

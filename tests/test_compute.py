@@ -7,18 +7,18 @@ import pytest
 from affine import Affine
 from pyproj import CRS
 
-from aquitardmap.compute import (
+from aquitardmap.config.project import ComputeSettings, read_project
+from aquitardmap.errors import InputError
+from aquitardmap.geostat.compute import (
     DaskRunner,
     SerialRunner,
     compute_session,
     current_runner,
     use_runner,
 )
-from aquitardmap.errors import InputError
+from aquitardmap.geostat.kriging import krige_grid, krige_points
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import krige_grid, krige_points
-from aquitardmap.project import ComputeSettings, read_project
-from aquitardmap.variogram import VariogramModel
 
 
 @pytest.fixture(scope="module")
@@ -103,9 +103,9 @@ def test_single_mode_session_needs_no_dask():
 
 def test_unreachable_scheduler_is_an_input_problem(monkeypatch):
     pytest.importorskip("distributed")
-    import aquitardmap.compute
+    import aquitardmap.geostat.compute
 
-    monkeypatch.setattr(aquitardmap.compute, "SCHEDULER_TIMEOUT", "1s")
+    monkeypatch.setattr(aquitardmap.geostat.compute, "SCHEDULER_TIMEOUT", "1s")
     settings = ComputeSettings(mode="dask", scheduler="tcp://127.0.0.1:9")  # discard port
     with pytest.raises(InputError, match="cannot reach the Dask scheduler"):
         with compute_session(settings):

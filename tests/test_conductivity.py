@@ -1,4 +1,5 @@
-"""Tests of aquitardmap.conductivity against published formulas, worked examples and iapws."""
+"""Tests of aquitardmap.hydraulics.conductivity against
+published formulas, worked examples and iapws."""
 
 from __future__ import annotations
 
@@ -11,7 +12,8 @@ import pytest
 from iapws import IAPWS95
 from scipy.stats import gmean
 
-from aquitardmap.conductivity import (
+from aquitardmap.config.project import HydraulicSettings, Unit
+from aquitardmap.hydraulics.conductivity import (
     SAMPLE_COLUMNS,
     STANDARD_GRAVITY_M_S2,
     hazen_k_m_s,
@@ -23,7 +25,6 @@ from aquitardmap.conductivity import (
     water_density_kg_m3,
     water_viscosity_pa_s,
 )
-from aquitardmap.project import HydraulicSettings, Unit
 
 TEMPS_C = [0.0, 5.0, 10.0, 15.0, 20.0, 25.0, 30.0]
 
@@ -314,14 +315,14 @@ def _g_over_nu(temp_c: float) -> float:
 
 
 def test_kinematic_viscosity_matches_iapws():
-    from aquitardmap.conductivity import kinematic_viscosity_m2_s
+    from aquitardmap.hydraulics.conductivity import kinematic_viscosity_m2_s
     for t in (5.0, 10.0, 20.0):
         rho, mu = _iapws_water(t)
         assert kinematic_viscosity_m2_s(t) == pytest.approx(mu / rho, rel=2e-3)
 
 
 def test_slichter_matches_hand_computation():
-    from aquitardmap.conductivity import slichter_k_m_s
+    from aquitardmap.hydraulics.conductivity import slichter_k_m_s
     # Slichter (1899) in Vukovic & Soro (1992), coefficients from memory:
     # β = 1e-2 · n^3.287 = 1e-2 · 0.35^3.287 = 3.1721e-4 -> K = 7.50726e6 · 3.1721e-4 · 4e-8
     # = 9.5256e-5 m/s.
@@ -332,7 +333,7 @@ def test_slichter_matches_hand_computation():
 
 
 def test_terzaghi_matches_hand_computation():
-    from aquitardmap.conductivity import terzaghi_k_m_s
+    from aquitardmap.hydraulics.conductivity import terzaghi_k_m_s
     # Terzaghi (1925) in Vukovic & Soro (1992), coefficients from memory: smooth grains
     # C = 10.7e-3, φ(n) = ((n − 0.13)/(1 − n)^(1/3))² = (0.22/0.86624)² = 0.064501
     # -> K = 7.50726e6 · 10.7e-3 · 0.064501 · 4e-8 = 2.0725e-4 m/s; coarse grains
@@ -346,7 +347,7 @@ def test_terzaghi_matches_hand_computation():
 
 
 def test_beyer_matches_hand_computation_and_hazen_for_uniform_sand():
-    from aquitardmap.conductivity import beyer_k_m_s
+    from aquitardmap.hydraulics.conductivity import beyer_k_m_s
     # Beyer (1964) in Vukovic & Soro (1992) / Rosas et al. (2014), coefficient from memory:
     # β = 5.2e-4 · log10(500/Cu) = 5.2e-4 · log10(200) = 1.19654e-3
     # -> K = 7.50726e6 · 1.19654e-3 · 4e-8 = 3.5931e-4 m/s.
@@ -360,7 +361,7 @@ def test_beyer_matches_hand_computation_and_hazen_for_uniform_sand():
 
 
 def test_grain_size_methods_scale_with_d10_squared():
-    from aquitardmap.conductivity import beyer_k_m_s, slichter_k_m_s, terzaghi_k_m_s
+    from aquitardmap.hydraulics.conductivity import beyer_k_m_s, slichter_k_m_s, terzaghi_k_m_s
     # General form K ∝ D10² at fixed n and Cu (Vukovic & Soro 1992).
     for f in (lambda d: slichter_k_m_s(d, 0.35, 10.0), lambda d: terzaghi_k_m_s(d, 0.35, 10.0),
               lambda d: beyer_k_m_s(d, 2.5 * d, 10.0)):
@@ -368,7 +369,11 @@ def test_grain_size_methods_scale_with_d10_squared():
 
 
 def test_validity_ranges_of_slichter_terzaghi_beyer():
-    from aquitardmap.conductivity import beyer_validity, slichter_validity, terzaghi_validity
+    from aquitardmap.hydraulics.conductivity import (
+        beyer_validity,
+        slichter_validity,
+        terzaghi_validity,
+    )
     # Slichter 0.01–5 mm (from memory); porosity needed.
     r = slichter_validity([0.01, 0.009, 5.0, 5.1, 0.2], [0.05, 0.05, 6.0, 6.0, 0.5],
                           [0.3, 0.3, 0.3, 0.3, np.nan])
@@ -396,7 +401,7 @@ def test_unit_using_beyer_and_per_method_comparison_columns():
                   ("C", 1.0, 0.03, 0.6, 0.35, np.nan, "SAND")])   # below Beyer's range
     t = unit_conductivity(s, stack, SETTINGS)
     row = t.loc["SAND"]
-    from aquitardmap.conductivity import beyer_k_m_s
+    from aquitardmap.hydraulics.conductivity import beyer_k_m_s
     ks = [float(beyer_k_m_s(0.2, 0.5, 10.0)), float(beyer_k_m_s(0.3, 0.6, 10.0))]
     assert row["k_source"] == "beyer" and row["n_used"] == 2 and row["n_out_of_range"] == 1
     assert row["k_m_s"] == pytest.approx(gmean(ks), rel=1e-12)        # scipy reference
@@ -415,7 +420,7 @@ def test_unit_using_beyer_and_per_method_comparison_columns():
 
 
 def test_lab_k_that_looks_like_cm_s_in_an_aquitard_gets_a_hint_and_is_used_as_given():
-    from aquitardmap.conductivity import lab_k_magnitude_warnings
+    from aquitardmap.hydraulics.conductivity import lab_k_magnitude_warnings
     s = _samples([("A", 5.0, np.nan, np.nan, np.nan, 3e-7, "CLAY"),    # 3e-9 m/s in cm/s
                   ("B", 5.0, np.nan, np.nan, np.nan, 3e-9, "CLAY"),
                   ("C", 1.0, np.nan, np.nan, np.nan, 3e-4, "SAND")])   # cover: plausible

@@ -1,5 +1,5 @@
-"""Ground elevation as an external drift (aquitardmap.drift and the drift path of
-aquitardmap.probability)."""
+"""Ground elevation as an external drift (aquitardmap.geostat.drift and the drift path of
+aquitardmap.geostat.probability)."""
 
 from __future__ import annotations
 
@@ -10,12 +10,12 @@ from pyproj import CRS
 from scipy.stats import norm
 from shapely.geometry import box
 
-from aquitardmap.drift import choose_drift
+from aquitardmap.config.project import KrigingSettings
+from aquitardmap.geostat.drift import choose_drift
+from aquitardmap.geostat.probability import thickness_probabilities
+from aquitardmap.geostat.surfaces import cross_validate
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid
-from aquitardmap.probability import thickness_probabilities
-from aquitardmap.project import KrigingSettings
-from aquitardmap.surfaces import cross_validate
-from aquitardmap.variogram import VariogramModel
 
 CRS_M = CRS.from_epsg(32632)
 

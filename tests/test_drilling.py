@@ -9,15 +9,15 @@ from pykrige.ok import OrdinaryKriging
 from scipy import integrate
 from scipy.stats import norm
 
-from aquitardmap import drilling
-from aquitardmap.drilling import (
+from aquitardmap.drilling import design as drilling
+from aquitardmap.drilling.design import (
     _Design,
     error_covariance,
     plan_holes,
     probability_still_uncertain,
     solve_at,
 )
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.variogram import VariogramModel
 
 
 def _pykrige(x, y, z, m, xt, yt, n_closest=None):

@@ -12,14 +12,14 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
+from aquitardmap.config.project import KrigingSettings, QASettings, read_project
 from aquitardmap.errors import InputError
+from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.geostat.surfaces import krige_thickness
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid
 from aquitardmap.pipeline import borehole_table, build_surfaces, load_inputs, run
-from aquitardmap.project import KrigingSettings, QASettings, read_project
-from aquitardmap.surfaces import krige_thickness
-from aquitardmap.suspicious import suspicious_columns
-from aquitardmap.synthetic import make_synthetic_region
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.screening.suspicious import suspicious_columns
 
 from conftest import MINIMAL_PROJECT_TOML as MINIMAL
 

@@ -12,9 +12,9 @@ import pytest
 import rasterio
 
 import aquitardmap
-from aquitardmap import outputs
+from aquitardmap.geostat.indicator import METHOD as INDICATOR_METHOD
 from aquitardmap.grid import NODATA, read_raster
-from aquitardmap.indicator import METHOD as INDICATOR_METHOD
+from aquitardmap.outputs import names as outputs
 
 from conftest import demo_copy
 

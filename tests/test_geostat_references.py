@@ -2,7 +2,7 @@
 
 References: gstools (an independent kriging implementation, PyPI), the closed-form ordinary
 kriging weights of two data, symmetry of three data, and pykrige through
-:func:`aquitardmap.kriging.krige_points`.
+:func:`aquitardmap.geostat.kriging.krige_points`.
 """
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ import gstools as gs
 import numpy as np
 import pytest
 
-from aquitardmap.kriging import krige_points, kriging_weights
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.kriging import krige_points, kriging_weights
+from aquitardmap.geostat.variogram import VariogramModel
 
 
 def _data(seed=3, n=40):

@@ -5,11 +5,12 @@ The truths are generators' truth grids, the outside reference: regions of the pr
 generator with sparse, evenly scattered wells and a narrow buried ridge and infilled channel
 crossing the clay (``ridge_and_channel``, 12 km × 10 km, 260 and 600 holes, three seeds
 each), and regions of the independent generator (``aquitardmap.evaluation.independent``,
-which shares no truth-building code with ``aquitardmap.synthetic``). Every score comes from
-a whole run of the pipeline's stages with the default settings
-(:func:`aquitardmap.skill.screening_skill`), pooled over the regions of a set (cells summed,
+which shares no truth-building code with ``aquitardmap.evaluation.synthetic``).
+Every score comes from a whole run of the pipeline's stages with the default settings
+(:func:`aquitardmap.evaluation.skill.screening_skill`), pooled over the
+regions of a set (cells summed,
 not a mean of ratios). The textbook method beside it: ordinary indicator kriging of
-I(T < 5 m) read at P ≥ 0.2 (Goovaerts 1997, ch. 7; :func:`aquitardmap.skill.
+I(T < 5 m) read at P ≥ 0.2 (Goovaerts 1997, ch. 7; :func:`aquitardmap.evaluation.skill.
 indicator_kriging_probability`). The acceptance figures are those of issue 15 ("Done when").
 """
 
@@ -19,9 +20,9 @@ import numpy as np
 import pytest
 
 from aquitardmap.evaluation.independent import make_independent_region
-from aquitardmap.skill import pooled_skill, recall_at_precision, reliability, score_cells
-from aquitardmap.skill import screening_skill as run_skill
-from aquitardmap.synthetic import make_synthetic_region
+from aquitardmap.evaluation.skill import pooled_skill, recall_at_precision, reliability, score_cells
+from aquitardmap.evaluation.skill import screening_skill as run_skill
+from aquitardmap.evaluation.synthetic import make_synthetic_region
 
 SEEDS = (101, 102, 103)
 RIDGE = {"character": "ridge_and_channel", "extent_m": (12_000.0, 10_000.0),

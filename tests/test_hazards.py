@@ -12,7 +12,7 @@ from shapely.geometry import Point, box
 
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import make_grid
-from aquitardmap.hazards import annotate_zones, read_hazards, removed_depth_grid_m
+from aquitardmap.inputs.hazards import annotate_zones, read_hazards, removed_depth_grid_m
 
 CRS_M = CRS.from_epsg(32632)
 

@@ -7,10 +7,10 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
+from aquitardmap.config.project import KrigingSettings
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import make_grid, write_raster
-from aquitardmap.heads import krige_head_points, read_head_surface
-from aquitardmap.project import KrigingSettings
+from aquitardmap.hydraulics.heads import krige_head_points, read_head_surface
 
 CRS_M = CRS.from_epsg(32632)
 GRID = make_grid(box(0, 0, 2000, 2000), 100.0, CRS_M)

@@ -1,4 +1,4 @@
-"""Tests of aquitardmap.hydraulics against hand-computed layered columns and AVI classes."""
+"""Tests of aquitardmap.hydraulics.column against hand-computed layered columns and AVI classes."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy.stats import hmean
 
-from aquitardmap.hydraulics import (
+from aquitardmap.hydraulics.column import (
     AVI_CLASSES,
     AVI_NO_DATA,
     SECONDS_PER_YEAR,
@@ -145,7 +145,7 @@ def test_avi_class_boundaries():
 # --- hazards, crust, diffusion, Péclet, heads --------------------------------------------
 
 def test_removal_from_the_top_takes_cover_first_then_clay():
-    from aquitardmap.hydraulics import remove_from_top_m
+    from aquitardmap.hydraulics.column import remove_from_top_m
     # Column 2 m sand / 10 m clay / 5 m silty clay (B3). A 6 m pit removes the sand and
     # 4 m of clay; a 20 m cut removes everything; 0 m changes nothing (hand computation).
     out = remove_from_top_m(np.stack([B3, B3, B3], axis=1), np.array([6.0, 20.0, 0.0]))
@@ -157,7 +157,7 @@ def test_removal_from_the_top_takes_cover_first_then_clay():
 
 
 def test_crust_is_the_top_of_the_clay_across_units():
-    from aquitardmap.hydraulics import crust_thickness_m
+    from aquitardmap.hydraulics.column import crust_thickness_m
     # 3 m crust from the top of the clay: sand (cover) is not crust; 3 m of the 10 m clay;
     # with only 1 m of the first clay, 1 m there and 2 m in the next (hand computation).
     is_aq = np.array([False, True, True])
@@ -176,7 +176,7 @@ def test_crust_with_raised_k_as_two_layers_in_series():
 
 
 def test_diffusion_time_scale_hand_computation():
-    from aquitardmap.hydraulics import diffusion_time_yr
+    from aquitardmap.hydraulics.column import diffusion_time_yr
     # B = 20 m, De = 5e-10 m²/s: B²/De = 400 / 5e-10 = 8e11 s = 8e11 / 31 557 600 yr
     # = 25 350.47 yr.
     assert float(diffusion_time_yr(20.0, 5e-10)) == pytest.approx(25350.47, rel=1e-6)
@@ -186,7 +186,7 @@ def test_diffusion_time_scale_hand_computation():
 
 
 def test_peclet_number_of_one_layer_is_v_b_over_de():
-    from aquitardmap.hydraulics import diffusion_time_yr, peclet_number
+    from aquitardmap.hydraulics.column import diffusion_time_yr, peclet_number
     # One layer: Pe = (B²/De) / (nₑ B / (K i)) = v B / De with seepage velocity v = K i / nₑ
     # (Bear 1972). B = 10 m, K = 5e-10, i = 1, nₑ = 0.4: v = 1.25e-9 m/s; De = 5e-10
     # -> Pe = 1.25e-9 · 10 / 5e-10 = 25.
@@ -198,7 +198,7 @@ def test_peclet_number_of_one_layer_is_v_b_over_de():
 
 
 def test_gradient_from_heads():
-    from aquitardmap.hydraulics import gradient_from_heads
+    from aquitardmap.hydraulics.column import gradient_from_heads
     # Darcy: i = (h_top − h_bottom) / B. Water table 52 m, aquifer head 47 m, 20 m column
     # -> 0.25 downward; an upward case is negative; no column -> undefined.
     i = gradient_from_heads(np.array([52.0, 45.0, 50.0]), np.array([47.0, 47.0, 40.0]),
@@ -209,7 +209,7 @@ def test_gradient_from_heads():
 
 
 def test_avi_legend_uses_the_published_class_names():
-    from aquitardmap.hydraulics import avi_legend
+    from aquitardmap.hydraulics.column import avi_legend
     rows = avi_legend()
     # Van Stempvoort, Ewert & Wassenaar (1993), class names from memory.
     assert [r["vulnerability"] for r in rows] == [
@@ -220,7 +220,7 @@ def test_avi_legend_uses_the_published_class_names():
 
 
 def test_travel_time_is_infinite_where_the_gradient_is_not_downward():
-    from aquitardmap.hydraulics import downward_travel_time_yr
+    from aquitardmap.hydraulics.column import downward_travel_time_yr
     # Cells: the three-layer column at i = 0.5 (617.918 yr, hand computation above), the
     # same column at i = 0 and i = −0.2 (no downward advection: +inf), and an empty column
     # with an upward gradient (nothing to cross: 0).
@@ -238,7 +238,7 @@ def test_series_flow_under_heads_by_hand():
     1.8676486e10 s = 591.822 yr (continuity of flux through layers in series; common
     practice). The uniform-gradient time of the same column is 617.918 yr: the two differ
     because the porosities differ between the layers."""
-    from aquitardmap.hydraulics import crossing_time_yr, series_flux_m_s
+    from aquitardmap.hydraulics.column import crossing_time_yr, series_flux_m_s
     q = series_flux_m_s(B3, K3, 8.5)
     assert float(q) == pytest.approx(8.5 / 2.500002e10, rel=1e-12)
     assert float(crossing_time_yr(B3, N3, q)) == pytest.approx(591.8221, rel=1e-6)
@@ -263,7 +263,7 @@ def test_series_flow_matches_a_finite_difference_solution():
     from scipy.sparse import diags
     from scipy.sparse.linalg import spsolve
 
-    from aquitardmap.hydraulics import crossing_time_yr, series_flux_m_s
+    from aquitardmap.hydraulics.column import crossing_time_yr, series_flux_m_s
 
     dz = 0.01
     tops = np.concatenate([[0.0], np.cumsum(B3)])

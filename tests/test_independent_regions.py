@@ -14,13 +14,13 @@ import pandas as pd
 import pytest
 from scipy.spatial import cKDTree
 
-from aquitardmap import outputs
 from aquitardmap.evaluation.independent import (
     INDEPENDENT_CHARACTERS,
     LAYOUTS,
     make_independent_region,
 )
 from aquitardmap.grid import read_raster
+from aquitardmap.outputs import names as outputs
 from aquitardmap.pipeline import load_inputs
 
 SMALL = {"n_holes": 60, "extent_m": (4000.0, 3000.0)}

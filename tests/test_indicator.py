@@ -1,5 +1,5 @@
-"""Indicator kriging of thin / absent clay (aquitardmap.indicator) and the cross-validation
-of probabilities at the holes (aquitardmap.calibration).
+"""Indicator kriging of thin / absent clay (aquitardmap.geostat.indicator) and the cross-validation
+of probabilities at the holes (aquitardmap.geostat.calibration).
 
 References: gstools' ordinary kriging (an independent implementation, PyPI) for the kriged
 indicators, isotropic and along a local direction; the indicator coding of Goovaerts 1997
@@ -14,8 +14,13 @@ import gstools as gs
 import numpy as np
 import pytest
 
-from aquitardmap.calibration import block_cross_validation, block_labels, brier_score, reliability
-from aquitardmap.indicator import (
+from aquitardmap.geostat.calibration import (
+    block_cross_validation,
+    block_labels,
+    brier_score,
+    reliability,
+)
+from aquitardmap.geostat.indicator import (
     IndicatorData,
     IndicatorProbabilities,
     IndicatorSettings,
@@ -26,7 +31,7 @@ from aquitardmap.indicator import (
     krige_indicator,
     local_direction_deg,
 )
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.variogram import VariogramModel
 
 
 def _indicators(n=60, seed=3):

@@ -1,8 +1,8 @@
-"""The fast parts of the indicator method (aquitardmap.indicator) give the numbers of the
+"""The fast parts of the indicator method (aquitardmap.geostat.indicator) give the numbers of the
 straightforward versions they replaced.
 
 Reference: the loop versions of ``continuity_segments``, ``local_direction_deg`` and
-``honour_hard_data``, and ``krige_indicator`` on :func:`aquitardmap.kriging.weights_at`
+``honour_hard_data``, and ``krige_indicator`` on :func:`aquitardmap.geostat.kriging.weights_at`
 (batched LAPACK solves of every system; itself checked against gstools in
 tests/test_indicator.py), copied below as they were before the speed-up. Segments, directions
 and the honoured cdf must be identical; the kriged indicators equal to 1e-12 near the origin
@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from aquitardmap.indicator import (
+from aquitardmap.geostat.indicator import (
     COINCIDENT_M,
     DIRECTION_BINS,
     IndicatorData,
@@ -29,8 +29,8 @@ from aquitardmap.indicator import (
     krige_indicator,
     local_direction_deg,
 )
-from aquitardmap.kriging import prepare_locations, weights_at
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.kriging import prepare_locations, weights_at
+from aquitardmap.geostat.variogram import VariogramModel
 
 # ------------------------------------------------------------------ reference versions
 

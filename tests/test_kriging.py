@@ -5,8 +5,8 @@ import numpy as np
 import pytest
 from scipy.spatial.distance import cdist
 
-from aquitardmap.kriging import krige_points, merge_coincident
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.kriging import krige_points, merge_coincident
+from aquitardmap.geostat.variogram import VariogramModel
 
 
 def _data(seed=3, n=40):

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from pykrige.ok import OrdinaryKriging
 
-from aquitardmap import localkrige
-from aquitardmap.kriging import cross_validation_statistics, loo_cross_validation
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat import localkrige
+from aquitardmap.geostat.kriging import cross_validation_statistics, loo_cross_validation
+from aquitardmap.geostat.variogram import VariogramModel
 
 needs_numba = pytest.mark.skipif(not localkrige.numba_available(),
                                  reason="numba not installed (extra 'fast')")
@@ -143,7 +143,7 @@ def test_leave_one_out_equals_kriging_without_the_datum(accelerate):
 
 def test_loo_cross_validation_matches_the_one_by_one_loop():
     # The one-pass function against the definition: krige every datum from the others.
-    from aquitardmap.kriging import krige_points
+    from aquitardmap.geostat.kriging import krige_points
 
     x, y, z, _, _ = _data(seed=6, n=120, n_targets=1)
     m = VariogramModel("spherical", nugget=0.8, psill=6.0, range_m=4000.0)

@@ -1,4 +1,4 @@
-"""Tests for aquitardmap.logs: reading, validating and summarising borehole logs.
+"""Tests for aquitardmap.inputs.logs: reading, validating and summarising borehole logs.
 
 Every table here is a small invented CSV written to a temporary folder; positions are in
 UTM-like metres. The censoring rules checked below are those of DOMAIN.md §3: a hole that
@@ -14,8 +14,10 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from aquitardmap.config.project import Project, read_project
 from aquitardmap.errors import InputError, Problem
-from aquitardmap.logs import (
+from aquitardmap.evaluation.synthetic import DEMO_STACK_TOML
+from aquitardmap.inputs.logs import (
     FULL,
     LOWER_BOUND,
     UNKNOWN,
@@ -23,8 +25,6 @@ from aquitardmap.logs import (
     column_table,
     read_boreholes,
 )
-from aquitardmap.project import Project, read_project
-from aquitardmap.synthetic import DEMO_STACK_TOML
 
 # The stack of the demo project.
 PROJECT_TOML = """

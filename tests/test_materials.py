@@ -11,10 +11,10 @@ import re
 import pytest
 from test_logs import PROJECT_TOML
 
+from aquitardmap.config.materials import MaterialRule, match_material
+from aquitardmap.config.project import read_project
 from aquitardmap.errors import InputError
-from aquitardmap.logs import column_table, read_boreholes
-from aquitardmap.materials import MaterialRule, match_material
-from aquitardmap.project import read_project
+from aquitardmap.inputs.logs import column_table, read_boreholes
 
 RULES = """
 [[materials]]

@@ -1,4 +1,4 @@
-"""The printable report (aquitardmap.pdfreport): pages rendered and read back by poppler.
+"""The printable report (aquitardmap.outputs.report): pages rendered and read back by poppler.
 
 poppler-utils (Debian) is the outside reference: ``pdftoppm`` renders each page to PNG,
 ``pdftotext`` extracts what a reader sees, ``pdfinfo`` counts pages. The tiny run folder is
@@ -17,14 +17,14 @@ import matplotlib.image
 import pytest
 from mapdata import build_run_folder, indicator_probability, latent_probability, set_probability
 
-from aquitardmap import outputs
-from aquitardmap.pdfreport import write_report
-from aquitardmap.presentation import (
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.presentation import (
     CALIBRATION_HEADING,
     calibration_checks,
     fmt_bin_share,
     fmt_brier,
 )
+from aquitardmap.outputs.report import write_report
 
 POPPLER = all(shutil.which(t) for t in ("pdftoppm", "pdftotext", "pdfinfo"))
 needs_poppler = pytest.mark.skipif(

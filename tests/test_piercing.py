@@ -9,7 +9,7 @@ from pyproj import CRS
 from shapely.geometry import box
 
 from aquitardmap.grid import make_grid
-from aquitardmap.piercing import piercing_mask, piercing_table, point_density_per_km2
+from aquitardmap.hydraulics.piercing import piercing_mask, piercing_table, point_density_per_km2
 
 CRS_M = CRS.from_epsg(32632)
 

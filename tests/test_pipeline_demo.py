@@ -1,6 +1,6 @@
 """End to end on the bundled demo region: the output contract, and skill against its truth.
 
-The truth grids come from the seeded generator (aquitardmap.synthetic), not from the
+The truth grids come from the seeded generator (aquitardmap.evaluation.synthetic), not from the
 pipeline: they are the outside reference here.
 """
 
@@ -15,9 +15,9 @@ import numpy as np
 import pytest
 import rasterio
 
-from aquitardmap import outputs
 from aquitardmap.grid import NODATA, read_raster
-from aquitardmap.screening import ZONE_KINDS
+from aquitardmap.outputs import names as outputs
+from aquitardmap.screening.zones import ZONE_KINDS
 
 from conftest import DEMO
 

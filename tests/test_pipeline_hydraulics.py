@@ -14,9 +14,9 @@ import rasterio
 from shapely.geometry import box
 
 import aquitardmap
-from aquitardmap import outputs
 from aquitardmap.grid import read_raster, write_raster
-from aquitardmap.hydraulics import AVI_CLASSES, SECONDS_PER_YEAR
+from aquitardmap.hydraulics.column import AVI_CLASSES, SECONDS_PER_YEAR
+from aquitardmap.outputs import names as outputs
 
 from conftest import DEMO
 

@@ -1,4 +1,4 @@
-"""Probabilities of thin and absent clay with inequality data (aquitardmap.probability)."""
+"""Probabilities of thin and absent clay with inequality data (aquitardmap.geostat.probability)."""
 
 from __future__ import annotations
 
@@ -8,15 +8,15 @@ from pyproj import CRS
 from scipy.stats import norm, truncnorm
 from shapely.geometry import box
 
-from aquitardmap.grid import make_grid
-from aquitardmap.kriging import krige_points
-from aquitardmap.probability import (
+from aquitardmap.geostat.kriging import krige_points
+from aquitardmap.geostat.probability import (
     censored_data,
     gibbs_draws,
     thickness_probabilities,
     truncated_normal,
 )
-from aquitardmap.variogram import VariogramModel
+from aquitardmap.geostat.variogram import VariogramModel
+from aquitardmap.grid import make_grid
 
 CRS_M = CRS.from_epsg(32632)
 MODEL = VariogramModel("spherical", nugget=0.5, psill=30.0, range_m=1200.0)
@@ -174,7 +174,7 @@ def test_coincident_inequality_and_full_hole_keeps_the_full_thickness():
 def test_cells_in_blocks_give_the_same_grids(monkeypatch):
     # Memory is bounded by computing the weights block by block; the numbers must not
     # depend on the block size (same kriging systems, same draws).
-    import aquitardmap.probability as prob
+    import aquitardmap.geostat.probability as prob
 
     g = _grid()
     x, y, t = _full_holes()
@@ -214,7 +214,7 @@ def test_block_size_leaves_grids_identical_with_and_without_drift(monkeypatch, w
     # Invariance: a cell's kriging system (neighbours, semivariances, centred and scaled
     # drift) does not depend on the block it is computed in; the drift is centred by the
     # data's mean and SD, never a block's. Small neighbourhoods so they differ across blocks.
-    import aquitardmap.probability as prob
+    import aquitardmap.geostat.probability as prob
 
     g, x, y, t, status, ground, grid_ground = _holes_with_every_kind_and_ground()
     drift = {"drift": ground, "grid_drift": grid_ground} if with_drift else {}
@@ -238,8 +238,8 @@ def test_block_size_leaves_grids_identical_with_and_without_drift(monkeypatch, w
 def test_data_semivariance_table_is_built_once_per_grid(monkeypatch, with_drift):
     # The n × n table of semivariances between the data is the costly per-data setup; it
     # must be built once for the whole grid, not once per block of cells.
-    import aquitardmap.probability as prob
-    from aquitardmap.variogram import VariogramModel as Model
+    import aquitardmap.geostat.probability as prob
+    from aquitardmap.geostat.variogram import VariogramModel as Model
 
     g, x, y, t, status, ground, grid_ground = _holes_with_every_kind_and_ground()
     data = censored_data(x, y, t, status, ground if with_drift else None)

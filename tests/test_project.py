@@ -4,8 +4,8 @@ from pathlib import Path
 
 import pytest
 
+from aquitardmap.config.project import read_project
 from aquitardmap.errors import InputError
-from aquitardmap.project import read_project
 
 from conftest import MINIMAL_PROJECT_TOML as MINIMAL
 

@@ -1,9 +1,9 @@
 """Style sidecars (``name.qml`` beside ``name.tif``) carry the map's colours.
 
 Read back as XML (Python's ``xml.etree``) and compared with what the map draws: the class
-colours and words of :func:`aquitardmap.presentation.avi_classes`, and for continuous grids
+colours and words of :func:`aquitardmap.outputs.presentation.avi_classes`, and for continuous grids
 the colour ramp of the style (matplotlib's colormap of that name) over the range the map's
-legend shows (:func:`aquitardmap.webmap.overlays.colour_scale`).
+legend shows (:func:`aquitardmap.outputs.webmap.overlays.colour_scale`).
 """
 
 from __future__ import annotations
@@ -13,11 +13,11 @@ import xml.etree.ElementTree as ET
 import matplotlib
 import numpy as np
 
-from aquitardmap import outputs
 from aquitardmap.grid import read_raster
-from aquitardmap.presentation import avi_classes, grid_styles
-from aquitardmap.webmap.overlays import colour_scale
-from aquitardmap.webmap.qml import RAMP_STOPS
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.presentation import avi_classes, grid_styles
+from aquitardmap.outputs.webmap.overlays import colour_scale
+from aquitardmap.outputs.webmap.qml import RAMP_STOPS
 
 
 def _hex(rgba) -> str:

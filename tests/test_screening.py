@@ -6,9 +6,9 @@ from pyproj import CRS
 from scipy.stats import norm
 from shapely.geometry import box
 
+from aquitardmap.config.project import ScreeningThresholds
 from aquitardmap.grid import make_grid
-from aquitardmap.project import ScreeningThresholds
-from aquitardmap.screening import probability_below, zone_areas_m2, zones_from_grids
+from aquitardmap.screening.zones import probability_below, zone_areas_m2, zones_from_grids
 
 
 def test_probability_below_is_gaussian_cdf():
@@ -82,7 +82,7 @@ def test_a_window_zone_needs_a_hole_proving_a_window_nearby():
     # most a possible window, and likely thin here (P(thin) 0.9 reaches the likely thin
     # tier, which outranks a possible window), and says why (common practice: map a window
     # where a log shows it, treat an unproven one as possible).
-    from aquitardmap.screening import window_proof_cells, zone_masks
+    from aquitardmap.screening.zones import window_proof_cells, zone_masks
 
     g = make_grid(box(0, 0, 4000, 2000), 50.0, CRS.from_epsg(32632))
     xs, ys = g.cell_centres()
@@ -134,7 +134,7 @@ def _square_patches(g, centres, half_m=100.0):
 
 
 def test_a_cell_at_0_3_is_possible_and_one_at_0_6_likely():
-    from aquitardmap.screening import zone_tier_areas_m2
+    from aquitardmap.screening.zones import zone_tier_areas_m2
 
     g = make_grid(box(0, 0, 3000, 1000), 50.0, CRS.from_epsg(32632))
     hi, mid, lo = _square_patches(g, [(500, 500), (1500, 500), (2500, 500)])
@@ -175,7 +175,7 @@ def test_a_cell_at_0_3_is_possible_and_one_at_0_6_likely():
 
 
 def test_each_cell_takes_one_kind_and_tier_higher_tier_first_then_window():
-    from aquitardmap.screening import zone_tier_masks
+    from aquitardmap.screening.zones import zone_tier_masks
 
     g = make_grid(box(0, 0, 4000, 1000), 50.0, CRS.from_epsg(32632))
     a, b, c, d = _square_patches(g, [(500, 500), (1500, 500), (2500, 500), (3500, 500)])

@@ -1,4 +1,4 @@
-"""The skill of a whole screening run (aquitardmap.skill.screening_skill) is the skill of
+"""The skill of a whole screening run (aquitardmap.evaluation.skill.screening_skill) is the skill of
 what the run writes.
 
 Reference: the files a full ``run`` writes (zones.gpkg, p_thin.tif, p_window.tif,
@@ -15,11 +15,11 @@ import numpy as np
 import pytest
 from rasterio.features import rasterize
 
-from aquitardmap import outputs
+from aquitardmap.evaluation.skill import TRUTH_THICKNESS, pooled_skill, screening_skill
+from aquitardmap.evaluation.synthetic import make_synthetic_region
 from aquitardmap.grid import read_raster
+from aquitardmap.outputs import names as outputs
 from aquitardmap.pipeline import run
-from aquitardmap.skill import TRUTH_THICKNESS, pooled_skill, screening_skill
-from aquitardmap.synthetic import make_synthetic_region
 
 SMALL = {"n_holes": 250, "extent_m": (7000.0, 5000.0), "hazards": False}
 

@@ -1,5 +1,5 @@
 """Ordinary indicator kriging of I(total clay thickness < t), the textbook baseline of the
-skill benchmark (aquitardmap.skill.indicator_kriging_probability).
+skill benchmark (aquitardmap.evaluation.skill.indicator_kriging_probability).
 
 References: gstools.krige.Ordinary (an independent ordinary kriging implementation, PyPI;
 spherical ``len_scale`` = range, gstools documentation), all data in the system when
@@ -17,13 +17,13 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
-from aquitardmap.grid import make_grid
-from aquitardmap.skill import (
+from aquitardmap.evaluation.skill import (
     FALLBACK_RANGE_SPACINGS,
     indicator_kriging_probability,
     indicator_variogram,
     thickness_indicators,
 )
+from aquitardmap.grid import make_grid
 
 THRESHOLD_M = 5.0
 

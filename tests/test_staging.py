@@ -24,9 +24,9 @@ import projectgen as pg
 import pytest
 import rasterio
 
-from aquitardmap import outputs
 from aquitardmap.errors import InputError
-from aquitardmap.staging import staged_output_dir, tidy_output_dir
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.staging import staged_output_dir, tidy_output_dir
 
 from conftest import REPO
 
@@ -39,7 +39,7 @@ pkg = types.ModuleType("aquitardmap")
 pkg.__path__ = [os.path.join(sys.argv[5], "aquitardmap")]
 sys.modules["aquitardmap"] = pkg
 from pathlib import Path
-from aquitardmap import staging
+from aquitardmap.outputs import staging
 
 out, tag, kill_at, exchange = Path(sys.argv[1]), sys.argv[2], int(sys.argv[3]), sys.argv[4]
 calls = 0

@@ -21,10 +21,10 @@ import pandas as pd
 import pyogrio
 import pytest
 
+from aquitardmap.config.project import read_project
 from aquitardmap.errors import InputError
-from aquitardmap.logs import read_boreholes
-from aquitardmap.project import read_project
-from aquitardmap.store import (
+from aquitardmap.inputs.logs import read_boreholes
+from aquitardmap.inputs.store import (
     add_files,
     history,
     project_boreholes,

@@ -21,10 +21,10 @@ import time
 import pyogrio
 import pytest
 
-from aquitardmap import outputs
+from aquitardmap.config.project import read_project
 from aquitardmap.errors import InputError
-from aquitardmap.project import read_project
-from aquitardmap.store import add_files, store_path
+from aquitardmap.inputs.store import add_files, store_path
+from aquitardmap.outputs import names as outputs
 
 from conftest import DEMO
 

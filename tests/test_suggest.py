@@ -11,20 +11,20 @@ import pandas as pd
 import pytest
 from shapely.geometry import Point
 
-from aquitardmap import outputs
-from aquitardmap.drilling_trial import (
+from aquitardmap.config.project import read_project
+from aquitardmap.drilling.suggest import COLUMNS, suggest, suggest_holes, total_thickness_surface
+from aquitardmap.errors import InputError
+from aquitardmap.evaluation.drilling_trial import (
     compare_designs,
     misclassified_area_m2,
     regular_sites,
     screening_class,
     trials_table,
 )
-from aquitardmap.errors import InputError
+from aquitardmap.evaluation.synthetic import make_synthetic_region
 from aquitardmap.grid import write_raster
+from aquitardmap.outputs import names as outputs
 from aquitardmap.pipeline import load_inputs
-from aquitardmap.project import read_project
-from aquitardmap.suggest import COLUMNS, suggest, suggest_holes, total_thickness_surface
-from aquitardmap.synthetic import make_synthetic_region
 
 SMALL = {"n_holes": 60, "extent_m": (5000.0, 3500.0), "cell_size_m": 100.0,
          "write_project_toml": True, "hazards": False}
@@ -92,7 +92,7 @@ def test_candidates_restrict_the_sites(region, tmp_path):
     cand = tmp_path / "land.gpkg"
     gpd.GeoDataFrame({"name": ["Municipal lot"]}, geometry=[poly],
                      crs="EPSG:32632").to_file(cand)
-    from aquitardmap.candidates import read_candidates
+    from aquitardmap.drilling.candidates import read_candidates
 
     sites = read_candidates(cand, inputs.project.crs, inputs.area, inputs.grid)
     res = suggest_holes(inputs, surface, 2, candidates=sites)
@@ -252,9 +252,9 @@ def test_suggest_uses_the_variograms_the_last_run_kept(region, tmp_path, monkeyp
     import shutil
 
     import aquitardmap
-    import aquitardmap.suggest as sg
-    from aquitardmap.store import create_store
-    from aquitardmap.variogramreuse import KEPT_FILE
+    import aquitardmap.drilling.suggest as sg
+    from aquitardmap.geostat.cache.variograms import KEPT_FILE
+    from aquitardmap.inputs.store import create_store
 
     proj = tmp_path / "proj"
     shutil.copytree(region.root, proj)

@@ -5,10 +5,10 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
+from aquitardmap.config.project import KrigingSettings
+from aquitardmap.geostat.surfaces import krige_thickness, scale_units_to_total
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid
-from aquitardmap.project import KrigingSettings
-from aquitardmap.surfaces import krige_thickness, scale_units_to_total
-from aquitardmap.variogram import VariogramModel
 
 CRS_M = CRS.from_epsg(32632)
 

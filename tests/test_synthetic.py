@@ -18,10 +18,8 @@ import pandas as pd
 import pytest
 import rasterio
 
-from aquitardmap import outputs
-from aquitardmap.grid import make_grid, read_raster, resample_to_grid
-from aquitardmap.project import read_project
-from aquitardmap.synthetic import (
+from aquitardmap.config.project import read_project
+from aquitardmap.evaluation.synthetic import (
     CHARACTERS,
     CLAY_UNITS,
     DEMO_SEED,
@@ -29,6 +27,8 @@ from aquitardmap.synthetic import (
     STACK,
     make_synthetic_region,
 )
+from aquitardmap.grid import make_grid, read_raster, resample_to_grid
+from aquitardmap.outputs import names as outputs
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_region"
 COMPARED_FILES = ("collars.csv", "intervals.csv", "samples.csv", "hazards.geojson",

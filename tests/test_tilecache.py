@@ -1,7 +1,7 @@
 """Re-gridding only what changed: tiles from the cache equal a full kriging (to 1e-9).
 
 Reference: kriging of the whole grid from all data in one call of
-``aquitardmap.kriging.krige_grid`` without a cache (pykrige, or the local engine, with the
+``aquitardmap.geostat.kriging.krige_grid`` without a cache (pykrige, or the local engine, with the
 nearest ``k`` data), and a run with an empty cache. Data here are random (no meaning).
 """
 
@@ -15,10 +15,10 @@ import pytest
 from affine import Affine
 from pyproj import CRS
 
+from aquitardmap.geostat.cache.tiles import tile_cache
+from aquitardmap.geostat.kriging import krige_grid
+from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
-from aquitardmap.kriging import krige_grid
-from aquitardmap.tilecache import tile_cache
-from aquitardmap.variogram import VariogramModel
 
 CELL = 100.0
 
@@ -110,8 +110,8 @@ def test_a_changed_value_changes_only_tiles_whose_region_holds_it(tmp_path):
 @pytest.mark.slow
 def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
     import aquitardmap
-    from aquitardmap.project import read_project
-    from aquitardmap.store import add_files
+    from aquitardmap.config.project import read_project
+    from aquitardmap.inputs.store import add_files
 
     from conftest import demo_copy_with_new_hole
 
@@ -143,7 +143,7 @@ def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
 def _knn_sets(xy, grid, model, k):
     from scipy.spatial import cKDTree
 
-    from aquitardmap.tilecache import frame_matrix
+    from aquitardmap.geostat.cache.tiles import frame_matrix
 
     a = frame_matrix(model)
     xs, ys = grid.cell_centres()
@@ -155,7 +155,7 @@ def _knn_sets(xy, grid, model, k):
 
 @pytest.mark.parametrize("case", range(12))
 def test_reached_cells_hold_every_cell_whose_neighbours_changed(case):
-    from aquitardmap.tilecache import _Lattice, reached_cells
+    from aquitardmap.geostat.cache.tiles import _Lattice, reached_cells
 
     rng = np.random.default_rng(100 + case)
     g = _grid(width=int(rng.integers(20, 60)), height=int(rng.integers(20, 60)), hole=False)
@@ -191,7 +191,7 @@ def test_reached_cells_hold_every_cell_whose_neighbours_changed(case):
 
 
 def test_a_chain_of_small_changes_equals_full_kriging_each_time(tmp_path):
-    from aquitardmap.tilecache import MAX_CHAIN
+    from aquitardmap.geostat.cache.tiles import MAX_CHAIN
 
     g = _grid(hole=False)
     x, y, z = _data(500, 8)

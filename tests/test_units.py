@@ -5,8 +5,9 @@ from __future__ import annotations
 import pint
 import pytest
 
-from aquitardmap import hydraulics, units
-from aquitardmap.conductivity import STANDARD_GRAVITY_M_S2
+from aquitardmap import units
+from aquitardmap.hydraulics import column as hydraulics
+from aquitardmap.hydraulics.conductivity import STANDARD_GRAVITY_M_S2
 
 U = pint.UnitRegistry()
 

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy.spatial.distance import pdist
 
-from aquitardmap.variogram import VariogramModel, experimental_variogram, fit_variogram
+from aquitardmap.geostat.variogram import VariogramModel, experimental_variogram, fit_variogram
 
 
 def test_experimental_variogram_matches_brute_force_matheron():
@@ -32,7 +32,7 @@ def test_spherical_model_reaches_sill_at_range():
 def test_fit_recovers_a_known_model_from_its_own_curve():
     # A model fitted to points lying exactly on a spherical curve must return that curve.
     true = VariogramModel("spherical", nugget=0.5, psill=3.0, range_m=800.0)
-    from aquitardmap.variogram import ExperimentalVariogram
+    from aquitardmap.geostat.variogram import ExperimentalVariogram
 
     lags = np.linspace(50, 1500, 15)
     exp = ExperimentalVariogram(lags, true.gamma(lags), np.full(15, 100))
@@ -79,7 +79,7 @@ def test_directional_variogram_matches_brute_force_pair_selection():
 def test_nested_fit_recovers_its_own_curve():
     # Points lying exactly on a nested curve (nugget + spherical + exponential) must give
     # that curve back.
-    from aquitardmap.variogram import ExperimentalVariogram
+    from aquitardmap.geostat.variogram import ExperimentalVariogram
 
     true = VariogramModel("spherical", nugget=0.3, psill=2.0, range_m=300.0,
                           model2="exponential", psill2=4.0, range2_m=2500.0)
@@ -132,7 +132,7 @@ def test_fit_anisotropy_recovers_direction_and_ratio_of_a_synthetic_field():
     # the axis within 10° and the ratio between 2.2 and 4 on each of two realisations.
     import gstools as gs
 
-    from aquitardmap.variogram import fit_anisotropy
+    from aquitardmap.geostat.variogram import fit_anisotropy
 
     model = gs.Exponential(dim=2, var=1.0, len_scale=[300.0, 100.0], angles=np.deg2rad(30))
     for seed in (0, 4):
@@ -149,7 +149,7 @@ def test_fit_anisotropy_recovers_direction_and_ratio_of_a_synthetic_field():
 def test_isotropic_field_shows_no_strong_anisotropy():
     import gstools as gs
 
-    from aquitardmap.variogram import fit_anisotropy
+    from aquitardmap.geostat.variogram import fit_anisotropy
 
     x, y, z = _srf_points(gs.Exponential(dim=2, var=1.0, len_scale=150.0), 7)
     exp = experimental_variogram(x, y, z, n_lags=15, max_lag_m=1200.0)
@@ -163,7 +163,7 @@ def test_pair_subset_depends_on_the_points_not_on_their_number_or_order():
     to 5,000 must change it by at most 10 points, whatever the order of the holes, so that
     a refit after a few new holes does not move by sampling noise (common practice: a
     variogram should not jump when a few data are added)."""
-    from aquitardmap.variogram import MAX_POINTS_FOR_PAIRS, stable_subset
+    from aquitardmap.geostat.variogram import MAX_POINTS_FOR_PAIRS, stable_subset
 
     rng = np.random.default_rng(3)
     x, y = rng.uniform(0, 2e4, 5000), rng.uniform(0, 2e4, 5000)

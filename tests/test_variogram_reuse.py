@@ -1,4 +1,4 @@
-"""Variogram reuse between runs (:mod:`aquitardmap.variogramreuse`).
+"""Variogram reuse between runs (:mod:`aquitardmap.geostat.cache.variograms`).
 
 The policy is checked against hand arithmetic on invented models; the pipeline checks use a
 synthetic region (``make_synthetic_region``, invented data from a known truth) with a store:
@@ -21,19 +21,19 @@ import pandas as pd
 import pytest
 
 import aquitardmap
-from aquitardmap.drift import RESIDUAL_NAME
-from aquitardmap.pipeline import output_grids
-from aquitardmap.project import read_project
-from aquitardmap.store import add_files, create_store
-from aquitardmap.synthetic import hold_back_holes, make_synthetic_region
-from aquitardmap.variogram import VariogramModel
-from aquitardmap.variogramreuse import (
+from aquitardmap.config.project import read_project
+from aquitardmap.evaluation.synthetic import hold_back_holes, make_synthetic_region
+from aquitardmap.geostat.cache.variograms import (
     KEPT_FILE,
     VariogramBook,
     model_difference,
     read_kept,
     variogram_book,
 )
+from aquitardmap.geostat.drift import RESIDUAL_NAME
+from aquitardmap.geostat.variogram import VariogramModel
+from aquitardmap.inputs.store import add_files, create_store
+from aquitardmap.pipeline import output_grids
 
 KEPT = VariogramModel("spherical", nugget=1.0, psill=9.0, range_m=1000.0)
 

@@ -1,4 +1,4 @@
-"""Tests of the planners' map (aquitardmap.webmap) on a tiny synthetic run folder.
+"""Tests of the planners' map (aquitardmap.outputs.webmap) on a tiny synthetic run folder.
 
 The run folder is invented test data (tests/mapdata.py: a 20 x 15 grid of 50 m cells in
 EPSG:32632). The map is checked against outside references: pyproj (PROJ) for where the
@@ -35,11 +35,11 @@ from mapdata import (
 )
 from pyproj import CRS, Transformer
 
-from aquitardmap import outputs
-from aquitardmap.presentation import unit_colours
-from aquitardmap.webmap import WebAssetsNotFound, find_web_assets, write_map
-from aquitardmap.webmap.page import lonlat_to_xy_fit
-from aquitardmap.webmap.striplog import parse_log, strip_log_svg
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.presentation import unit_colours
+from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets, write_map
+from aquitardmap.outputs.webmap.page import lonlat_to_xy_fit
+from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
 
 OVERLAY = re.compile(
     r'L\.imageOverlay\(\s*"(data:image/png;base64,[A-Za-z0-9+/=]+)",\s*'
@@ -464,7 +464,7 @@ def test_unit_colours_follow_roles() -> None:
 
 def test_about_this_run_says_how_the_zones_were_drawn() -> None:
     # The decision behind the zones is on the page (thresholds, method, drift), escaped.
-    from aquitardmap.webmap.page import header_html, zone_method_html
+    from aquitardmap.outputs.webmap.page import header_html, zone_method_html
 
     summary = {"zones": {"basis": "probability", "p_window_threshold": 0.5,
                          "p_thin_threshold": 0.6, "window_proof_radius_m": 300.0},
@@ -487,8 +487,8 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
 def test_run_notes_name_the_method_the_run_used() -> None:
     # One wording (presentation.probability_method_notes) for the report and the map; it
     # follows the method the summary names.
-    from aquitardmap.presentation import probability_method_notes
-    from aquitardmap.webmap.page import zone_method_html
+    from aquitardmap.outputs.presentation import probability_method_notes
+    from aquitardmap.outputs.webmap.page import zone_method_html
 
     zones = {"basis": "probability", "p_window_threshold": 0.5}
     indicator = {"zones": zones, "thresholds": {"window_thickness_m": 0.5,
@@ -512,7 +512,7 @@ def test_run_notes_name_the_method_the_run_used() -> None:
 
 def test_run_notes_say_how_well_the_probabilities_held_up(tmp_path: Path) -> None:
     # The block cross-validation of summary.json, compact, under "About this run".
-    from aquitardmap.webmap.page import calibration_html
+    from aquitardmap.outputs.webmap.page import calibration_html
 
     build_run_folder(tmp_path)
     set_probability(tmp_path, indicator_probability())
@@ -539,7 +539,7 @@ def test_run_notes_say_how_well_the_probabilities_held_up(tmp_path: Path) -> Non
 def test_variogram_figures_are_linked_and_odd_names_are_not() -> None:
     # The figures sit beside map.html: plain relative links; anything that is not a plain
     # PNG file name (a path, a script URL) is left out.
-    from aquitardmap.webmap.page import figure_links_html, header_html
+    from aquitardmap.outputs.webmap.page import figure_links_html, header_html
 
     summary = {"figures": {"variograms": {
         "aquitard": "variogram_aquitard.png", "UMC": "variogram_UMC.png",

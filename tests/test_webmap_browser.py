@@ -29,8 +29,8 @@ import pytest
 from mapdata import EVIL_ID, EVIL_UNIT, HOLE_XY, X0, Y0, build_run_folder, thickness_at
 from pyproj import Transformer
 
-from aquitardmap import outputs
-from aquitardmap.webmap import write_map
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.webmap import write_map
 
 from conftest import REPO
 

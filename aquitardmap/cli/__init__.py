@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import click
 
-from aquitardmap import __version__
+from aquitardmap._version import __version__
 from aquitardmap.cli.add import add_command
 from aquitardmap.cli.check import check_command
 from aquitardmap.cli.compare import compare_command

@@ -7,8 +7,8 @@ from pathlib import Path
 import click
 
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.project import read_project
-from aquitardmap.store import add_files, store_path
+from aquitardmap.config.project import read_project
+from aquitardmap.inputs.store import add_files, store_path
 
 
 @click.command("add")

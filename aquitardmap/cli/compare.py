@@ -6,7 +6,6 @@ from pathlib import Path
 
 import click
 
-from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
 from aquitardmap.compare import (
     CHANGES_MAP,
@@ -15,6 +14,7 @@ from aquitardmap.compare import (
     default_changes_dir,
     write_comparison,
 )
+from aquitardmap.outputs import names as outputs
 
 
 def compare_and_report(run_a: Path, run_b: Path, out: Path, *, debug: bool = False,

@@ -8,8 +8,8 @@ import click
 from rich.table import Table
 
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.project import read_project
-from aquitardmap.store import history, store_path
+from aquitardmap.config.project import read_project
+from aquitardmap.inputs.store import history, store_path
 
 
 @click.command("history")

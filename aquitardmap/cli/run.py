@@ -10,14 +10,14 @@ from pathlib import Path
 import click
 from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
-from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
 from aquitardmap.cli.compare import compare_and_report
 from aquitardmap.compare import check_run, default_changes_dir
+from aquitardmap.config.project import ComputeSettings, read_project
+from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets
 from aquitardmap.pipeline import run
-from aquitardmap.project import ComputeSettings, read_project
-from aquitardmap.screening import ZONE_KINDS, ZONE_TIERS
-from aquitardmap.webmap import WebAssetsNotFound, find_web_assets
+from aquitardmap.screening.zones import ZONE_KINDS, ZONE_TIERS
 
 
 def flagged_area_words(zones: dict) -> str:

@@ -7,9 +7,9 @@ from pathlib import Path
 import click
 from rich.table import Table
 
-from aquitardmap import outputs
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.suggest import suggest
+from aquitardmap.drilling.suggest import suggest
+from aquitardmap.outputs import names as outputs
 
 
 @click.command("suggest")

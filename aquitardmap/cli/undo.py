@@ -7,8 +7,8 @@ from pathlib import Path
 import click
 
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.project import read_project
-from aquitardmap.store import undo_batch
+from aquitardmap.config.project import read_project
+from aquitardmap.inputs.store import undo_batch
 
 
 @click.command("undo")

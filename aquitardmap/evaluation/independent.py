@@ -1,6 +1,6 @@
 """An independent generator of test regions with a known clay thickness.
 
-This generator shares no truth-building code with :mod:`aquitardmap.synthetic`, so that a
+This generator shares no truth-building code with :mod:`aquitardmap.evaluation.synthetic`, so that a
 method tuned on one family of synthetic regions can be checked on another. It differs on
 purpose in every step:
 
@@ -54,9 +54,9 @@ from pyproj import CRS
 from scipy.interpolate import RegularGridInterpolator
 from shapely.geometry import LineString, Polygon
 
-from aquitardmap import outputs
+from aquitardmap.evaluation.synthetic import DEMO_STACK_TOML, SETTINGS_TOML
 from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
-from aquitardmap.synthetic import DEMO_STACK_TOML, SETTINGS_TOML
+from aquitardmap.outputs import names as outputs
 
 __all__ = ["INDEPENDENT_CHARACTERS", "LAYOUTS", "make_independent_region"]
 

@@ -1,0 +1,1 @@
+"""Project settings (``project.toml``) and the materials table."""

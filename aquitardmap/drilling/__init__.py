@@ -1,0 +1,1 @@
+"""Where to drill next: the design criterion, candidate sites, suggestions."""

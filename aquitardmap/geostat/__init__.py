@@ -1,0 +1,1 @@
+"""Geostatistics: variograms, kriging, the unit surfaces and the probabilities."""

@@ -1,0 +1,1 @@
+"""What a run keeps for the next: kriged tiles and fitted variograms."""

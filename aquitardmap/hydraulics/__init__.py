@@ -1,0 +1,1 @@
+"""Hydraulics of the clay column: conductivity, leakance, travel times, heads, piercing."""

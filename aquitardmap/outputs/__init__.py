@@ -1,0 +1,1 @@
+"""What a run writes: file names, summary, grids, figures, report and map."""

@@ -1,0 +1,1 @@
+"""Screening: the flagged zones and the logs that look suspicious."""
