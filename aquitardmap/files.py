@@ -71,6 +71,17 @@ def write_text_atomically(target: str | Path, text: str) -> Path:
     return replace_atomically(target, write)
 
 
+def remove_leftovers(target: str | Path) -> int:
+    """Remove the temporary siblings of ``target`` that killed writers left behind (names of
+    :func:`temporary_sibling`); returns how many."""
+    target = Path(target)
+    n = 0
+    for left in target.parent.glob(f".{target.stem}.*.tmp{target.suffix}"):
+        _remove(left)
+        n += 1
+    return n
+
+
 def file_sha256(path: str | Path) -> str:
     """SHA-256 of a file's bytes, hex."""
     h = hashlib.sha256()
@@ -80,4 +91,5 @@ def file_sha256(path: str | Path) -> str:
     return h.hexdigest()
 
 
-__all__ = ["file_sha256", "replace_atomically", "temporary_sibling", "write_text_atomically"]
+__all__ = ["file_sha256", "remove_leftovers", "replace_atomically", "temporary_sibling",
+           "write_text_atomically"]

@@ -11,8 +11,7 @@ from __future__ import annotations
 import platform
 import time
 import warnings
-from collections.abc import Callable, Iterator
-from contextlib import AbstractContextManager, contextmanager
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from pathlib import Path
@@ -27,19 +26,14 @@ from shapely.geometry import MultiPoint
 from shapely.ops import unary_union
 
 from aquitardmap._version import __version__
-from aquitardmap.config.project import (
-    PROJECT_FILE,
-    ComputeSettings,
-    Project,
-    ScreeningThresholds,
-    read_project,
-    setting_location,
-)
+from aquitardmap.config.project import PROJECT_FILE, Project, read_project, setting_location
+from aquitardmap.config.settings import ComputeSettings, ScreeningThresholds
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.files import file_sha256
 from aquitardmap.geostat.cache import tiles as tilecache
 from aquitardmap.geostat.cache import variograms as variogramreuse
 from aquitardmap.geostat.compute import compute_session, describe
+from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.drift import RESIDUAL_NAME, choose_drift
 from aquitardmap.geostat.indicator import (
     IndicatorSettings,
@@ -416,8 +410,10 @@ def load_inputs(project_dir: str | Path) -> Inputs:
     return Inputs(project, boreholes, columns, area, grid, notes, hazards, heads)
 
 
-def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
-    """Stage 2: krige the total aquitard thickness and each unit above the aquifer.
+def build_surfaces(inputs: Inputs, context: KrigingContext = DEFAULT_CONTEXT
+                   ) -> dict[str, Surface]:
+    """Stage 2: krige the total aquitard thickness and each unit above the aquifer
+    (``context``: where the kriging runs, and the run's tile cache and kept variograms).
 
     Fallbacks taken for a surface (too few holes, all holes equal, merged duplicates) are
     added to ``inputs.warnings``.
@@ -431,7 +427,8 @@ def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
         warnings.simplefilter("ignore", RuntimeWarning)
         try:
             surfaces = krige_column(used, [u.code for u in p.column_units],
-                                    [u.code for u in p.aquitard_units], inputs.grid, p.kriging)
+                                    [u.code for u in p.aquitard_units], inputs.grid, p.kriging,
+                                    context=context)
         except ValueError as exc:
             raise InputError([Problem(p.files["intervals"].name, 0, 0,
                                       f"{exc}: holes that stop in it only give lower bounds, "
@@ -444,7 +441,8 @@ def build_surfaces(inputs: Inputs) -> dict[str, Surface]:
 
 
 def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
-                                hyd: Hydraulics) -> ThicknessProbabilities:
+                                hyd: Hydraulics, context: KrigingContext = DEFAULT_CONTEXT
+                                ) -> ThicknessProbabilities:
     """Stage 4a: P(window) and P(thin) of the protective aquitard thickness on the grid
     (:func:`aquitard_probabilities`).
 
@@ -464,7 +462,7 @@ def thickness_probability_grids(inputs: Inputs, surfaces: dict[str, Surface],
         cut = cut + p.hydraulics.crust_depth_m
     return aquitard_probabilities(inputs, surfaces["aquitard"],
                                   {"window": th.window_thickness_m + cut,
-                                   "thin": th.thin_thickness_m + cut})
+                                   "thin": th.thin_thickness_m + cut}, context)
 
 
 def proves_thinner_than(columns: pd.DataFrame, thickness_m: float) -> pd.Series:
@@ -490,7 +488,8 @@ def window_proof_grid(inputs: Inputs, hyd: Hydraulics | None = None) -> np.ndarr
 
 
 def aquitard_probabilities(inputs: Inputs, total: Surface,
-                           thresholds_m: dict[str, float | np.ndarray]
+                           thresholds_m: dict[str, float | np.ndarray],
+                           context: KrigingContext = DEFAULT_CONTEXT
                            ) -> ThicknessProbabilities:
     """P(total aquitard thickness < threshold) grids by the ``[screening]
     probability_method``.
@@ -504,7 +503,9 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
     ``"latent_gaussian"``: :mod:`aquitardmap.geostat.probability`, with the ground elevation as an
     external drift when ``[kriging] external_drift`` and the cross-validation say so
     (:mod:`aquitardmap.geostat.drift`), otherwise with the total thickness's variogram; the
-    variance level comes from the cross-validation of the model used."""
+    variance level comes from the cross-validation of the model used.
+
+    ``context``: where the kriging runs, and the kept variograms (the drift's residual)."""
     p = inputs.project
     th = p.screening
     used = inputs.columns[~inputs.columns["excluded"]]
@@ -516,9 +517,10 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
                                      location_sd_m=th.location_sd_m,
                                      max_neighbours=min(32, p.kriging.max_neighbours))
         probs = thickness_probabilities_by_indicator(x, y, t, status, inputs.grid,
-                                                     thresholds_m, settings)
+                                                     thresholds_m, settings, context=context)
         cv = cross_validate(x, y, t, status, {"window": th.window_thickness_m,
-                                              "thin": th.thin_thickness_m}, settings)
+                                              "thin": th.thin_thickness_m}, settings,
+                            context=context)
         return replace(probs, other_method={
             **probs.other_method,
             "cross_validation": {name: c.as_dict() for name, c in cv.items()}})
@@ -526,7 +528,7 @@ def aquitard_probabilities(inputs: Inputs, total: Surface,
     dem_path = p.file("dem")
     grid_ground = resample_to_grid(dem_path, inputs.grid) if dem_path is not None else None
     drift = choose_drift(x, y, t, status, ground, grid_ground, inputs.grid, p.kriging,
-                         total.cv)
+                         total.cv, context.variograms)
     model, cv = (drift.model, drift.cv_drift) if drift.used else (total.variogram, total.cv)
     probs = thickness_probabilities(
         x, y, t, status, model, inputs.grid, thresholds_m,
@@ -1077,31 +1079,27 @@ def _tile_folder(project: Project, setting: str | Path | bool | None) -> Path | 
     return project.root / TILE_CACHE_DIR if setting in (None, True) else Path(setting)
 
 
-@contextmanager
-def _surface_cache(folder: Path | None) -> Iterator[tilecache.TileCache | None]:
-    """The tile cache in ``folder`` for the grid kriging inside the block (none without)."""
-    if folder is None:
-        yield None
-        return
-    with tilecache.tile_cache(folder) as cache:
-        yield cache
+def _tile_cache(folder: Path | None) -> tilecache.TileCache | None:
+    """The tile cache in ``folder`` for the grid kriging of a run (none without)."""
+    return tilecache.TileCache(folder) if folder is not None else None
 
 
 def _variogram_book(project: Project, folder: Path | None, refit: bool
-                    ) -> AbstractContextManager[variogramreuse.VariogramBook]:
+                    ) -> variogramreuse.VariogramBook:
     """The book of variograms kept beside the tile folder (without a cache it keeps
     nothing: every surface is fitted afresh, and the decisions are still recorded)."""
     k = project.kriging
-    return variogramreuse.variogram_book(
+    return variogramreuse.open_variogram_book(
         folder.parent / variogramreuse.KEPT_FILE if folder is not None else None,
         within=k.reuse_variogram_within, angle_deg=k.reuse_variogram_angle_deg, refit=refit)
 
 
-def kept_variograms(project: Project) -> AbstractContextManager[variogramreuse.VariogramBook]:
-    """Inside the block, surfaces of ``project`` are kriged with the variograms its last
-    run kept, under the same reuse rule as ``run`` (:mod:`aquitardmap.geostat.cache.variograms`);
-    nothing is written. For stages outside ``run`` (e.g. ``suggest``) that must use the
-    run's models. Without a project cache every surface is fitted afresh."""
+def kept_variograms(project: Project) -> variogramreuse.VariogramBook:
+    """The variograms ``project``'s last run kept, under the same reuse rule as ``run``
+    (:mod:`aquitardmap.geostat.cache.variograms`), for stages outside ``run`` (e.g.
+    ``suggest``) that must krige with the run's models: pass it in a
+    :class:`~aquitardmap.geostat.context.KrigingContext`. Nothing is written. Without a
+    project cache every surface is fitted afresh."""
     return _variogram_book(project, _tile_folder(project, None), False)
 
 
@@ -1176,11 +1174,11 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
     t = lap("inputs", t0)
     folder = _tile_folder(inputs.project, tile_cache)
     # the kept variograms serve the surfaces and the probabilities (residual from the drift)
-    with compute_session(compute or inputs.project.compute) as runner, \
-            _variogram_book(inputs.project, folder, refit_variograms) as book:
+    book = _variogram_book(inputs.project, folder, refit_variograms)
+    cache = _tile_cache(folder)
+    with compute_session(compute or inputs.project.compute) as runner:
         step(1)
-        with _surface_cache(folder) as cache:
-            surfaces = build_surfaces(inputs)
+        surfaces = build_surfaces(inputs, KrigingContext(runner, cache, book))
         t = lap("surfaces", t)
         step(2)
         hyd = compute_hydraulics(inputs, surfaces)
@@ -1189,7 +1187,8 @@ def run(project_dir: str | Path, out_dir: str | Path | None = None, *,
         boreholes = borehole_table(inputs, surfaces)
         probabilities = None
         if inputs.project.screening.zone_basis == "probability":
-            probabilities = thickness_probability_grids(inputs, surfaces, hyd)
+            probabilities = thickness_probability_grids(inputs, surfaces, hyd,
+                                                        KrigingContext(runner, None, book))
         p_thin, zones = screen(inputs, surfaces, hyd, boreholes, probabilities=probabilities)
         t = lap("zones", t)
         compute_info = describe(runner)

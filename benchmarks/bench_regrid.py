@@ -29,7 +29,8 @@ import numpy as np
 from affine import Affine
 from pyproj import CRS
 
-from aquitardmap.geostat.cache.tiles import tile_cache
+from aquitardmap.geostat.cache.tiles import TileCache
+from aquitardmap.geostat.context import KrigingContext
 from aquitardmap.geostat.kriging import krige_grid
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
@@ -73,13 +74,14 @@ def main() -> None:
         cache_dir = Path(tmp) / "cache"
         krige_grid(x[:50], y[:50], z[:50], model, grid, max_neighbours=K)  # compile, warm up
         t = time.perf_counter()
-        with tile_cache(cache_dir) as c:
-            krige_grid(x, y, z, model, grid, max_neighbours=K)
+        c = TileCache(cache_dir)
+        krige_grid(x, y, z, model, grid, max_neighbours=K, context=KrigingContext(tiles=c))
         t_first = time.perf_counter() - t
         print(f"full run (empty cache): {t_first:8.2f} s  ({c.stats.cells_computed:,} cells)")
         t = time.perf_counter()
-        with tile_cache(cache_dir) as c:
-            warm = krige_grid(x2, y2, z2, model, grid, max_neighbours=K)
+        c = TileCache(cache_dir)
+        warm = krige_grid(x2, y2, z2, model, grid, max_neighbours=K,
+                          context=KrigingContext(tiles=c))
         t_inc = time.perf_counter() - t
         s = c.stats
         print(f"after adding {a.added} holes:  {t_inc:8.2f} s  ({s.cells_computed:,} cells "

@@ -7,15 +7,15 @@ import pytest
 from affine import Affine
 from pyproj import CRS
 
-from aquitardmap.config.project import ComputeSettings, read_project
+from aquitardmap.config.project import read_project
+from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.errors import InputError
 from aquitardmap.geostat.compute import (
     DaskRunner,
     SerialRunner,
     compute_session,
-    current_runner,
-    use_runner,
 )
+from aquitardmap.geostat.context import KrigingContext
 from aquitardmap.geostat.kriging import krige_grid, krige_points
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
@@ -50,13 +50,15 @@ def test_dask_tiles_equal_single_process(cluster):
     from distributed import Client
 
     x, y, z, grid, m = _problem()
-    with use_runner(SerialRunner(tile_cells=1024)):
-        a = krige_grid(x, y, z, m, grid, max_neighbours=16)
-        pa = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16)
-    with Client(cluster) as client, use_runner(DaskRunner(client, tile_cells=1024)) as r:
-        assert current_runner() is r
-        b = krige_grid(x, y, z, m, grid, max_neighbours=16)
-        pb = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16)
+    single = KrigingContext(SerialRunner(tile_cells=1024))
+    a = krige_grid(x, y, z, m, grid, max_neighbours=16, context=single)
+    pa = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16,
+                      context=single)
+    with Client(cluster) as client:
+        on_dask = KrigingContext(DaskRunner(client, tile_cells=1024))
+        b = krige_grid(x, y, z, m, grid, max_neighbours=16, context=on_dask)
+        pb = krige_points(x, y, z, m, x[:3000:7] + 13.0, y[:3000:7], max_neighbours=16,
+                          context=on_dask)
     assert np.array_equal(a.estimate, b.estimate, equal_nan=True)
     assert np.array_equal(a.variance, b.variance, equal_nan=True)
     assert np.array_equal(pa.estimate, pb.estimate)
@@ -66,10 +68,9 @@ def test_dask_tiles_equal_single_process(cluster):
 
 def test_tile_size_changes_nothing_but_rounding():
     x, y, z, grid, m = _problem(seed=2)
-    with use_runner(SerialRunner(tile_cells=1024)):
-        a = krige_grid(x, y, z, m, grid, max_neighbours=16)
+    a = krige_grid(x, y, z, m, grid, max_neighbours=16,
+                   context=KrigingContext(SerialRunner(tile_cells=1024)))
     b = krige_grid(x, y, z, m, grid, max_neighbours=16)  # default runner, one tile
-    assert isinstance(current_runner(), SerialRunner)
     assert np.allclose(a.estimate, b.estimate, rtol=1e-10, atol=1e-10, equal_nan=True)
     assert np.allclose(a.variance, b.variance, rtol=1e-10, atol=1e-10, equal_nan=True)
 
@@ -97,8 +98,7 @@ def test_pipeline_on_dask_equals_single_process(cluster, demo_run):
 
 def test_single_mode_session_needs_no_dask():
     with compute_session(ComputeSettings()) as r:
-        assert r.name == "single" and current_runner() is r
-    assert current_runner() is not r
+        assert r.name == "single" and isinstance(r, SerialRunner)
 
 
 def test_unreachable_scheduler_is_an_input_problem(monkeypatch):

@@ -15,7 +15,8 @@ import pytest
 from affine import Affine
 from pyproj import CRS
 
-from aquitardmap.geostat.cache.tiles import tile_cache
+from aquitardmap.geostat.cache.tiles import TileCache
+from aquitardmap.geostat.context import KrigingContext
 from aquitardmap.geostat.kriging import krige_grid
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import Grid
@@ -45,8 +46,8 @@ def test_tiles_equal_one_full_kriging(tmp_path):
     g = _grid()
     x, y, z = _data(400, 1)
     ref = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
-    with tile_cache(tmp_path / "c") as cache:
-        got = krige_grid(x, y, z, MODEL, g, max_neighbours=16)
+    cache = TileCache(tmp_path / "c")
+    got = krige_grid(x, y, z, MODEL, g, max_neighbours=16, context=KrigingContext(tiles=cache))
     assert cache.stats.cells_reused == 0 and cache.stats.cells_computed == int(g.mask.sum())
     inside = g.mask
     assert np.isnan(got.estimate[~inside]).all()
@@ -61,8 +62,8 @@ def test_after_adding_holes_only_nearby_tiles_are_kriged_again(tmp_path, anisotr
                            anisotropy_ratio=ratio, anisotropy_angle_deg=angle)
     x, y, z = _data(600, 2)
     g = _grid()
-    with tile_cache(tmp_path / "c") as first:
-        krige_grid(x, y, z, model, g, max_neighbours=16)
+    first = TileCache(tmp_path / "c")
+    krige_grid(x, y, z, model, g, max_neighbours=16, context=KrigingContext(tiles=first))
     n_cells = first.stats.cells_computed
     # ten new holes in one corner, and a study area grown by two columns to the east
     rng = np.random.default_rng(3)
@@ -70,10 +71,12 @@ def test_after_adding_holes_only_nearby_tiles_are_kriged_again(tmp_path, anisotr
     y2 = np.concatenate([y, rng.uniform(6695000.0, 6696500.0, 10)])
     z2 = np.concatenate([z, rng.normal(9.0, 1.0, 10)])
     g2 = _grid(width=92)
-    with tile_cache(tmp_path / "c") as second:
-        warm = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
-    with tile_cache(tmp_path / "cold"):
-        cold = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
+    second = TileCache(tmp_path / "c")
+    warm = krige_grid(x2, y2, z2, model, g2, max_neighbours=16,
+                      context=KrigingContext(tiles=second))
+    _cache = TileCache(tmp_path / "cold")
+    cold = krige_grid(x2, y2, z2, model, g2, max_neighbours=16,
+                      context=KrigingContext(tiles=_cache))
     full = krige_grid(x2, y2, z2, model, g2, max_neighbours=16)
     inside = g2.mask
     # identical to a run with an empty cache, and to one kriging of the whole grid
@@ -92,13 +95,13 @@ def test_after_adding_holes_only_nearby_tiles_are_kriged_again(tmp_path, anisotr
 def test_a_changed_value_changes_only_tiles_whose_region_holds_it(tmp_path):
     x, y, z = _data(500, 4)
     g = _grid(hole=False)
-    with tile_cache(tmp_path / "c"):
-        before = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    _cache = TileCache(tmp_path / "c")
+    before = krige_grid(x, y, z, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=_cache))
     z2 = z.copy()
     i = int(np.argmin((x - 504000.0) ** 2 + (y - 6698000.0) ** 2))
     z2[i] += 5.0
-    with tile_cache(tmp_path / "c") as cache:
-        after = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
+    cache = TileCache(tmp_path / "c")
+    after = krige_grid(x, y, z2, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=cache))
     full = krige_grid(x, y, z2, MODEL, g, max_neighbours=12)
     np.testing.assert_allclose(after.estimate, full.estimate, rtol=0, atol=1e-9)
     changed = ~np.isclose(after.estimate, before.estimate, rtol=0, atol=1e-12)
@@ -196,8 +199,8 @@ def test_a_chain_of_small_changes_equals_full_kriging_each_time(tmp_path):
     g = _grid(hole=False)
     x, y, z = _data(500, 8)
     rng = np.random.default_rng(9)
-    with tile_cache(tmp_path / "c") as cache:
-        krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    cache = TileCache(tmp_path / "c")
+    krige_grid(x, y, z, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=cache))
     kinds = []
     for step in range(MAX_CHAIN + 3):
         if step % 3 == 2:  # remove two holes (as an undo does)
@@ -206,8 +209,8 @@ def test_a_chain_of_small_changes_equals_full_kriging_each_time(tmp_path):
             x = np.concatenate([x, rng.uniform(500000.0, 509000.0, 3)])
             y = np.concatenate([y, rng.uniform(6695000.0, 6702000.0, 3)])
             z = np.concatenate([z, rng.normal(10.0, 2.0, 3)])
-        with tile_cache(tmp_path / "c") as cache:
-            got = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+        cache = TileCache(tmp_path / "c")
+        got = krige_grid(x, y, z, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=cache))
         assert cache.stats.cells_reused > 0.5 * g.mask.size
         cache.prune()
         full = krige_grid(x, y, z, MODEL, g, max_neighbours=12)
@@ -225,20 +228,20 @@ def test_a_chain_of_small_changes_equals_full_kriging_each_time(tmp_path):
 def test_a_broken_chain_is_not_used(tmp_path):
     g = _grid(hole=False)
     x, y, z = _data(300, 10)
-    with tile_cache(tmp_path / "c"):
-        krige_grid(x, y, z, MODEL, g, max_neighbours=12)
+    _cache = TileCache(tmp_path / "c")
+    krige_grid(x, y, z, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=_cache))
     x2, y2, z2 = (np.concatenate([a, [b]]) for a, b in ((x, 503000.0), (y, 6699000.0),
                                                         (z, 30.0)))
-    with tile_cache(tmp_path / "c") as cache:
-        krige_grid(x2, y2, z2, MODEL, g, max_neighbours=12)
+    cache = TileCache(tmp_path / "c")
+    krige_grid(x2, y2, z2, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=cache))
     # the full entry the patch builds on disappears (a user cleaning up by hand)
     for p in (tmp_path / "c").iterdir():
         if json.loads((p / "meta.json").read_text())["kind"] == "full":
             shutil.rmtree(p)
     z3 = z2.copy()
     z3[0] += 1.0
-    with tile_cache(tmp_path / "c") as cache:
-        got = krige_grid(x2, y2, z3, MODEL, g, max_neighbours=12)
+    cache = TileCache(tmp_path / "c")
+    got = krige_grid(x2, y2, z3, MODEL, g, max_neighbours=12, context=KrigingContext(tiles=cache))
     assert cache.stats.cells_reused == 0
     full = krige_grid(x2, y2, z3, MODEL, g, max_neighbours=12)
     np.testing.assert_allclose(got.estimate, full.estimate, rtol=0, atol=1e-9)

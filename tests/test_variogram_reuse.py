@@ -22,13 +22,13 @@ import pytest
 
 import aquitardmap
 from aquitardmap.config.project import read_project
-from aquitardmap.evaluation.synthetic import hold_back_holes, make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import hold_back_holes, make_synthetic_region
 from aquitardmap.geostat.cache.variograms import (
     KEPT_FILE,
     VariogramBook,
     model_difference,
+    open_variogram_book,
     read_kept,
-    variogram_book,
 )
 from aquitardmap.geostat.drift import RESIDUAL_NAME
 from aquitardmap.geostat.variogram import VariogramModel
@@ -113,9 +113,9 @@ def test_forced_refit_zero_tolerance_manual_and_fallback(tmp_path):
 
 def test_kept_models_round_trip_and_a_broken_file_is_ignored(tmp_path):
     path = tmp_path / "cache" / KEPT_FILE
-    with variogram_book(path) as book:
-        book.settle("aquitard", KEPT, "fitted")
-        book.settle("UMC", KEPT, "manual")
+    book = open_variogram_book(path)
+    book.settle("aquitard", KEPT, "fitted")
+    book.settle("UMC", KEPT, "manual")
     book.save()
     assert read_kept(path) == {"aquitard": KEPT}  # manual models are not kept
     assert [p.name for p in path.parent.iterdir()] == [KEPT_FILE]  # no temporary left
@@ -125,10 +125,10 @@ def test_kept_models_round_trip_and_a_broken_file_is_ignored(tmp_path):
                                 "surfaces": {"aquitard": {"model": {"model": "spherical",
                                                                     "nugget": "x"}}}}))
     assert read_kept(path) == {}
-    with variogram_book(None) as book:  # no project cache: nothing kept, nothing written
-        assert book.settle("aquitard", KEPT, "fitted") == (KEPT, "fitted")
-        assert "no project cache" in book.decisions["aquitard"].reason
-        assert book.save() is None
+    book = open_variogram_book(None)  # no project cache: nothing kept, nothing written
+    assert book.settle("aquitard", KEPT, "fitted") == (KEPT, "fitted")
+    assert "no project cache" in book.decisions["aquitard"].reason
+    assert book.save() is None
 
 
 def test_sill_level_does_not_change_ordinary_kriging_estimates():

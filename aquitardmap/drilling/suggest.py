@@ -25,10 +25,11 @@ import rasterio
 from rasterio.enums import Resampling
 from scipy.spatial import cKDTree
 
-from aquitardmap.config.project import DrillingSettings
+from aquitardmap.config.settings import DrillingSettings
 from aquitardmap.drilling.candidates import CandidateSites, grid_sites, read_candidates
 from aquitardmap.drilling.design import DrillingPlan, plan_holes
 from aquitardmap.errors import ProblemList
+from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.surfaces import Surface, krige_thickness
 from aquitardmap.grid import resample_to_grid
 from aquitardmap.outputs import names as outputs
@@ -71,16 +72,18 @@ class Suggestions:
     weighted: bool
 
 
-def total_thickness_surface(inputs: Inputs) -> Surface:
+def total_thickness_surface(inputs: Inputs, context: KrigingContext = DEFAULT_CONTEXT
+                            ) -> Surface:
     """Krige the total aquitard thickness exactly as the run does (lower bounds honoured),
-    without the cross-validation the run adds for its summary."""
+    without the cross-validation the run adds for its summary (``context``: the run's
+    kept variograms, where the kriging runs)."""
     used = inputs.columns[~inputs.columns["excluded"]]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         return krige_thickness("aquitard", used["x"].to_numpy(float), used["y"].to_numpy(float),
                                used["aquitard_thickness_m"].to_numpy(float),
                                used["status_aquitard"].to_numpy(), inputs.grid,
-                               inputs.project.kriging, with_cv=False)
+                               inputs.project.kriging, with_cv=False, context=context)
 
 
 def read_priority(path: str | Path, inputs: Inputs) -> np.ndarray:
@@ -262,15 +265,16 @@ def suggest(project_dir: str | Path, out_dir: str | Path, n_holes: int | None = 
     priority_file = priority_path or inputs.project.drilling.priority_grid
     priority = read_priority(priority_file, inputs) if priority_file else None
     p = inputs.project
-    with kept_variograms(p):  # the models the last run used, when it kept them
-        if (inputs.hazards is not None and len(inputs.hazards)) or \
-                p.hydraulics.crust_treatment == "not_protective":
-            # the run screens the thickness cut by hazards / without the crust: do the same
-            surfaces = build_surfaces(inputs)
-            surface = surfaces["aquitard"]
-            protective = compute_hydraulics(inputs, surfaces).protective_thickness_m
-        else:
-            surface, protective = total_thickness_surface(inputs), None
+    # the models the last run used, when it kept them
+    context = KrigingContext(variograms=kept_variograms(p))
+    if (inputs.hazards is not None and len(inputs.hazards)) or \
+            p.hydraulics.crust_treatment == "not_protective":
+        # the run screens the thickness cut by hazards / without the crust: do the same
+        surfaces = build_surfaces(inputs, context)
+        surface = surfaces["aquitard"]
+        protective = compute_hydraulics(inputs, surfaces).protective_thickness_m
+    else:
+        surface, protective = total_thickness_surface(inputs, context), None
     result = suggest_holes(inputs, surface, n_holes, candidates=sites, priority=priority,
                            protective_m=protective)
     written = write_suggestions(out_dir, result)

@@ -10,9 +10,9 @@ optional ``dask`` extra (``pip install "aquitardmap[dask]"``). A task's numbers 
 on where it runs, so both give identical results (given the same package versions on every
 worker).
 
-The runner in force is held in a context variable, set for the duration of a run by
-:func:`compute_session` (or :func:`use_runner`), and read by the kriging functions through
-:func:`current_runner`; code that never opens a session gets the in-process runner.
+A run opens its runner with :func:`compute_session` and hands it to the kriging functions
+in a :class:`~aquitardmap.geostat.context.KrigingContext`; a call given no context runs in
+this process.
 """
 
 from __future__ import annotations
@@ -20,10 +20,9 @@ from __future__ import annotations
 import os
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
-from contextvars import ContextVar
 from typing import Any, Protocol
 
-from aquitardmap.config.project import ComputeSettings
+from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.errors import InputError, Problem
 
 #: Cells (or target points) per tile when no session says otherwise.
@@ -87,29 +86,10 @@ class DaskRunner:
             self.client.cancel([f for f in futures if f is not None])
 
 
-_RUNNER: ContextVar[Runner | None] = ContextVar("aquitardmap_runner", default=None)
-
-
-def current_runner() -> Runner:
-    """The runner of the innermost open session, or an in-process one."""
-    r = _RUNNER.get()
-    return r if r is not None else SerialRunner()
-
-
-@contextmanager
-def use_runner(runner: Runner) -> Iterator[Runner]:
-    """Make ``runner`` the current runner inside the ``with`` block."""
-    token = _RUNNER.set(runner)
-    try:
-        yield runner
-    finally:
-        _RUNNER.reset(token)
-
-
 @contextmanager
 def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]:
-    """Open the runner that ``settings`` (``[compute]`` of project.toml) asks for, make it
-    current inside the ``with`` block, and shut it down afterwards.
+    """Open the runner that ``settings`` (``[compute]`` of project.toml) asks for, yield it
+    for the ``with`` block, and shut it down afterwards.
 
     ``mode = "single"``: in this process. ``mode = "dask"``: connect to ``scheduler`` when
     given, else start ``workers`` local worker processes (0: one per CPU core) with one
@@ -121,8 +101,7 @@ def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]
     """
     settings = settings or ComputeSettings()
     if settings.mode != "dask":
-        with use_runner(SerialRunner(settings.tile_cells)) as r:
-            yield r
+        yield SerialRunner(settings.tile_cells)
         return
     try:
         from distributed import Client, LocalCluster
@@ -144,8 +123,7 @@ def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]
         raise InputError([Problem("project.toml", 0, 0, "cannot reach the Dask scheduler "
                                   f"at {settings.scheduler!r}: {exc}")]) from None
     try:
-        with use_runner(DaskRunner(client, settings.tile_cells)) as r:
-            yield r
+        yield DaskRunner(client, settings.tile_cells)
     finally:
         client.close()
         if cluster is not None:

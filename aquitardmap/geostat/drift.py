@@ -36,7 +36,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from aquitardmap.config.project import KrigingSettings
+from aquitardmap.config.settings import KrigingSettings
+from aquitardmap.geostat.cache.variograms import VariogramBook
 from aquitardmap.geostat.kriging import KrigingResult, cross_validation_statistics, kriging_weights
 from aquitardmap.geostat.surfaces import Surface, choose_variogram, group_coincident
 from aquitardmap.geostat.variogram import ExperimentalVariogram, VariogramModel
@@ -116,8 +117,8 @@ def loo_with_drift(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
 
 def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                  status: np.ndarray, ground_m: np.ndarray, grid_ground_m: np.ndarray | None,
-                 grid: Grid, settings: KrigingSettings, ordinary_cv: dict[str, float]
-                 ) -> DriftChoice:
+                 grid: Grid, settings: KrigingSettings, ordinary_cv: dict[str, float],
+                 book: VariogramBook | None = None) -> DriftChoice:
     """Decide whether the ground elevation serves as the external drift of the total
     aquitard thickness (module docstring).
 
@@ -130,6 +131,8 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
         settings: kriging settings (``external_drift``, neighbourhood, variogram choices).
         ordinary_cv: leave-one-out statistics of ordinary kriging on the same full holes
             (the total thickness surface's ``cv``), the figures the drift must beat.
+        book: the run's kept variograms, for the residual's model
+            (:mod:`aquitardmap.geostat.cache.variograms`); None uses the fresh fit.
     """
     setting = settings.external_drift
     if setting == "none":
@@ -165,7 +168,8 @@ def choose_drift(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     a = np.column_stack([np.ones_like(gf), gf])
     (b0, b1), *_ = np.linalg.lstsq(a, t, rcond=None)
     resid = t - (b0 + b1 * gf)
-    model, exp, _, source, _ = choose_variogram(RESIDUAL_NAME, x, y, resid, settings, grid)
+    model, exp, _, source, _ = choose_variogram(RESIDUAL_NAME, x, y, resid, settings, grid,
+                                            book)
     cv_ok = dict(ordinary_cv)
     trials = {k: cross_validation_statistics(t, loo_with_drift(x, y, t, gf, model, k))
               for k in drift_neighbourhoods(settings.max_neighbours)}

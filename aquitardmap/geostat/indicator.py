@@ -54,6 +54,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.spatial import cKDTree
 
+from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.kriging import krige_points, merge_coincident
 from aquitardmap.geostat.variogram import (
     VariogramModel,
@@ -291,8 +292,8 @@ class _TargetBuckets:
 
 def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray,
                     yt_m: np.ndarray, *, max_neighbours: int = 32,
-                    direction_deg: np.ndarray | None = None, continuity_ratio: float = 1.0
-                    ) -> np.ndarray:
+                    direction_deg: np.ndarray | None = None, continuity_ratio: float = 1.0,
+                    context: KrigingContext = DEFAULT_CONTEXT) -> np.ndarray:
     """Ordinary indicator kriging estimates at the targets, clipped to [0, 1].
 
     Where ``direction_deg`` is finite the target is kriged with ``model`` made
@@ -324,7 +325,7 @@ def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray
         if sel.size == 0:
             continue
         out[sel] = krige_points(data.x_m, data.y_m, data.value, m, tx[sel], ty[sel],
-                                max_neighbours=max_neighbours).estimate
+                                max_neighbours=max_neighbours, context=context).estimate
     return np.clip(out, 0.0, 1.0)
 
 
@@ -420,11 +421,12 @@ class IndicatorProbabilities:
 def indicator_cdf(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                   status: np.ndarray, cutoffs_m: list[float], xt_m: np.ndarray,
                   yt_m: np.ndarray, settings: IndicatorSettings = IndicatorSettings(),
-                  own_target: np.ndarray | None = None) -> IndicatorProbabilities:
+                  own_target: np.ndarray | None = None, *,
+                  context: KrigingContext = DEFAULT_CONTEXT) -> IndicatorProbabilities:
     """Indicator-kriged P(T < t) at targets for each cutoff (module docstring), with the
     chains of proving holes of each cutoff, order-corrected, hard data honoured
     (:func:`honour_hard_data`; ``own_target`` the target index of each hole, -1 for
-    none)."""
+    none); the kriging runs on ``context``'s runner."""
     cut = np.unique(np.asarray(cutoffs_m, float))
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     x, y = np.asarray(x_m, float).ravel(), np.asarray(y_m, float).ravel()
@@ -444,7 +446,8 @@ def indicator_cdf(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
         cdf[:, k] = krige_indicator(data, model, tx, ty,
                                     max_neighbours=settings.max_neighbours,
                                     direction_deg=direction,
-                                    continuity_ratio=settings.continuity_ratio)
+                                    continuity_ratio=settings.continuity_ratio,
+                                    context=context)
         results.append(CutoffResult(float(t), int(data.value.size), data.n_event,
                                     data.n_left_out, model, source, int(len(segs))))
         if source == "default":
@@ -498,7 +501,8 @@ LADDER_M = (2.5, 7.5, 10.0, 15.0, 20.0, 25.0, 30.0, 40.0, 60.0)
 def indicator_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                             status: np.ndarray, grid: Grid,
                             thresholds_m: dict[str, float | np.ndarray],
-                            settings: IndicatorSettings = IndicatorSettings()
+                            settings: IndicatorSettings = IndicatorSettings(), *,
+                            context: KrigingContext = DEFAULT_CONTEXT
                             ) -> tuple[dict[str, np.ndarray], IndicatorProbabilities]:
     """``{name: P(T < threshold)}`` grids (NaN outside the study area) for thresholds that
     are numbers or grids; the cutoffs are the distinct constant thresholds, plus
@@ -527,7 +531,7 @@ def indicator_probabilities(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.nd
     own = np.full(rows.size, -1)
     own[ok] = order[rows[ok], cols[ok]]
     res = indicator_cdf(x_m, y_m, thickness_m, status, sorted(cutoffs), xx[inside],
-                        yy[inside], settings, own)
+                        yy[inside], settings, own, context=context)
     out = {}
     for name, v in thr.items():
         g = np.full(inside.shape, np.nan)
@@ -540,14 +544,15 @@ def thickness_probabilities_by_indicator(x_m: np.ndarray, y_m: np.ndarray,
                                          thickness_m: np.ndarray, status: np.ndarray,
                                          grid: Grid,
                                          thresholds_m: dict[str, float | np.ndarray],
-                                         settings: IndicatorSettings = IndicatorSettings()):
+                                         settings: IndicatorSettings = IndicatorSettings(), *,
+                                         context: KrigingContext = DEFAULT_CONTEXT):
     """:func:`indicator_probabilities` as the pipeline's
     :class:`aquitardmap.geostat.probability.ThicknessProbabilities` (its ``as_dict`` then tells
     this method, its cutoffs and variograms)."""
     from aquitardmap.geostat.probability import ThicknessProbabilities
 
     grids, res = indicator_probabilities(x_m, y_m, thickness_m, status, grid, thresholds_m,
-                                         settings)
+                                         settings, context=context)
     st = np.asarray(status)
     t = np.asarray(thickness_m, float)
     full = st == "full"
@@ -573,7 +578,8 @@ CV_BLOCK_SPACINGS = 3.0
 def cross_validate(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                    status: np.ndarray, thresholds_m: dict[str, float],
                    settings: IndicatorSettings = IndicatorSettings(),
-                   block_m: float | None = None):
+                   block_m: float | None = None, *,
+                   context: KrigingContext = DEFAULT_CONTEXT):
     """Spatial cross-validation of this method's probabilities at the holes
     (:func:`aquitardmap.geostat.calibration.block_cross_validation`): every block of
     ``block_m`` (default :data:`CV_BLOCK_SPACINGS` median hole spacings) is held out and its
@@ -594,7 +600,7 @@ def cross_validate(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     def predict(train: np.ndarray, test: np.ndarray) -> dict[str, np.ndarray]:
         res = indicator_cdf(x[train], y[train], t[train], st[train],
                             sorted({float(v) for v in thresholds_m.values()}),
-                            x[test], y[test], settings)
+                            x[test], y[test], settings, context=context)
         return {name: res.at(thr) for name, thr in thresholds_m.items()}
 
     return block_cross_validation(x, y, events, predict, block)

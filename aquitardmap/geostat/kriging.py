@@ -8,12 +8,14 @@ bounds the work and keeps the system well conditioned. The variogram is fitted b
 :mod:`aquitardmap.geostat.variogram` and used as given. The solver is the local engine of
 :mod:`aquitardmap.geostat.localkrige` (equal to pykrige's ``OrdinaryKriging`` C backend with
 ``n_closest_points`` to 1e-8 relative, tested). Targets are cut into tiles that run one
-after another, or on a Dask cluster when a compute session says so
-(:mod:`aquitardmap.geostat.compute`); the numbers are the same either way.
+after another, or on a Dask cluster when the caller's :class:`~aquitardmap.geostat.context.
+KrigingContext` says so (:mod:`aquitardmap.geostat.compute`); the numbers are the same
+either way.
 """
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
@@ -21,8 +23,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from aquitardmap.geostat import localkrige
-from aquitardmap.geostat.cache.tiles import current_tile_cache
-from aquitardmap.geostat.compute import current_runner
+from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.variogram import VariogramModel, anisotropic_coordinates
 from aquitardmap.grid import Grid
 
@@ -73,7 +74,8 @@ def _grid_tile(data: localkrige.KrigingData,
 
 def krige_points(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
                  model: VariogramModel, xt_m: np.ndarray, yt_m: np.ndarray, *,
-                 max_neighbours: int = 64) -> KrigingResult:
+                 max_neighbours: int = 64, context: KrigingContext = DEFAULT_CONTEXT
+                 ) -> KrigingResult:
     """Ordinary kriging of ``values`` at data (x_m, y_m) onto targets (xt_m, yt_m).
 
     Data must not share locations (see :func:`merge_coincident`). At a target that falls on a
@@ -83,7 +85,7 @@ def krige_points(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     xt = np.asarray(xt_m, float).ravel()
     yt = np.asarray(yt_m, float).ravel()
     data = localkrige.prepare(x_m, y_m, values, model, max_neighbours)
-    runner = current_runner()
+    runner = context.runner
     size = runner.tile_cells
     est = np.empty(xt.size)
     var = np.empty(xt.size)
@@ -102,28 +104,31 @@ def krige_points(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
     return KrigingResult(est, np.maximum(var, 0.0))
 
 
-def _krige_arrays(x_m, y_m, values, model, xt_m, yt_m, *, max_neighbours):
+def _krige_arrays(x_m, y_m, values, model, xt_m, yt_m, *, max_neighbours, context):
     """:func:`krige_points` as (estimate, variance) arrays (the tile cache's kriging)."""
-    r = krige_points(x_m, y_m, values, model, xt_m, yt_m, max_neighbours=max_neighbours)
+    r = krige_points(x_m, y_m, values, model, xt_m, yt_m, max_neighbours=max_neighbours,
+                     context=context)
     return r.estimate, r.variance
 
 
 def krige_grid(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, model: VariogramModel,
-               grid: Grid, *, max_neighbours: int = 64) -> KrigingResult:
+               grid: Grid, *, max_neighbours: int = 64,
+               context: KrigingContext = DEFAULT_CONTEXT) -> KrigingResult:
     """Ordinary kriging onto the centres of the cells of ``grid`` inside its mask.
 
     The grid is cut into square windows of about the runner's ``tile_cells`` cells, each a
     task; memory stays bounded by the tile size plus the output grids. Returns
-    (height, width) arrays with NaN outside the mask. Inside
-    :func:`aquitardmap.geostat.cache.tiles.tile_cache`, tiles whose deciding data are unchanged are
-    read from the cache instead (same numbers; see that module).
+    (height, width) arrays with NaN outside the mask. With a tile cache in ``context``,
+    tiles whose deciding data are unchanged are read from the cache instead (same numbers;
+    :mod:`aquitardmap.geostat.cache.tiles`); the others are kriged on the context's runner.
     """
-    cache = current_tile_cache()
+    cache = context.tiles
     if cache is not None:
+        krige = functools.partial(_krige_arrays, context=KrigingContext(context.runner))
         return KrigingResult(*cache.krige_grid(x_m, y_m, values, model, grid,
-                                               max_neighbours, _krige_arrays))
+                                               max_neighbours, krige))
     data = localkrige.prepare(x_m, y_m, values, model, max_neighbours)
-    runner = current_runner()
+    runner = context.runner
     side = max(16, int(math.isqrt(runner.tile_cells)))
     t = grid.transform
     affine = (float(t.a), float(t.c), float(t.e), float(t.f))

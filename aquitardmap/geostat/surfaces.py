@@ -32,8 +32,9 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from aquitardmap.config.project import KrigingSettings
-from aquitardmap.geostat.cache.variograms import settle_variogram
+from aquitardmap.config.settings import KrigingSettings
+from aquitardmap.geostat.cache.variograms import VariogramBook, settle_variogram
+from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.kriging import krige_grid, krige_points, loo_cross_validation
 from aquitardmap.geostat.variogram import (
     DirectionalFit,
@@ -200,20 +201,21 @@ def lag_classes(x_m: np.ndarray, y_m: np.ndarray, settings: KrigingSettings
 
 
 def choose_variogram(name: str, x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray,
-                     settings: KrigingSettings, grid: Grid
+                     settings: KrigingSettings, grid: Grid,
+                     book: VariogramBook | None = None
                      ) -> tuple[VariogramModel, ExperimentalVariogram, DirectionalFit | None,
                                 str, list[str]]:
     """The variogram of surface ``name`` from its full-hole values (module docstring).
 
-    Within a run with a project cache, a fitted model gives way to the one kept from the
-    previous run while the two agree (:mod:`aquitardmap.geostat.cache.variograms`; source
-    ``"reused"``).
+    With the ``book`` of a run with a project cache, a fitted model gives way to the one
+    kept from the previous run while the two agree
+    (:mod:`aquitardmap.geostat.cache.variograms`; source ``"reused"``).
 
     Returns (model, experimental variogram, directional fit or None, source, notes).
     """
     model, exp, directional, source, notes = _choose_variogram(name, x_m, y_m, values,
                                                                settings, grid)
-    model, source = settle_variogram(name, model, source)
+    model, source = settle_variogram(name, model, source, book)
     return model, exp, directional, source, notes
 
 
@@ -273,7 +275,8 @@ def _choose_variogram(name: str, x_m: np.ndarray, y_m: np.ndarray, values: np.nd
 def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
                     status: np.ndarray, grid: Grid, settings: KrigingSettings, *,
                     with_cv: bool = True, model: VariogramModel | None = None,
-                    ids: np.ndarray | None = None) -> Surface:
+                    ids: np.ndarray | None = None,
+                    context: KrigingContext = DEFAULT_CONTEXT) -> Surface:
     """Krige one thickness from borehole values whose ``status`` is ``"full"`` or
     ``"lower_bound"`` (others are ignored), honouring lower bounds as described in the
     module docstring.
@@ -288,6 +291,8 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         settings: variogram choices and neighbourhood.
         model: a variogram to use as given instead of choosing one.
         ids: borehole ids (for the cross-validation table); positions when omitted.
+        context: where the kriging runs, the tile cache and the kept variograms of a run
+            (:class:`~aquitardmap.geostat.context.KrigingContext`; none by default).
 
     Raises:
         ValueError: when no hole gives the full thickness.
@@ -311,7 +316,7 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         exp, directional, source = _EMPTY_EXP, None, "given"
     else:
         model, exp, directional, source, more = choose_variogram(name, fx, fy, ft, settings,
-                                                                 grid)
+                                                                 grid, context.variograms)
         notes.extend(more)
 
     def krige_data(active: np.ndarray):
@@ -328,14 +333,15 @@ def krige_thickness(name: str, x_m: np.ndarray, y_m: np.ndarray, thickness_m: np
         if bx.size == 0:
             break
         dx, dy, dt = krige_data(active)
-        est = krige_points(dx, dy, dt, model, bx, by,
-                           max_neighbours=settings.max_neighbours).estimate
+        est = krige_points(dx, dy, dt, model, bx, by, max_neighbours=settings.max_neighbours,
+                           context=context).estimate
         violated = (~active) & (est < bt - 1e-6)
         if not violated.any():
             break
         active |= violated
     dx, dy, dt = krige_data(active)
-    res = krige_grid(dx, dy, dt, model, grid, max_neighbours=settings.max_neighbours)
+    res = krige_grid(dx, dy, dt, model, grid, max_neighbours=settings.max_neighbours,
+                     context=context)
     if with_cv:
         table = cross_validation_table(fx, fy, ft, model, settings.max_neighbours, ids=fids,
                                        surface=name)
@@ -390,8 +396,10 @@ def scale_units_to_total(unit_thickness_m: dict[str, np.ndarray], total_m: np.nd
 
 
 def krige_column(columns: pd.DataFrame, unit_codes: list[str], aquitard_codes: list[str],
-                 grid: Grid, settings: KrigingSettings) -> dict[str, Surface]:
-    """Krige the total aquitard and every column unit from a borehole column table.
+                 grid: Grid, settings: KrigingSettings, *,
+                 context: KrigingContext = DEFAULT_CONTEXT) -> dict[str, Surface]:
+    """Krige the total aquitard and every column unit from a borehole column table
+    (``context``: see :func:`krige_thickness`).
 
     ``columns`` is :func:`aquitardmap.inputs.logs.column_table` output (excluded holes already
     removed; its index holds the borehole ids). Returns surfaces keyed ``"aquitard"`` and
@@ -406,11 +414,11 @@ def krige_column(columns: pd.DataFrame, unit_codes: list[str], aquitard_codes: l
     ids = columns.index.to_numpy().astype(str)
     out = {"aquitard": krige_thickness(
         "aquitard", x, y, columns["aquitard_thickness_m"].to_numpy(float),
-        columns["status_aquitard"].to_numpy(), grid, settings, ids=ids)}
+        columns["status_aquitard"].to_numpy(), grid, settings, ids=ids, context=context)}
     for code in unit_codes:
         out[code] = krige_thickness(
             code, x, y, columns[f"thickness_{code}_m"].to_numpy(float),
-            columns[f"status_{code}"].to_numpy(), grid, settings, ids=ids)
+            columns[f"status_{code}"].to_numpy(), grid, settings, ids=ids, context=context)
     scaled = scale_units_to_total({c: out[c].thickness_m for c in aquitard_codes},
                                   out["aquitard"].thickness_m)
     for c, arr in scaled.items():

@@ -49,15 +49,13 @@ more than :data:`PATCH_FRACTION` of the cells, a full entry is written instead.
 
 from __future__ import annotations
 
-import contextlib
-import contextvars
 import hashlib
 import json
 import math
 import os
 import shutil
 import tempfile
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -83,10 +81,6 @@ _META = "meta.json"
 
 #: ``krige(x, y, values, model, xt, yt, max_neighbours=k) -> (estimate, variance)``
 KrigeFn = Callable[..., tuple[np.ndarray, np.ndarray]]
-
-_CURRENT: contextvars.ContextVar[TileCache | None] = contextvars.ContextVar(
-    "aquitardmap_tile_cache", default=None)
-
 
 @dataclass
 class TileStats:
@@ -494,21 +488,5 @@ class TileCache:
         return est, var, np.nonzero(todo)
 
 
-def current_tile_cache() -> TileCache | None:
-    """The cache opened by :func:`tile_cache` in this context, if any."""
-    return _CURRENT.get()
-
-
-@contextlib.contextmanager
-def tile_cache(folder: str | Path, *, tile_cells: int = TILE_CELLS) -> Iterator[TileCache]:
-    """Use a cache in ``folder`` for every grid kriging inside the ``with`` block."""
-    cache = TileCache(Path(folder), tile_cells)
-    token = _CURRENT.set(cache)
-    try:
-        yield cache
-    finally:
-        _CURRENT.reset(token)
-
-
-__all__ = ["CACHE_FORMAT", "TILE_CELLS", "TileCache", "TileStats", "current_tile_cache",
-           "frame_matrix", "reached_cells", "tile_cache"]
+__all__ = ["CACHE_FORMAT", "TILE_CELLS", "TileCache", "TileStats",
+           "frame_matrix", "reached_cells"]

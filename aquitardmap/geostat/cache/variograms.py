@@ -43,17 +43,13 @@ from the surface.
 
 from __future__ import annotations
 
-import contextlib
-import contextvars
 import json
 import math
-import os
-import tempfile
-from collections.abc import Iterator
 from dataclasses import dataclass, field, fields
 from datetime import UTC, datetime
 from pathlib import Path
 
+from aquitardmap.files import remove_leftovers, write_text_atomically
 from aquitardmap.geostat.variogram import VariogramModel
 
 #: File of the kept models, beside the tile cache folder.
@@ -66,10 +62,6 @@ DEFAULT_WITHIN = 0.1
 DEFAULT_ANGLE_DEG = 10.0
 #: Variogram sources (see :class:`aquitardmap.geostat.surfaces.Surface`) that a run fits itself.
 FITTED_SOURCES = ("fitted", "reused")
-
-_CURRENT: contextvars.ContextVar[VariogramBook | None] = contextvars.ContextVar(
-    "aquitardmap_variogram_book", default=None)
-
 
 def _relative(new: float, old: float, scale: float) -> float:
     """|new − old| / scale (0 when both are equal, infinite when the scale is 0)."""
@@ -272,17 +264,8 @@ class VariogramBook:
                             for name, d in sorted(self.decisions.items())
                             if d.decision in ("reused", "refit")}}
         self.path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", dir=self.path.parent)
-        try:
-            with os.fdopen(fd, "w", encoding="utf-8") as f:
-                json.dump(doc, f, indent=2)
-                f.write("\n")
-            os.replace(tmp, self.path)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
-        for left in self.path.parent.glob(f".{self.path.name}.*"):
-            left.unlink(missing_ok=True)  # temporary files of killed runs
+        write_text_atomically(self.path, json.dumps(doc, indent=2) + "\n")
+        remove_leftovers(self.path)  # temporary files of killed runs
         return self.path
 
     def summary(self) -> dict[str, object]:
@@ -298,39 +281,25 @@ def _families(m: VariogramModel) -> str:
     return m.model + (f" + {m.model2}" if m.model2 else "")
 
 
-def current_variogram_book() -> VariogramBook | None:
-    """The book opened by :func:`variogram_book` in this context, if any."""
-    return _CURRENT.get()
-
-
-def settle_variogram(name: str, model: VariogramModel, source: str
-                     ) -> tuple[VariogramModel, str]:
-    """:meth:`VariogramBook.settle` with the book of this context; (model, source)
-    unchanged when none is open (every run outside a project cache fits afresh)."""
-    book = _CURRENT.get()
+def settle_variogram(name: str, model: VariogramModel, source: str,
+                     book: VariogramBook | None) -> tuple[VariogramModel, str]:
+    """:meth:`VariogramBook.settle` with ``book``; (model, source) unchanged without one
+    (a call outside a run with a project cache uses its fresh fit)."""
     if book is None:
         return model, source
     return book.settle(name, model, source)
 
 
-@contextlib.contextmanager
-def variogram_book(path: str | Path | None, *, within: float = DEFAULT_WITHIN,
-                   angle_deg: float = DEFAULT_ANGLE_DEG, refit: bool = False
-                   ) -> Iterator[VariogramBook]:
-    """Reuse the models kept in ``path`` for the surfaces kriged inside the ``with`` block
-    and record each surface's decision (nothing is written: call
-    :meth:`VariogramBook.save` after a successful run). With ``path=None`` nothing is
-    kept or reused; the decisions are still recorded."""
+def open_variogram_book(path: str | Path | None, *, within: float = DEFAULT_WITHIN,
+                        angle_deg: float = DEFAULT_ANGLE_DEG, refit: bool = False
+                        ) -> VariogramBook:
+    """The book that reuses the models kept in ``path`` and records each surface's decision
+    (nothing is written: call :meth:`VariogramBook.save` after a successful run). With
+    ``path=None`` nothing is kept or reused; the decisions are still recorded."""
     kept = read_kept(path) if path is not None else {}
-    book = VariogramBook(Path(path) if path is not None else None, within, angle_deg, refit,
+    return VariogramBook(Path(path) if path is not None else None, within, angle_deg, refit,
                          kept)
-    token = _CURRENT.set(book)
-    try:
-        yield book
-    finally:
-        _CURRENT.reset(token)
 
 
-__all__ = ["KEPT_FILE", "ReuseDecision", "VariogramBook", "current_variogram_book",
-           "largest_relative", "model_difference", "read_kept", "settle_variogram",
-           "variogram_book"]
+__all__ = ["KEPT_FILE", "ReuseDecision", "VariogramBook", "largest_relative",
+           "model_difference", "open_variogram_book", "read_kept", "settle_variogram"]
