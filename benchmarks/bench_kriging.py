@@ -4,7 +4,7 @@
     python benchmarks/bench_kriging.py --quick    # 4,000 holes; 250k cells (~1 min)
 
 Data: a synthetic region from
-:func:`aquitardmap.evaluation.synthetic.make_synthetic_region` (invented,
+:func:`aquitardmap.evaluation.synthetic.region.make_synthetic_region` (invented,
 water-well-like clustering of holes), read through the pipeline's input stage; the values are
 the total aquitard thickness of the holes that reached the aquifer. Model: spherical with a
 nugget, fitted to those data the way the pipeline fits it (nugget kept at least 10 % of the
@@ -49,7 +49,7 @@ K = 16
 def make_data(folder: Path, n_holes: int, seed: int) -> Path:
     """Generate the region, read its holes, fit the model; save everything to an .npz."""
     sys.path.insert(0, str(ROOT))
-    from aquitardmap.evaluation.synthetic import make_synthetic_region
+    from aquitardmap.evaluation.synthetic.region import make_synthetic_region
     from aquitardmap.geostat.kriging import merge_coincident
     from aquitardmap.geostat.variogram import (
         VariogramModel,

@@ -57,7 +57,7 @@ def main() -> None:
     args = ap.parse_args()
     sys.path.insert(0, str(ROOT))
     import aquitardmap.geostat.indicator as ind
-    from aquitardmap.evaluation.synthetic import make_synthetic_region
+    from aquitardmap.evaluation.synthetic.region import make_synthetic_region
     from aquitardmap.pipeline import aquitard_probabilities, build_surfaces, load_inputs
 
     n_holes = args.holes or (4000 if args.quick else 20000)

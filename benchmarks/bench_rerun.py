@@ -31,7 +31,7 @@ from pathlib import Path
 
 import aquitardmap
 from aquitardmap.config.project import read_project
-from aquitardmap.evaluation.synthetic import hold_back_holes, make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import hold_back_holes, make_synthetic_region
 from aquitardmap.inputs.store import add_files, create_store
 
 STAGES = ("inputs", "surfaces", "hydraulics", "zones", "outputs")

@@ -45,7 +45,6 @@ from pathlib import Path
 
 import numpy as np
 
-from aquitardmap.evaluation import synthetic
 from aquitardmap.evaluation.skill import (
     INDICATOR_OPERATING_P,
     RELIABILITY_EDGES,
@@ -54,6 +53,8 @@ from aquitardmap.evaluation.skill import (
     pooled_skill,
     screening_skill,
 )
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
+from aquitardmap.evaluation.synthetic.truth import CHARACTERS
 
 SMALL = {"n_holes": 250, "extent_m": (7000.0, 5000.0), "hazards": False}
 RIDGE_AND_CHANNEL = "ridge_and_channel"
@@ -91,19 +92,19 @@ def _parse_overrides(items: list[str]) -> dict[str, dict[str, object]]:
 
 def _synthetic_kind(character: str) -> RegionKind:
     def make(root: Path, seed: int) -> None:
-        synthetic.make_synthetic_region(root, seed=seed, character=character,
-                                        write_project_toml=True, **SMALL)
+        make_synthetic_region(root, seed=seed, character=character,
+                              write_project_toml=True, **SMALL)
     return RegionKind(character, make)
 
 
 def _ridge_kind(n_holes: int) -> RegionKind:
-    even = "hole_layout" in inspect.signature(synthetic.make_synthetic_region).parameters
+    even = "hole_layout" in inspect.signature(make_synthetic_region).parameters
 
     def make(root: Path, seed: int) -> None:
         extra = {"hole_layout": "even"} if even else {}
-        synthetic.make_synthetic_region(root, seed=seed, character=RIDGE_AND_CHANNEL,
-                                        n_holes=n_holes, extent_m=RIDGE_EXTENT_M,
-                                        hazards=False, write_project_toml=True, **extra)
+        make_synthetic_region(root, seed=seed, character=RIDGE_AND_CHANNEL,
+                              n_holes=n_holes, extent_m=RIDGE_EXTENT_M,
+                              hazards=False, write_project_toml=True, **extra)
     return RegionKind(f"{RIDGE_AND_CHANNEL}/{n_holes}", make)
 
 
@@ -135,15 +136,15 @@ def region_kinds(names: list[str] | None, ridge_holes: list[int]) -> list[Region
     independent = _independent_module()
     ind_chars = tuple(getattr(independent, "CHARACTERS", INDEPENDENT_CHARACTERS)
                       ) if independent is not None else ()
-    own = [c for c in synthetic.CHARACTERS if c != RIDGE_AND_CHANNEL]
+    own = [c for c in CHARACTERS if c != RIDGE_AND_CHANNEL]
     if names is None:
-        names = own + ([RIDGE_AND_CHANNEL] if RIDGE_AND_CHANNEL in synthetic.CHARACTERS
+        names = own + ([RIDGE_AND_CHANNEL] if RIDGE_AND_CHANNEL in CHARACTERS
                        else []) + [INDEPENDENT_PREFIX + c for c in ind_chars]
     kinds: list[RegionKind] = []
     for name in names:
         bare = name.removeprefix(INDEPENDENT_PREFIX)
         if name == RIDGE_AND_CHANNEL:
-            if RIDGE_AND_CHANNEL not in synthetic.CHARACTERS:
+            if RIDGE_AND_CHANNEL not in CHARACTERS:
                 print(f"skipped {name}: aquitardmap.evaluation.synthetic has no such character yet")
                 continue
             kinds.extend(_ridge_kind(n) for n in ridge_holes)

@@ -33,7 +33,8 @@ from pathlib import Path
 import numpy as np
 
 from aquitardmap.evaluation.skill import beats_baseline, zone_skill
-from aquitardmap.evaluation.synthetic import CHARACTERS, make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
+from aquitardmap.evaluation.synthetic.truth import CHARACTERS
 
 SMALL = {"n_holes": 250, "extent_m": (7000.0, 5000.0), "hazards": False}
 FIRST_SEED = 101

@@ -19,7 +19,8 @@ from pathlib import Path
 import pandas as pd
 
 from aquitardmap.evaluation.drilling_trial import compare_designs, trials_table
-from aquitardmap.evaluation.synthetic import CHARACTERS, make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
+from aquitardmap.evaluation.synthetic.truth import CHARACTERS
 
 
 def main() -> None:

@@ -20,7 +20,7 @@ HERE = Path(__file__).resolve().parent
 if str(HERE.parent) not in sys.path:  # run from a source tree without installing
     sys.path.insert(0, str(HERE.parent))
 
-from aquitardmap.evaluation.synthetic import DEMO_SEED, make_synthetic_region  # noqa: E402
+from aquitardmap.evaluation.synthetic.region import DEMO_SEED, make_synthetic_region  # noqa: E402
 
 DEMO_NAME = "Ostrel Valley (invented demo)"
 

@@ -14,7 +14,7 @@ from shapely.geometry import box
 
 from aquitardmap.config.project import KrigingSettings, QASettings, read_project
 from aquitardmap.errors import InputError
-from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.geostat.surfaces import krige_thickness
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid

@@ -22,7 +22,7 @@ import pytest
 from aquitardmap.evaluation.independent import make_independent_region
 from aquitardmap.evaluation.skill import pooled_skill, recall_at_precision, reliability, score_cells
 from aquitardmap.evaluation.skill import screening_skill as run_skill
-from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 
 SEEDS = (101, 102, 103)
 RIDGE = {"character": "ridge_and_channel", "extent_m": (12_000.0, 10_000.0),

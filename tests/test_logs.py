@@ -16,7 +16,7 @@ import pytest
 
 from aquitardmap.config.project import Project, read_project
 from aquitardmap.errors import InputError, Problem
-from aquitardmap.evaluation.synthetic import DEMO_STACK_TOML
+from aquitardmap.evaluation.demo_stack import DEMO_STACK_TOML
 from aquitardmap.inputs.logs import (
     FULL,
     LOWER_BOUND,

@@ -16,7 +16,7 @@ import pytest
 from rasterio.features import rasterize
 
 from aquitardmap.evaluation.skill import TRUTH_THICKNESS, pooled_skill, screening_skill
-from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.grid import read_raster
 from aquitardmap.outputs import names as outputs
 from aquitardmap.pipeline import run

@@ -3,7 +3,7 @@ item 6).
 
 The demo region is run, then 15 holes taken from *another* synthetic region (another seed and
 character of
-:func:`aquitardmap.evaluation.synthetic.make_synthetic_region`, same CRS and origin, so they
+:func:`aquitardmap.evaluation.synthetic.region.make_synthetic_region`, same CRS and origin, so they
 fall inside the demo's study area, with logs from another truth: a batch of mislocated well
 records) are added with ``aquitardmap add``, and the demo is run again. The checks are
 against the logs themselves and cell arithmetic, not against the method:
@@ -39,7 +39,7 @@ from scipy.spatial import cKDTree
 
 import aquitardmap
 from aquitardmap.compare import CHANGES_JSON, MODEL_RANGE_CHANGE, ZONE_CHANGES_LAYER
-from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.outputs import names as outputs
 
 from conftest import DEMO, demo_copy

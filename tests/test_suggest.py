@@ -21,7 +21,7 @@ from aquitardmap.evaluation.drilling_trial import (
     screening_class,
     trials_table,
 )
-from aquitardmap.evaluation.synthetic import make_synthetic_region
+from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.grid import write_raster
 from aquitardmap.outputs import names as outputs
 from aquitardmap.pipeline import load_inputs

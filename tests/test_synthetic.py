@@ -19,14 +19,9 @@ import pytest
 import rasterio
 
 from aquitardmap.config.project import read_project
-from aquitardmap.evaluation.synthetic import (
-    CHARACTERS,
-    CLAY_UNITS,
-    DEMO_SEED,
-    K_TRUE_M_S,
-    STACK,
-    make_synthetic_region,
-)
+from aquitardmap.evaluation.demo_stack import CLAY_UNITS, K_TRUE_M_S, STACK
+from aquitardmap.evaluation.synthetic.region import DEMO_SEED, make_synthetic_region
+from aquitardmap.evaluation.synthetic.truth import CHARACTERS
 from aquitardmap.grid import make_grid, read_raster, resample_to_grid
 from aquitardmap.outputs import names as outputs
 

@@ -54,7 +54,7 @@ from pyproj import CRS
 from scipy.interpolate import RegularGridInterpolator
 from shapely.geometry import LineString, Polygon
 
-from aquitardmap.evaluation.synthetic import DEMO_STACK_TOML, SETTINGS_TOML
+from aquitardmap.evaluation.demo_stack import DEMO_STACK_TOML, SETTINGS_TOML
 from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
 from aquitardmap.outputs import names as outputs
 

@@ -3,7 +3,7 @@
 The question a reviewer asks of the probability zones: do they find more of the windows and
 the thin clay than the plain alternative, without flagging more clay that is really there?
 This module answers it on a project that carries its truth (``truth/aquitard_thickness_m.tif``,
-written by :func:`aquitardmap.evaluation.synthetic.make_synthetic_region`).
+written by :func:`aquitardmap.evaluation.synthetic.region.make_synthetic_region`).
 
 Baseline (issue 3): the kriged total thickness (ordinary kriging) thresholded at the window
 and thin thicknesses. Tool: the likely tier of the window and thin zones the run draws
