@@ -12,7 +12,7 @@ import pytest
 from iapws import IAPWS95
 from scipy.stats import gmean
 
-from aquitardmap.config.project import HydraulicSettings, Unit
+from aquitardmap.config.settings import HydraulicSettings, Unit
 from aquitardmap.hydraulics.conductivity import (
     SAMPLE_COLUMNS,
     STANDARD_GRAVITY_M_S2,

@@ -10,7 +10,7 @@ from pyproj import CRS
 from scipy.stats import norm
 from shapely.geometry import box
 
-from aquitardmap.config.project import KrigingSettings
+from aquitardmap.config.settings import KrigingSettings
 from aquitardmap.geostat.drift import choose_drift
 from aquitardmap.geostat.probability import thickness_probabilities
 from aquitardmap.geostat.surfaces import cross_validate

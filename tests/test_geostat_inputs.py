@@ -12,7 +12,8 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
-from aquitardmap.config.project import KrigingSettings, QASettings, read_project
+from aquitardmap.config.project import read_project
+from aquitardmap.config.settings import KrigingSettings, QASettings
 from aquitardmap.errors import InputError
 from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.geostat.surfaces import krige_thickness

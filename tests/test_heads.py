@@ -7,7 +7,7 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
-from aquitardmap.config.project import KrigingSettings
+from aquitardmap.config.settings import KrigingSettings
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import make_grid, write_raster
 from aquitardmap.hydraulics.heads import krige_head_points, read_head_surface

@@ -6,7 +6,7 @@ from pyproj import CRS
 from scipy.stats import norm
 from shapely.geometry import box
 
-from aquitardmap.config.project import ScreeningThresholds
+from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.grid import make_grid
 from aquitardmap.screening.zones import probability_below, zone_areas_m2, zones_from_grids
 

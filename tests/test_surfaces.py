@@ -5,7 +5,7 @@ import pytest
 from pyproj import CRS
 from shapely.geometry import box
 
-from aquitardmap.config.project import KrigingSettings
+from aquitardmap.config.settings import KrigingSettings
 from aquitardmap.geostat.surfaces import krige_thickness, scale_units_to_total
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid

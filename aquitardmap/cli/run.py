@@ -13,7 +13,8 @@ from rich.progress import BarColumn, Progress, SpinnerColumn, TextColumn, TimeEl
 from aquitardmap.cli._common import console, guarded
 from aquitardmap.cli.compare import compare_and_report
 from aquitardmap.compare import check_run, default_changes_dir
-from aquitardmap.config.project import ComputeSettings, read_project
+from aquitardmap.config.project import read_project
+from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets
 from aquitardmap.pipeline import run

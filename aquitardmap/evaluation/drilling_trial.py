@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from aquitardmap.config.project import ScreeningThresholds
+from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.drilling.suggest import suggest_holes, total_thickness_surface
 from aquitardmap.geostat.surfaces import Surface, krige_thickness
 from aquitardmap.grid import Grid, read_raster

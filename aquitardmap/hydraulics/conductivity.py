@@ -27,7 +27,7 @@ import numpy as np
 import numpy.typing as npt
 import pandas as pd
 
-from aquitardmap.config.project import HydraulicSettings, Unit
+from aquitardmap.config.settings import HydraulicSettings, Unit
 from aquitardmap.errors import Problem
 from aquitardmap.units import M_PER_MM, M_S_PER_CM_S
 

@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from aquitardmap.config.project import KrigingSettings
+from aquitardmap.config.settings import KrigingSettings
 from aquitardmap.errors import Problem, ProblemList
 from aquitardmap.geostat.kriging import krige_grid, merge_coincident
 from aquitardmap.geostat.surfaces import MIN_HOLES_FOR_VARIOGRAM

@@ -45,7 +45,8 @@ from pyproj import CRS, Transformer
 from pyproj.exceptions import ProjError
 
 from aquitardmap.config.materials import match_material
-from aquitardmap.config.project import DEFAULT_FILES, Project
+from aquitardmap.config.project import Project
+from aquitardmap.config.settings import DEFAULT_FILES
 from aquitardmap.errors import Problem, ProblemList
 
 #: Allowance (m) for ``to_m`` and sample depths beyond ``total_depth_m``: logs and collars

@@ -49,7 +49,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from aquitardmap.config.project import DEFAULT_FILES, Project
+from aquitardmap.config.project import Project
+from aquitardmap.config.settings import DEFAULT_FILES
 from aquitardmap.errors import InputError, Problem, ProblemList
 from aquitardmap.files import file_sha256
 from aquitardmap.inputs.logfiles import LogTables, SourceFile, read_log_files

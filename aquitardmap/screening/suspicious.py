@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from aquitardmap.config.project import QASettings
+from aquitardmap.config.settings import QASettings
 from aquitardmap.grid import Grid
 from aquitardmap.inputs.logs import FLAG_ORDER
 

@@ -54,7 +54,7 @@ from scipy.stats import norm
 from shapely.geometry import shape
 from shapely.ops import unary_union
 
-from aquitardmap.config.project import ScreeningThresholds
+from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.grid import Grid
 
 ZONE_KINDS = ("window", "thin", "fast", "pierced")
