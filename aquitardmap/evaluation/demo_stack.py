@@ -15,6 +15,7 @@ __all__ = [
     "K_TRUE_M_S",
     "SETTINGS_TOML",
     "STACK",
+    "project_toml_text",
 ]
 
 #: The stack of every synthetic region, top to bottom.
@@ -92,3 +93,26 @@ fast_travel_time_yr = 50.0
 dem_misfit_m = 3.0
 exclude_boreholes = []
 """
+
+_PROJECT_TABLES = """\
+[project]
+name = "{name}"
+crs = "{crs}"
+
+[grid]
+cell_size_m = {cell_size_m:g}
+buffer_m = 250
+
+"""
+
+
+def project_toml_text(name: str, *, comment: str, crs: str, cell_size_m: float) -> str:
+    """Text of a generated region's ``project.toml``.
+
+    ``comment`` (``#`` lines, each ending in a newline) heads it; then a blank line, the
+    ``[project]`` table (``name``, ``crs``), the ``[grid]`` table (``cell_size_m`` in metres,
+    a 250 m buffer), :data:`DEMO_STACK_TOML` and :data:`SETTINGS_TOML`.
+    """
+    return (comment + "\n"
+            + _PROJECT_TABLES.format(name=name, crs=crs, cell_size_m=cell_size_m)
+            + DEMO_STACK_TOML + SETTINGS_TOML)

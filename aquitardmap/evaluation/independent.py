@@ -54,7 +54,7 @@ from pyproj import CRS
 from scipy.interpolate import RegularGridInterpolator
 from shapely.geometry import LineString, Polygon
 
-from aquitardmap.evaluation.demo_stack import DEMO_STACK_TOML, SETTINGS_TOML
+from aquitardmap.evaluation.demo_stack import K_TRUE_M_S, project_toml_text
 from aquitardmap.grid import Grid, make_grid, snapped_bounds, write_raster
 from aquitardmap.outputs import names as outputs
 
@@ -75,23 +75,11 @@ _LAM_RANGE = (0.05, 1.0)  # range of the feature-extent scale the calibration se
 XY_SD_M = 20.0
 CONTACT_SD_M = 0.25
 GROUND_SD_M = 0.5
-#: Lab K of the clay samples scatters log-normally around these (the demo stack's
-#: k_default_m_s values), sd of ln K 0.4.
-_K_CENTRE_M_S = {"UMC": 5e-10, "LMC": 2e-10, "LAM": 1e-9}
 
-_TOML_HEAD = """\
+_TOML_COMMENT = """\
 # {name}: an INVENTED test region written by aquitardmap.evaluation.independent
 # (seed {seed}, character "{character}", layout "{layout}"). Every borehole and value is
 # synthetic; the truth is in truth/.
-
-[project]
-name = "{name}"
-crs = "{crs}"
-
-[grid]
-cell_size_m = {cell_size_m:g}
-buffer_m = 250
-
 """
 
 
@@ -458,7 +446,8 @@ def _noisy_log(rng: np.random.Generator, thick: dict[str, float], total_depth_m:
 def _clay_samples(rng: np.random.Generator, intervals: list[tuple[str, float, float]]
                   ) -> list[tuple[float, float, float, float, float]]:
     """Two samples in each clay interval: D10 and D60 (mm), porosity, lab K (m/s);
-    ranges common practice for marine and lake clays."""
+    ranges common practice for marine and lake clays; lab K log-normal around the demo
+    stack's K of the unit (sd of ln K 0.4)."""
     out = []
     for unit, top, bottom in intervals:
         if unit not in _CLAY or bottom - top < 0.6:
@@ -467,7 +456,7 @@ def _clay_samples(rng: np.random.Generator, intervals: list[tuple[str, float, fl
             d10 = math.exp(rng.uniform(math.log(0.0006), math.log(0.002)))
             d60 = math.exp(rng.uniform(math.log(0.006), math.log(0.03)))
             por = rng.uniform(0.45, 0.6)
-            k = _K_CENTRE_M_S[unit] * math.exp(0.4 * rng.standard_normal())
+            k = K_TRUE_M_S[unit] * math.exp(0.4 * rng.standard_normal())
             out.append((round(float(depth), 2), d10, d60, por, k))
     return out
 
@@ -638,9 +627,9 @@ def make_independent_region(out_dir: str | Path, *, seed: int, character: str,
            "thickness_UMC_m,thickness_LMC_m,thickness_LAM_m,aquitard_thickness_m,"
            "reaches_aquifer", truth_rows)
     name = f"Independent {character} region (seed {seed})"
+    comment = _TOML_COMMENT.format(name=name, seed=seed, character=character, layout=layout)
     (root / "project.toml").write_text(
-        _TOML_HEAD.format(name=name, seed=seed, character=character, layout=layout, crs=_CRS,
-                          cell_size_m=cell_size_m) + DEMO_STACK_TOML + SETTINGS_TOML,
+        project_toml_text(name, comment=comment, crs=_CRS, cell_size_m=cell_size_m),
         encoding="utf-8")
 
     inside = grid.mask

@@ -21,10 +21,9 @@ from shapely.geometry import Polygon
 from aquitardmap.evaluation.demo_stack import (
     CLAY_UNITS,
     COVER_UNIT,
-    DEMO_STACK_TOML,
     K_TRUE_M_S,
-    SETTINGS_TOML,
     STACK,
+    project_toml_text,
 )
 from aquitardmap.evaluation.synthetic.boreholes import (
     CORED,
@@ -51,33 +50,17 @@ __all__ = [
     "SyntheticRegion",
     "hold_back_holes",
     "make_synthetic_region",
-    "project_toml_text",
 ]
 
 #: Seed of the bundled demo region (``demo_region/``).
 DEMO_SEED = 20_515
 
-_PROJECT_TOML = """\
+#: The comment heading a generated ``project.toml`` (the rest: the demo stack and settings).
+_TOML_COMMENT = """\
 # {name} — an INVENTED, synthetic region written by aquitardmap.evaluation.synthetic (seed {seed},
 # character "{character}"). Every place, borehole and value here is synthetic; the truth it
 # was drawn from is in truth/.
-
-[project]
-name = "{name}"
-crs = "{crs}"
-
-[grid]
-cell_size_m = {cell_size_m:g}
-buffer_m = 250
-
-""" + DEMO_STACK_TOML + SETTINGS_TOML
-
-
-def project_toml_text(name: str, *, seed: int, character: str, crs: str = "EPSG:32632",
-                      cell_size_m: float = 50.0) -> str:
-    """Text of a ``project.toml`` with the demo stack (same units and settings as the demo)."""
-    return _PROJECT_TOML.format(name=name, seed=seed, character=character, crs=crs,
-                                cell_size_m=cell_size_m)
+"""
 
 
 @dataclass(frozen=True)
@@ -323,7 +306,8 @@ def make_synthetic_region(
     if write_project_toml:
         name = project_name or f"Synthetic {character} region (seed {seed})"
         path = root / "project.toml"
-        path.write_text(project_toml_text(name, seed=seed, character=character, crs=crs,
+        comment = _TOML_COMMENT.format(name=name, seed=seed, character=character)
+        path.write_text(project_toml_text(name, comment=comment, crs=crs,
                                           cell_size_m=cell_size_m), encoding="utf-8")
         files["project"] = path
 
