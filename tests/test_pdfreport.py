@@ -18,7 +18,7 @@ import pytest
 from mapdata import build_run_folder, indicator_probability, latent_probability, set_probability
 
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.presentation import (
+from aquitardmap.outputs.calibration import (
     CALIBRATION_HEADING,
     calibration_checks,
     fmt_bin_share,

@@ -485,10 +485,10 @@ def test_about_this_run_says_how_the_zones_were_drawn() -> None:
 
 
 def test_run_notes_name_the_method_the_run_used() -> None:
-    # One wording (presentation.probability_method_notes) for the report and the map; it
+    # One wording (wording.probability_method_notes) for the report and the map; it
     # follows the method the summary names.
-    from aquitardmap.outputs.presentation import probability_method_notes
     from aquitardmap.outputs.webmap.page import zone_method_html
+    from aquitardmap.outputs.wording import probability_method_notes
 
     zones = {"basis": "probability", "p_window_threshold": 0.5}
     indicator = {"zones": zones, "thresholds": {"window_thickness_m": 0.5,

@@ -22,7 +22,8 @@ from pyproj.exceptions import CRSError
 from aquitardmap.grid import read_raster
 from aquitardmap.hydraulics.column import avi_class
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.presentation import GridStyle, grid_styles, section
+from aquitardmap.outputs.formatting import section
+from aquitardmap.outputs.presentation import GridStyle, grid_styles
 
 
 def read_summary(run_dir: Path) -> dict[str, Any]:
@@ -106,5 +107,5 @@ def read_layer(path: Path, layer: str, fallback_crs: CRS | None,
     return gdf.to_crs(to_crs) if to_crs is not None else gdf
 
 
-__all__ = ["GridData", "project_crs", "read_grid", "read_layer", "read_summary", "section",
+__all__ = ["GridData", "project_crs", "read_grid", "read_layer", "read_summary",
            "styles_in", "tif_descriptions"]

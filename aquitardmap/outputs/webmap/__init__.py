@@ -36,13 +36,7 @@ import folium
 import numpy as np
 
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.presentation import (
-    HOLE_STYLES,
-    PROTECTION,
-    GridStyle,
-    unit_colours,
-    zone_labels,
-)
+from aquitardmap.outputs.presentation import HOLE_STYLES, PROTECTION, GridStyle, unit_colours
 from aquitardmap.outputs.runfolder import (
     GridData,
     project_crs,
@@ -92,6 +86,7 @@ from aquitardmap.outputs.webmap.page import (
     readout_config,
     static_text,
 )
+from aquitardmap.outputs.wording import zone_labels
 
 __all__ = ["ASSETS_ENV", "WebAssets", "WebAssetsNotFound", "find_web_assets", "write_map"]
 

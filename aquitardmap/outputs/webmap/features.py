@@ -17,23 +17,25 @@ from rasterio.features import shapes
 from shapely.geometry import shape
 from shapely.ops import unary_union
 
-from aquitardmap.outputs.presentation import (
-    HOLE_STYLES,
-    ZONE_COLOURS,
-    ZONE_OTHER_COLOUR,
+from aquitardmap.outputs.formatting import (
     finite_float,
     fmt_area,
     fmt_m,
     fmt_percent,
     fmt_years,
-    hole_category_of,
     truthy,
+)
+from aquitardmap.outputs.presentation import (
+    HOLE_STYLES,
+    ZONE_COLOURS,
+    ZONE_OTHER_COLOUR,
+    hole_category_of,
     zone_style,
-    zone_tier_label,
 )
 from aquitardmap.outputs.webmap.markup import esc
 from aquitardmap.outputs.webmap.overlays import LONLAT
 from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
+from aquitardmap.outputs.wording import zone_tier_label
 from aquitardmap.screening.zones import TIERED_KINDS, ZONE_TIERS
 
 

@@ -16,31 +16,33 @@ from branca.element import MacroElement
 from pyproj import CRS, Transformer
 
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.presentation import (
+from aquitardmap.outputs.calibration import (
     CALIBRATION_HEADING,
-    COUNT_WORDS,
-    EMPTY_BIN,
-    GROUPS,
-    PROTECTION,
-    UNCERTAINTY,
-    GridStyle,
     calibration_checks,
     calibration_reading,
+    fmt_brier,
+    reliability_table,
+)
+from aquitardmap.outputs.formatting import (
     finite_float,
     fmt_area,
-    fmt_bin_share,
-    fmt_brier,
     fmt_sig,
     fmt_threshold,
-    probability_method_notes,
     run_date,
+    section,
+)
+from aquitardmap.outputs.presentation import GROUPS, PROTECTION, UNCERTAINTY, GridStyle
+from aquitardmap.outputs.runfolder import GridData
+from aquitardmap.outputs.webmap.markup import RawHtml, esc, js_json
+from aquitardmap.outputs.webmap.overlays import LONLAT
+from aquitardmap.outputs.wording import (
+    COUNT_WORDS,
+    caution_text,
+    probability_method_notes,
     thresholds,
     zone_tiers_note,
     zones_and_thickness_note,
 )
-from aquitardmap.outputs.runfolder import GridData, section
-from aquitardmap.outputs.webmap.markup import RawHtml, esc, js_json
-from aquitardmap.outputs.webmap.overlays import LONLAT
 
 #: Groups listed openly in the panel; the others fold under "More grids".
 MAIN_GROUPS = (PROTECTION, UNCERTAINTY)
@@ -117,7 +119,7 @@ def header_html(summary: dict[str, Any], crs_text: str) -> str:
 def zone_method_html(summary: dict[str, Any]) -> str:
     """How the window and thin zones were drawn: from the kriged thickness, or from the
     probabilities with their thresholds and the method the run used
-    (:func:`aquitardmap.outputs.presentation.probability_method_notes`, with the external-drift
+    (:func:`aquitardmap.outputs.wording.probability_method_notes`, with the external-drift
     decision) ("" when the summary does not say)."""
     zones = section(summary, "zones")
     basis = zones.get("basis")
@@ -172,21 +174,12 @@ def calibration_html(summary: dict[str, Any]) -> str:
                  f"({'n/a' if c.n_event is None else c.n_event} showing it), {blocks}; "
                  f"Brier score {fmt_brier(c.brier)} (constant share "
                  f"{fmt_brier(c.brier_reference)}), skill {fmt_brier(c.skill_score)}</td></tr>")
-    labels: list[str] = []
-    for c in checks:
-        labels += [b.label for b in c.bins if b.label not in labels]
+    table = reliability_table(checks)
     head = "<tr><th>Chance given</th>" + "".join(
         f"<th>{esc(c.label)} n</th><th>mean P</th><th>observed</th>" for c in checks) + "</tr>"
-    rows = ""
-    for label in labels:
-        rows += f"<tr><td>{esc(label)}</td>"
-        for c in checks:
-            b = next((b for b in c.bins if b.label == label), None)
-            cells = ([EMPTY_BIN] * 3 if b is None else
-                     [str(b.n), fmt_bin_share(b.mean_p), fmt_bin_share(b.observed)])
-            rows += "".join(f"<td>{esc(x)}</td>" for x in cells)
-        rows += "</tr>"
-    reliability = (f'<table class="aqm-reliability">{head}{rows}</table>' if labels else "")
+    rows = "".join("<tr>" + "".join(f"<td>{esc(x)}</td>" for x in row) + "</tr>"
+                   for row in table)
+    reliability = (f'<table class="aqm-reliability">{head}{rows}</table>' if table else "")
     return (f"<b>{esc(CALIBRATION_HEADING)}</b><table>{body}</table>{reliability}"
             f"<p>{esc(calibration_reading(summary))}</p>")
 
@@ -233,10 +226,8 @@ def library_missing_html() -> str:
 
 def caution_html(summary: dict[str, Any]) -> str:
     """The caution bar (always visible, never covered by the map)."""
-    text = str(summary.get("caution") or "").strip() or outputs.CAUTION
-    if outputs.CAUTION not in text:
-        text = f"{text} {outputs.CAUTION}"
-    return f'<footer id="aqm-caution" role="note"><b>Caution.</b> {esc(text)}</footer>'
+    return (f'<footer id="aqm-caution" role="note"><b>Caution.</b> '
+            f"{esc(caution_text(summary))}</footer>")
 
 
 def panel_html(grids: list[tuple[GridStyle, str]], toggles: list[tuple[str, str, bool, str]],
