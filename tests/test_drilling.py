@@ -17,6 +17,7 @@ from aquitardmap.drilling.design import (
     probability_still_uncertain,
     solve_at,
 )
+from aquitardmap.geostat.kriging import prepare_locations
 from aquitardmap.geostat.variogram import VariogramModel
 
 
@@ -51,11 +52,11 @@ def test_kriging_variance_matches_pykrige(model):
     # Reference: pykrige's ordinary-kriging variance (global system, and its C backend with
     # the nearest 12 data).
     x, y, _, xt, yt = _layout()
-    nb = solve_at(model, x, y, xt, yt, max_neighbours=100)
+    nb = solve_at(prepare_locations(x, y, model), xt, yt, max_neighbours=100)
     _, var = _pykrige(x, y, np.zeros_like(x), model, xt, yt)
     assert np.allclose(nb.variance, var, rtol=1e-9, atol=1e-9)
     assert np.allclose(nb.weights.sum(axis=1), 1.0)
-    nb12 = solve_at(model, x, y, xt, yt, max_neighbours=12)
+    nb12 = solve_at(prepare_locations(x, y, model), xt, yt, max_neighbours=12)
     _, var12 = _pykrige(x, y, np.zeros_like(x), model, xt, yt, n_closest=12)
     assert np.allclose(nb12.variance, var12, rtol=1e-8, atol=1e-8)
 
@@ -67,7 +68,8 @@ def test_kriging_variance_matches_gstools():
     gm = gs.Spherical(dim=2, var=m.psill, len_scale=m.range_m, nugget=m.nugget)
     _, var = gs.krige.Ordinary(gm, [x, y], np.zeros_like(x), exact=False)(
         [xt, yt], mesh_type="unstructured", return_var=True)
-    assert np.allclose(solve_at(m, x, y, xt, yt, 100).variance, var, rtol=1e-8, atol=1e-8)
+    nb = solve_at(prepare_locations(x, y, m), xt, yt, 100)
+    assert np.allclose(nb.variance, var, rtol=1e-8, atol=1e-8)
 
 
 @pytest.mark.parametrize("model", [
@@ -80,7 +82,7 @@ def test_one_new_hole_updates_variance_and_estimate_exactly(model):
     # datum's weight is C_n(x,s) / sigma2_n(s). Reference: pykrige re-kriged with the hole.
     x, y, z, xt, yt = _layout(seed=2)
     s = (431.0, 612.0)
-    nb = solve_at(model, x, y, [s[0]], [s[1]], 100)
+    nb = solve_at(prepare_locations(x, y, model), [s[0]], [s[1]], 100)
     c = error_covariance(model, x, y, nb, 0, xt, yt)
     _, var0 = _pykrige(x, y, z, model, xt, yt)
     xs, ys = np.r_[x, s[0]], np.r_[y, s[1]]
@@ -177,7 +179,7 @@ def _gap_case():
     keep = ~(gap_a | gap_b)
     cx, cy = np.meshgrid(np.arange(50.0, 2000, 100), np.arange(50.0, 2000, 100))
     cx, cy = cx.ravel(), cy.ravel()
-    var = solve_at(m, x[keep], y[keep], cx, cy, 64).variance
+    var = solve_at(prepare_locations(x[keep], y[keep], m), cx, cy, 64).variance
     return m, x[keep], y[keep], cx, cy, np.full(cx.size, 5.5), np.sqrt(var)
 
 

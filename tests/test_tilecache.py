@@ -146,9 +146,9 @@ def test_pipeline_reuses_tiles_and_matches_a_run_without_cache(tmp_path):
 def _knn_sets(xy, grid, model, k):
     from scipy.spatial import cKDTree
 
-    from aquitardmap.geostat.cache.tiles import frame_matrix
+    from aquitardmap.geostat.variogram import anisotropy_matrix
 
-    a = frame_matrix(model)
+    a = anisotropy_matrix(model.anisotropy_ratio, model.anisotropy_angle_deg)
     xs, ys = grid.cell_centres()
     gx, gy = np.meshgrid(xs, ys)
     cells = np.column_stack([gx.ravel(), gy.ravel()])

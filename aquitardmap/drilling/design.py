@@ -44,6 +44,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 from scipy.special import ndtr, ndtri
 
+from aquitardmap.geostat.kriging import KrigingLocations, prepare_locations, weights_at
 from aquitardmap.geostat.variogram import VariogramModel
 
 #: A new hole is taken to influence cells within this many (major-axis) variogram ranges.
@@ -63,37 +64,13 @@ _MAX_PAIRS = 400_000
 # ------------------------------------------------------------------ covariance and kriging
 
 
-def _lag(model: VariogramModel, dx: np.ndarray, dy: np.ndarray) -> np.ndarray:
-    """Isotropic-equivalent lag (m) of separations (dx, dy): rotated by the anisotropy angle
-    and the minor axis stretched by the ratio, as pykrige does."""
-    if model.anisotropy_ratio == 1.0:
-        return np.hypot(dx, dy)
-    a = np.deg2rad(model.anisotropy_angle_deg)
-    c, s = np.cos(a), np.sin(a)
-    u = c * dx + s * dy
-    v = (-s * dx + c * dy) * model.anisotropy_ratio
-    return np.hypot(u, v)
-
-
-def _scaled_xy(model: VariogramModel, x: np.ndarray, y: np.ndarray
-               ) -> tuple[np.ndarray, np.ndarray]:
-    """Coordinates in which the anisotropic model is isotropic (pykrige's convention), so
-    that nearest neighbours are chosen as pykrige chooses them."""
-    if model.anisotropy_ratio == 1.0:
-        return x, y
-    a = np.deg2rad(model.anisotropy_angle_deg)
-    c, s = np.cos(a), np.sin(a)
-    return c * x + s * y, (-s * x + c * y) * model.anisotropy_ratio
-
-
 def covariance(model: VariogramModel, dx_m: np.ndarray, dy_m: np.ndarray) -> np.ndarray:
     """Covariance ``C(h) = sill − γ(h)`` of the variogram model at separations (m).
 
     ``C(0)`` is the sill (nugget included); at any non-zero lag the nugget has dropped out
     (second-order stationarity; Isaaks & Srivastava 1989, ch. 16).
     """
-    return model.sill - model.gamma(_lag(model, np.asarray(dx_m, float),
-                                         np.asarray(dy_m, float)))
+    return model.sill - model.gamma_xy(np.asarray(dx_m, float), np.asarray(dy_m, float))
 
 
 @dataclass(frozen=True)
@@ -117,39 +94,22 @@ class KrigingNeighbourhood:
     variance: np.ndarray
 
 
-def solve_at(model: VariogramModel, data_x_m: np.ndarray, data_y_m: np.ndarray,
-             x_m: np.ndarray, y_m: np.ndarray, max_neighbours: int) -> KrigingNeighbourhood:
+def solve_at(locations: KrigingLocations, x_m: np.ndarray, y_m: np.ndarray,
+             max_neighbours: int) -> KrigingNeighbourhood:
     """Solve the ordinary-kriging system at each site with its ``max_neighbours`` nearest
-    data (nearest in the anisotropy-scaled distance; Isaaks & Srivastava 1989, ch. 12).
-    Data must not share locations."""
-    dx, dy = np.asarray(data_x_m, float), np.asarray(data_y_m, float)
+    data (nearest in the anisotropy-scaled distance; Isaaks & Srivastava 1989, ch. 12), from
+    data ``locations`` prepared once (:func:`aquitardmap.geostat.kriging.prepare_locations`;
+    data must not share locations). The system is the kriging module's
+    (:func:`aquitardmap.geostat.kriging.weights_at`), in variogram form; its multiplier is
+    turned to the covariance convention here (``μ_C = −μ_γ``, as ``C = sill − γ`` and the
+    weights sum to 1)."""
     sx, sy = np.atleast_1d(np.asarray(x_m, float)), np.atleast_1d(np.asarray(y_m, float))
-    k = int(min(max_neighbours, dx.size))
+    k = int(min(max_neighbours, locations.n))
     if sx.size == 0:
         return KrigingNeighbourhood(sx, sy, np.empty((0, k), int), np.empty((0, k)),
                                     np.empty(0), np.empty(0))
-    _, idx = cKDTree(np.column_stack(_scaled_xy(model, dx, dy))).query(
-        np.column_stack(_scaled_xy(model, sx, sy)), k=k)
-    idx = np.asarray(idx).reshape(sx.size, k)
-    px, py = dx[idx], dy[idx]  # (m, k)
-    a = np.zeros((sx.size, k + 1, k + 1))
-    a[:, :k, :k] = covariance(model, px[:, :, None] - px[:, None, :],
-                              py[:, :, None] - py[:, None, :])
-    a[:, :k, k] = 1.0
-    a[:, k, :k] = 1.0
-    b = np.ones((sx.size, k + 1))
-    b[:, :k] = covariance(model, px - sx[:, None], py - sy[:, None])
-    sol = np.empty_like(b)
-    for start in range(0, sx.size, 2048):  # bounded memory for the batched solve
-        sl = slice(start, start + 2048)
-        try:
-            sol[sl] = np.linalg.solve(a[sl], b[sl][..., None])[..., 0]
-        except np.linalg.LinAlgError:  # a singular system: fall back to least squares
-            sol[sl] = np.stack([np.linalg.lstsq(ai, bi, rcond=None)[0]
-                                for ai, bi in zip(a[sl], b[sl], strict=True)])
-    lam, mu = sol[:, :k], sol[:, k]
-    var = model.sill - np.sum(lam * b[:, :k], axis=1) - mu
-    return KrigingNeighbourhood(sx, sy, idx, lam, mu, np.maximum(var, 0.0))
+    w = weights_at(locations, sx, sy, max_neighbours=k)
+    return KrigingNeighbourhood(sx, sy, w.index, w.weights, -w.lagrange, w.variance)
 
 
 def error_covariance(model: VariogramModel, data_x_m: np.ndarray, data_y_m: np.ndarray,
@@ -247,6 +207,7 @@ class _Design:
                  p_low: float, p_high: float, max_neighbours: int) -> None:
         self.model = model
         self.dx, self.dy = np.asarray(data_x_m, float), np.asarray(data_y_m, float)
+        self.locations = prepare_locations(self.dx, self.dy, model)
         self.max_neighbours = max_neighbours
         self.thresholds = thresholds_m
         self.p_low, self.p_high = p_low, p_high
@@ -371,8 +332,7 @@ class _Design:
     def add(self, x: float, y: float) -> tuple[float, float]:
         """Add a hole at (x, y); returns (expected reduction m², SD there before, m)."""
         before = self.expected_uncertain_m2()
-        nb = solve_at(self.model, self.dx, self.dy, np.array([x]), np.array([y]),
-                      self.max_neighbours)
+        nb = solve_at(self.locations, np.array([x]), np.array([y]), self.max_neighbours)
         u_here = self.u_at(np.array([x]), np.array([y]))[:, 0]
         var = float(nb.variance[0] - np.sum(u_here ** 2))
         sd_before = float(np.sqrt(max(var, 0.0)))
@@ -446,7 +406,7 @@ def plan_holes(model: VariogramModel, data_x_m: np.ndarray, data_y_m: np.ndarray
     cx, cy = np.asarray(cand_x_m, float), np.asarray(cand_y_m, float)
     coarse, block = _coarse_subset(cx, cy, MAX_COARSE_CANDIDATES)
     refine = coarse.size < cx.size  # then each pick is refined within a block around it
-    nb = solve_at(model, d.dx, d.dy, cx[coarse], cy[coarse], max_neighbours)
+    nb = solve_at(d.locations, cx[coarse], cy[coarse], max_neighbours)
     gains = d.gains(nb, keys=coarse)
     allowed = np.ones(cx.size, dtype=bool)
     chosen, red, after, sd_before = [], [], [], []
@@ -458,7 +418,7 @@ def plan_holes(model: VariogramModel, data_x_m: np.ndarray, data_y_m: np.ndarray
         if refine:
             near = np.flatnonzero(allowed & (np.abs(cx - cx[best]) <= block)
                                   & (np.abs(cy - cy[best]) <= block))
-            fine = d.gains(solve_at(model, d.dx, d.dy, cx[near], cy[near], max_neighbours))
+            fine = d.gains(solve_at(d.locations, cx[near], cy[near], max_neighbours))
             if fine.size and fine.max() > g.max():
                 best = int(near[int(np.argmax(fine))])
         r, sd0 = d.add(cx[best], cy[best])

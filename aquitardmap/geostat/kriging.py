@@ -196,11 +196,14 @@ class KrigingWeights:
         index: (n_targets, k) indices of each target's neighbours in the data arrays.
         weights: (n_targets, k) kriging weights (each row sums to 1).
         variance: (n_targets,) ordinary kriging variance (value units²).
+        lagrange: (n_targets,) multiplier ``μ`` of the unbiasedness condition in the
+            variogram form of the system, ``Σ_j λ_j γ(d_i, d_j) + μ = γ(d_i, x₀)``.
     """
 
     index: np.ndarray
     weights: np.ndarray
     variance: np.ndarray
+    lagrange: np.ndarray
 
     def apply(self, values: np.ndarray) -> np.ndarray:
         """Estimates at the targets for data ``values`` (n_data,) or (n_data, m) -> (n_t,)
@@ -360,6 +363,7 @@ def weights_at(locations: KrigingLocations, xt_m: np.ndarray, yt_m: np.ndarray, 
         ft = (ft - loc.drift_centre) / loc.drift_scale
     weights = np.empty((tx.size, k))
     variance = np.empty(tx.size)
+    lagrange = np.empty(tx.size)
     table = loc.gamma_table
     for start in range(0, tx.size, chunk):
         sl = slice(start, start + chunk)
@@ -379,8 +383,9 @@ def weights_at(locations: KrigingLocations, xt_m: np.ndarray, yt_m: np.ndarray, 
         else:
             sol, b = _solve_with_external_drift(a, b, f[ii], ft[sl])
         weights[sl] = sol[:, :k]
+        lagrange[sl] = sol[:, k]
         variance[sl] = np.einsum("ti,ti->t", sol, b)
-    return KrigingWeights(idx, weights, np.maximum(variance, 0.0))
+    return KrigingWeights(idx, weights, np.maximum(variance, 0.0), lagrange)
 
 
 #: Spread of the (scaled) drift within a neighbourhood below which it cannot be estimated.

@@ -46,7 +46,12 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from aquitardmap.geostat.variogram import VariogramModel
+from aquitardmap.geostat.variogram import (
+    STRUCTURE_CODES,
+    VariogramModel,
+    anisotropic_coordinates,
+    structure,
+)
 
 #: Distance (m, in the anisotropy frame) under which a target sits on a datum: γ0 = 0 there
 #: (the cut-off pykrige uses for its exact-value rule).
@@ -62,8 +67,6 @@ SYSTEM_MEMORY_BYTES = 64 * 2**20
 MAX_UPDATE_DEPTH = 256
 #: Recently built systems searched for one to derive a new system from.
 PARENT_PROBES = 8
-#: Structure codes understood by the compiled kernel.
-STRUCTURE_CODES = {"spherical": 0, "exponential": 1, "gaussian": 2}
 
 
 def numba_available() -> bool:
@@ -76,21 +79,12 @@ def numba_available() -> bool:
 
 def anisotropic_frame(x_m: np.ndarray, y_m: np.ndarray, centre_xy: tuple[float, float],
                       ratio: float, angle_deg: float) -> np.ndarray:
-    """Coordinates (n, 2) in the frame where the variogram is isotropic.
-
-    Points are rotated by ``-angle_deg`` about ``centre_xy`` and the minor axis is stretched
-    by ``ratio``; this is pykrige's ``_adjust_for_anisotropy`` for two dimensions, written
-    with the same arithmetic so that both give identical coordinates.
-    """
-    pts = np.column_stack([np.asarray(x_m, float).ravel(), np.asarray(y_m, float).ravel()])
-    centre = np.asarray(centre_xy, dtype=float)[None, :]
-    a = float(angle_deg) * np.pi / 180
-    pts -= centre
-    stretch = np.array([[1.0, 0.0], [0.0, float(ratio)]])
-    rot = np.array([[np.cos(-a), -np.sin(-a)], [np.sin(-a), np.cos(-a)]])
-    out = np.dot(stretch, np.dot(rot, pts.T)).T
-    out += centre
-    return out
+    """Coordinates (n, 2) in the frame where the variogram is isotropic
+    (:func:`aquitardmap.geostat.variogram.anisotropic_coordinates` about ``centre_xy``)."""
+    u, v = anisotropic_coordinates(np.asarray(x_m, float).ravel(),
+                                   np.asarray(y_m, float).ravel(), ratio, angle_deg,
+                                   centre_xy)
+    return np.column_stack([u, v])
 
 
 @dataclass(frozen=True, eq=False)
@@ -419,13 +413,14 @@ def _kernel():
     """The compiled per-target loop (numba imported and the loop compiled on first use;
     numba caches the machine code on disk)."""
     global _COMPILED, _gamma_nb, _pair_gamma_nb, _fresh_inverse_nb, _replace_point_nb
-    global _kth_smallest_nb
+    global _kth_smallest_nb, _structure_nb
     if _COMPILED is None:
         import numba
 
         def jit(f):
             return numba.njit(cache=True, nogil=True, error_model="numpy")(f)
 
+        _structure_nb = jit(structure)
         _gamma_nb = jit(_gamma_py)
         _kth_smallest_nb = jit(_kth_smallest)
         _pair_gamma_nb = jit(_pair_gamma)
@@ -436,23 +431,16 @@ def _kernel():
 
 
 def _gamma_py(h, nugget, kinds, psills, ranges):  # pragma: no cover - compiled
-    """Semivariance at h > 0 (same formulas as :meth:`VariogramModel.gamma`)."""
+    """Semivariance at h > 0 (:meth:`VariogramModel.gamma`, its structures compiled from
+    :func:`aquitardmap.geostat.variogram.structure`)."""
     g = nugget
     for s in range(kinds.shape[0]):
-        a = ranges[s]
-        if kinds[s] == 0:
-            r = h / a
-            if r > 1.0:
-                r = 1.0
-            g += psills[s] * (1.5 * r - 0.5 * r**3)
-        elif kinds[s] == 1:
-            g += psills[s] * (1.0 - np.exp(-3.0 * h / a))
-        else:
-            g += psills[s] * (1.0 - np.exp(-((h / (a * 4.0 / 7.0)) ** 2)))
+        g += psills[s] * _structure_nb(kinds[s], h, ranges[s])
     return g
 
 
 _gamma_nb = _pair_gamma_nb = _fresh_inverse_nb = _replace_point_nb = _kth_smallest_nb = None
+_structure_nb = None
 
 
 def _kth_smallest(a, n, kth):  # pragma: no cover - compiled

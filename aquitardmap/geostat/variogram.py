@@ -101,30 +101,60 @@ class VariogramModel:
         return asdict(self)
 
 
+def _axes(angle_deg: float) -> tuple[float, float]:
+    a = np.deg2rad(float(angle_deg))
+    return float(np.cos(a)), float(np.sin(a))
+
+
+def anisotropy_matrix(ratio: float, angle_deg: float) -> np.ndarray:
+    """The linear map (2, 2) of :func:`anisotropic_coordinates` (about the origin), for
+    geometry on separations: ``[[c, s], [−s·ratio, c·ratio]]`` with ``c, s`` the cosine and
+    sine of ``angle_deg``."""
+    c, s = _axes(angle_deg)
+    r = float(ratio)
+    return np.array([[c, s], [-s * r, c * r]])
+
+
 def anisotropic_coordinates(x_m: np.ndarray, y_m: np.ndarray, ratio: float,
-                            angle_deg: float) -> tuple[np.ndarray, np.ndarray]:
-    """Coordinates in which a geometric anisotropy becomes isotropic: rotate by
-    ``-angle_deg`` (so the major axis lies along x) and multiply the minor coordinate by
-    ``ratio`` (pykrige's ``adjust_for_anisotropy``). Distances between transformed points are
-    the major-axis equivalent distances."""
-    a = np.deg2rad(angle_deg)
-    c, s = np.cos(a), np.sin(a)
-    x = np.asarray(x_m, dtype=float)
-    y = np.asarray(y_m, dtype=float)
-    return c * x + s * y, (-s * x + c * y) * ratio
+                            angle_deg: float, centre_xy: tuple[float, float] = (0.0, 0.0)
+                            ) -> tuple[np.ndarray, np.ndarray]:
+    """Coordinates in which a geometric anisotropy becomes isotropic: rotate about
+    ``centre_xy`` by ``-angle_deg`` (so the major axis lies along x), then multiply the minor
+    coordinate by ``ratio`` (pykrige's ``adjust_for_anisotropy``, in its order of
+    operations). Distances between transformed points are the major-axis equivalent
+    distances. The one anisotropy transform of the package."""
+    c, s = _axes(angle_deg)
+    cx, cy = float(centre_xy[0]), float(centre_xy[1])
+    x = np.asarray(x_m, dtype=float) - cx
+    y = np.asarray(y_m, dtype=float) - cy
+    return c * x + s * y + cx, (-s * x + c * y) * float(ratio) + cy
+
+
+#: Code of each structure family (its position in :data:`MODELS`), as the compiled kriging
+#: kernel takes it.
+STRUCTURE_CODES = {name: i for i, name in enumerate(MODELS)}
+
+
+def structure(code: int, h: np.ndarray | float, a: float) -> np.ndarray | float:
+    """Unit-sill structure function of family ``code`` (:data:`STRUCTURE_CODES`) at
+    distances ``h`` (array or number) for practical range ``a`` > 0: spherical
+    ``1.5 r − 0.5 r³`` (r = min(h/a, 1)), exponential ``1 − exp(−3h/a)``, gaussian
+    ``1 − exp(−(h / (4a/7))²)`` (practical ranges as in pykrige, whose Gaussian range
+    parameter is 4/7 of the practical range). The one set of formulas of the package: the
+    compiled kernel of :mod:`aquitardmap.geostat.localkrige` compiles this function."""
+    if code == 0:
+        r = np.minimum(h / a, 1.0)
+        return 1.5 * r - 0.5 * r**3
+    if code == 1:
+        return 1.0 - np.exp(-3.0 * h / a)
+    return 1.0 - np.exp(-((h / (a * 4.0 / 7.0)) ** 2))
 
 
 def _structure(model: str, h: np.ndarray, range_m: float) -> np.ndarray:
-    """Unit-sill structure function of ``model`` at distances ``h`` for practical range a."""
-    a = max(range_m, 1e-12)
-    if model == "spherical":
-        r = np.minimum(h / a, 1.0)
-        return 1.5 * r - 0.5 * r**3
-    if model == "exponential":
-        return 1.0 - np.exp(-3.0 * h / a)
-    if model == "gaussian":
-        return 1.0 - np.exp(-((h / (a * 4.0 / 7.0)) ** 2))
-    raise ValueError(f"unknown variogram model {model!r}")
+    """:func:`structure` of family ``model`` by name."""
+    if model not in STRUCTURE_CODES:
+        raise ValueError(f"unknown variogram model {model!r}")
+    return structure(STRUCTURE_CODES[model], h, max(range_m, 1e-12))
 
 
 def _mix64(v: np.ndarray) -> np.ndarray:

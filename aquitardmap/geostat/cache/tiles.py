@@ -52,9 +52,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
 import shutil
-import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -62,7 +60,8 @@ from pathlib import Path
 import numpy as np
 from scipy.spatial import cKDTree
 
-from aquitardmap.geostat.variogram import VariogramModel
+from aquitardmap.files import replace_atomically
+from aquitardmap.geostat.variogram import VariogramModel, anisotropy_matrix
 from aquitardmap.grid import Grid
 
 #: Version of the entry format (change it when the kriging itself changes).
@@ -108,16 +107,6 @@ def _differ(new: np.ndarray, old: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     in_a, in_b = set(a), set(b)
     return (np.fromiter((r not in in_b for r in a), dtype=bool, count=len(a)),
             np.fromiter((r not in in_a for r in b), dtype=bool, count=len(b)))
-
-
-def frame_matrix(model: VariogramModel) -> np.ndarray:
-    """The linear map (2, 2) into the frame where the model is isotropic: rotation by minus
-    the major-axis angle, then the minor axis stretched by the ratio (the map of
-    :func:`aquitardmap.geostat.variogram.anisotropic_coordinates`)."""
-    a = math.radians(float(model.anisotropy_angle_deg))
-    c, s = math.cos(a), math.sin(a)
-    r = float(model.anisotropy_ratio)
-    return np.array([[c, s], [-s * r, c * r]])
 
 
 @dataclass(frozen=True)
@@ -197,7 +186,7 @@ def reached_cells(lattice: _Lattice, k: int, model: VariogramModel, data_xy: np.
     ni, nj = i1 - i0 + 1, j1 - j0 + 1
     t = lattice.grid.transform
     ref = np.array([t.c, t.f])
-    a = frame_matrix(model)
+    a = anisotropy_matrix(model.anisotropy_ratio, model.anisotropy_angle_deg)
     half = lattice.side * lattice.cell / 2.0
     h = max(float(np.hypot(*(a @ [half, half]))), float(np.hypot(*(a @ [half, -half]))))
     tree = cKDTree((np.asarray(data_xy, float) - ref) @ a.T)
@@ -354,17 +343,13 @@ class TileCache:
         target = self.folder / name
         if target.is_dir() and self._chain(name) is not None:
             return  # the same data on the same grid: the same numbers are there already
-        tmp = Path(tempfile.mkdtemp(prefix=".entry-", dir=self.folder))
-        try:
+        def write(tmp: Path) -> None:
+            tmp.mkdir()
             for key, arr in arrays.items():
                 np.save(tmp / f"{key}.npy", np.ascontiguousarray(arr))
             (tmp / _META).write_text(json.dumps({"format": CACHE_FORMAT, **meta}))
-            if target.exists():
-                shutil.rmtree(target, ignore_errors=True)
-            os.replace(tmp, target)
-        except BaseException:
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise
+
+        replace_atomically(target, write)
 
     def prune(self) -> int:
         """Delete the entries this cache neither wrote since it was opened nor builds on
@@ -488,5 +473,4 @@ class TileCache:
         return est, var, np.nonzero(todo)
 
 
-__all__ = ["CACHE_FORMAT", "TILE_CELLS", "TileCache", "TileStats",
-           "frame_matrix", "reached_cells"]
+__all__ = ["CACHE_FORMAT", "TILE_CELLS", "TileCache", "TileStats", "reached_cells"]
