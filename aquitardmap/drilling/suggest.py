@@ -12,8 +12,6 @@ run's ``map.html``, the map is redrawn so it shows the suggestions.
 from __future__ import annotations
 
 import math
-import os
-import uuid
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -29,6 +27,7 @@ from aquitardmap.config.settings import DrillingSettings
 from aquitardmap.drilling.candidates import CandidateSites, grid_sites, read_candidates
 from aquitardmap.drilling.design import DrillingPlan, plan_holes
 from aquitardmap.errors import ProblemList
+from aquitardmap.files import replace_atomically
 from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.surfaces import Surface, krige_thickness
 from aquitardmap.grid import resample_to_grid
@@ -220,16 +219,6 @@ def suggest_holes(inputs: Inputs, surface: Surface, n_holes: int | None = None, 
     return Suggestions(holes, plan, unc_now, thresholds, st, len(sites), priority is not None)
 
 
-def _replace_atomically(target: Path, write) -> None:
-    tmp = target.parent / f".{target.stem}.{os.getpid()}.{uuid.uuid4().hex}.tmp{target.suffix}"
-    try:
-        write(tmp)
-        os.replace(tmp, target)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-
-
 def write_suggestions(folder: str | Path, suggestions: Suggestions) -> list[Path]:
     """Write ``suggested_holes.gpkg`` (layer ``suggested_holes``) and
     ``suggested_holes.csv`` into ``folder`` (created if needed); each file is written to a
@@ -239,10 +228,10 @@ def write_suggestions(folder: str | Path, suggestions: Suggestions) -> list[Path
     gpkg = folder / outputs.SUGGESTED_HOLES
     csv = folder / outputs.SUGGESTED_HOLES_CSV
     holes = suggestions.holes
-    _replace_atomically(gpkg, lambda p: holes.to_file(
+    replace_atomically(gpkg, lambda p: holes.to_file(
         p, layer=outputs.SUGGESTED_HOLES_LAYER, driver="GPKG",
         layer_metadata={"DESCRIPTION": outputs.CAUTION}))
-    _replace_atomically(csv, lambda p: pd.DataFrame(holes.drop(columns="geometry")).to_csv(
+    replace_atomically(csv, lambda p: pd.DataFrame(holes.drop(columns="geometry")).to_csv(
         p, index=False, lineterminator="\n", encoding="utf-8"))
     return [gpkg, csv]
 

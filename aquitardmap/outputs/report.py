@@ -24,10 +24,9 @@ The pages are drawn by the modules of :mod:`aquitardmap.outputs.reportpages`.
 
 from __future__ import annotations
 
-import os
-import uuid
 from pathlib import Path
 
+from aquitardmap.files import replace_atomically
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.reportpages.frame import Pages
 from aquitardmap.outputs.reportpages.maps import map_pages
@@ -58,15 +57,7 @@ def write_report(run_dir: str | Path) -> Path:
     calibration_page(pages)
     zone_pages(pages, run_dir)
     parameter_pages(pages)
-    target = run_dir / outputs.REPORT
-    tmp = run_dir / f".{outputs.REPORT}.{os.getpid()}.{uuid.uuid4().hex}.tmp"
-    try:
-        pages.save(tmp)
-        os.replace(tmp, target)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    return target
+    return replace_atomically(run_dir / outputs.REPORT, pages.save)
 
 
 __all__ = ["write_report"]

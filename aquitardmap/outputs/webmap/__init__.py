@@ -28,13 +28,12 @@ outline), ``striplog`` (the SVG log), ``page`` (title, caution, panel, script),
 
 from __future__ import annotations
 
-import os
-import uuid
 from pathlib import Path
 
 import folium
 import numpy as np
 
+from aquitardmap.files import write_text_atomically
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.presentation import HOLE_STYLES, PROTECTION, GridStyle, unit_colours
 from aquitardmap.outputs.runfolder import (
@@ -278,13 +277,4 @@ def write_map(run_dir: str | Path, *, self_contained: bool = False,
         raise ValueError(f"max_overlay_cells must be at least 1, got {max_overlay_cells}")
     page = _build_map(run_dir, self_contained=self_contained,
                       max_overlay_cells=max_overlay_cells)
-    target = run_dir / outputs.MAP
-    tmp = run_dir / f".{outputs.MAP}.{os.getpid()}.{uuid.uuid4().hex}.tmp"
-    try:
-        with open(tmp, "x", encoding="utf-8") as fh:  # "x": never clobber; umask applies
-            fh.write(page)
-        os.replace(tmp, target)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    return target
+    return write_text_atomically(run_dir / outputs.MAP, page)
