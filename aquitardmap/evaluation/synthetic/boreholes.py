@@ -84,6 +84,7 @@ class Hole:
 
     @property
     def clay_m(self) -> float:
+        """True total thickness of the clay units at the hole (m)."""
         return sum(self.thickness_m[u] for u in CLAY_UNITS)
 
     def true_bottoms(self) -> list[tuple[str, float]]:

@@ -10,6 +10,7 @@ knobs that remove clay from below, channels that erode it from the top. See
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -273,6 +274,7 @@ class Column:
 
     @property
     def clay_m(self) -> np.ndarray:
+        """Total thickness of the clay units (m)."""
         return sum(self.thickness_m[u] for u in CLAY_UNITS)
 
 
@@ -297,6 +299,7 @@ class Truth:
     channels: tuple[_Channel, ...]
 
     def column(self, x: np.ndarray, y: np.ndarray) -> Column:
+        """The true column at points (x, y) (m, in the region's CRS)."""
         x = np.asarray(x, float)
         y = np.asarray(y, float)
         f = {k: fld(x, y) for k, fld in self.fields.items()}
@@ -466,7 +469,8 @@ def _make_truth(rng: np.random.Generator, valley: _Valley, character: str,
                  tuple(channels))
 
 
-def points_in(rng: np.random.Generator, polygon: Polygon, n: int, accept=None, *,
+def points_in(rng: np.random.Generator, polygon: Polygon, n: int,
+              accept: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None, *,
               centre: tuple[float, float] | None = None, sd_m: float = 0.0,
               max_rounds: int = 200) -> tuple[np.ndarray, np.ndarray]:
     """``n`` random points inside ``polygon`` where ``accept(x, y)`` holds.
