@@ -82,7 +82,8 @@ from aquitardmap.outputs.presentation import avi_classes
 from aquitardmap.outputs.report import write_report
 from aquitardmap.outputs.staging import staged_output_dir, tidy_output_dir  # noqa: F401
 from aquitardmap.outputs.summary import write_summary
-from aquitardmap.outputs.webmap import find_web_assets, write_map
+from aquitardmap.outputs.webmap.assets import find_web_assets
+from aquitardmap.outputs.webmap.build import write_map
 from aquitardmap.outputs.webmap.qml import write_qml_sidecars
 from aquitardmap.screening.suspicious import suspicious_columns, suspicious_list
 from aquitardmap.screening.zones import (

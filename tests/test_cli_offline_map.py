@@ -12,8 +12,8 @@ from click.testing import CliRunner
 
 from aquitardmap.cli import cli
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets
 from aquitardmap.outputs.webmap import assets as webmap_assets
+from aquitardmap.outputs.webmap.assets import WebAssetsNotFound, find_web_assets
 
 from conftest import DEMO
 

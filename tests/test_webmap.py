@@ -37,7 +37,8 @@ from pyproj import CRS, Transformer
 
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.presentation import unit_colours
-from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets, write_map
+from aquitardmap.outputs.webmap.assets import WebAssetsNotFound, find_web_assets
+from aquitardmap.outputs.webmap.build import write_map
 from aquitardmap.outputs.webmap.page import lonlat_to_xy_fit
 from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
 

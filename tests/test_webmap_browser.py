@@ -30,7 +30,7 @@ from mapdata import EVIL_ID, EVIL_UNIT, HOLE_XY, X0, Y0, build_run_folder, thick
 from pyproj import Transformer
 
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.webmap import write_map
+from aquitardmap.outputs.webmap.build import write_map
 
 from conftest import REPO
 

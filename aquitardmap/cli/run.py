@@ -16,7 +16,7 @@ from aquitardmap.compare import check_run, default_changes_dir
 from aquitardmap.config.project import read_project
 from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.outputs import names as outputs
-from aquitardmap.outputs.webmap import WebAssetsNotFound, find_web_assets
+from aquitardmap.outputs.webmap.assets import WebAssetsNotFound, find_web_assets
 from aquitardmap.pipeline import run
 from aquitardmap.screening.zones import ZONE_KINDS, ZONE_TIERS
 

@@ -268,7 +268,7 @@ def suggest(project_dir: str | Path, out_dir: str | Path, n_holes: int | None = 
                            protective_m=protective)
     written = write_suggestions(out_dir, result)
     if (Path(out_dir) / outputs.MAP).exists():
-        from aquitardmap.outputs.webmap import write_map
+        from aquitardmap.outputs.webmap.build import write_map
 
         write_map(out_dir)
     return result, written
