@@ -57,7 +57,7 @@ def make_data(folder: Path, n_holes: int, seed: int) -> Path:
         experimental_variogram,
         fit_variogram,
     )
-    from aquitardmap.pipeline import load_inputs
+    from aquitardmap.inputs.load import load_inputs
 
     side = float(np.sqrt(n_holes / 20_000.0))  # 20,000 holes over 40 km × 28 km
     t0 = time.perf_counter()

@@ -8,8 +8,8 @@ cell_size_m=25)`` of
 :mod:`aquitardmap.evaluation.synthetic`, written once into ``--folder`` (kept and
 reused when it is already there). In one process, wall and CPU seconds of:
 
-- ``surfaces``: :func:`aquitardmap.pipeline.build_surfaces`;
-- ``probability``: :func:`aquitardmap.pipeline.aquitard_probabilities` with the
+- ``surfaces``: :func:`aquitardmap.geostat.stage.build_surfaces`;
+- ``probability``: :func:`aquitardmap.screening.stage.aquitard_probabilities` with the
   thresholds ``{"window": 1.0, "thin": 5.0}``, split into the parts of
   :mod:`aquitardmap.geostat.indicator` (``indicator_data``, ``indicator_variogram``,
   ``continuity_segments``, ``local_direction_deg``, ``krige_indicator``,
@@ -58,7 +58,9 @@ def main() -> None:
     sys.path.insert(0, str(ROOT))
     import aquitardmap.geostat.indicator as ind
     from aquitardmap.evaluation.synthetic.region import make_synthetic_region
-    from aquitardmap.pipeline import aquitard_probabilities, build_surfaces, load_inputs
+    from aquitardmap.geostat.stage import build_surfaces
+    from aquitardmap.inputs.load import load_inputs
+    from aquitardmap.screening.stage import aquitard_probabilities
 
     n_holes = args.holes or (4000 if args.quick else 20000)
     folder = args.folder or Path(tempfile.gettempdir()) / f"aquitardmap_bench_{n_holes}"
@@ -101,8 +103,8 @@ def main() -> None:
             cpu["cv", "total"] += time.process_time() - c0
             phase[0] = "grid"
 
-    import aquitardmap.pipeline as pipeline
-    pipeline.cross_validate = cv_wrapper
+    import aquitardmap.screening.stage as screening_stage
+    screening_stage.cross_validate = cv_wrapper
 
     w0, c0 = time.perf_counter(), time.process_time()
     surfaces = build_surfaces(inputs)

@@ -472,8 +472,8 @@ def check_outputs(out_dir: Path, result) -> None:
     import geopandas as gpd
     import rasterio
 
+    from aquitardmap.inputs.load import crs_code
     from aquitardmap.outputs import names as outputs
-    from aquitardmap.pipeline import crs_code
 
     summary = json.loads((out_dir / outputs.SUMMARY).read_text(encoding="utf-8"),
                          parse_constant=_no_constants)

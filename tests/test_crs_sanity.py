@@ -20,7 +20,7 @@ from shapely.geometry import box, shape
 
 import aquitardmap
 from aquitardmap.errors import InputError
-from aquitardmap.pipeline import load_inputs
+from aquitardmap.inputs.load import load_inputs
 
 CRS = "EPSG:32632"
 X0, Y0 = 500_000.0, 6_700_000.0

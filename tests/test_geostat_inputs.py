@@ -16,10 +16,13 @@ from aquitardmap.config.project import read_project
 from aquitardmap.config.settings import KrigingSettings, QASettings
 from aquitardmap.errors import InputError
 from aquitardmap.evaluation.synthetic.region import make_synthetic_region
+from aquitardmap.geostat.stage import build_surfaces
 from aquitardmap.geostat.surfaces import krige_thickness
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.grid import make_grid
-from aquitardmap.pipeline import borehole_table, build_surfaces, load_inputs, run
+from aquitardmap.inputs.load import load_inputs
+from aquitardmap.pipeline import run
+from aquitardmap.screening.stage import borehole_table
 from aquitardmap.screening.suspicious import suspicious_columns
 
 from conftest import MINIMAL_PROJECT_TOML as MINIMAL

@@ -1,7 +1,7 @@
 """Tests of the independent region generator (aquitardmap.evaluation.independent).
 
 Its regions are invented data drawn from a known truth; the checks hold it to the input
-contract the pipeline reads (loaded by ``aquitardmap.pipeline.load_inputs``), to the truth
+contract the pipeline reads (loaded by ``aquitardmap.inputs.load.load_inputs``), to the truth
 grid the pipeline builds from the boundary, to its own stated recording noise (contacts with
 sd 0.25 m, rounded to 0.1 m) and to the target share of thin clay of the screening-skill
 issue (2-10 % of the area under 5 m).
@@ -20,8 +20,8 @@ from aquitardmap.evaluation.independent import (
     make_independent_region,
 )
 from aquitardmap.grid import read_raster
+from aquitardmap.inputs.load import load_inputs
 from aquitardmap.outputs import names as outputs
-from aquitardmap.pipeline import load_inputs
 
 SMALL = {"n_holes": 60, "extent_m": (4000.0, 3000.0)}
 CLAY = ("UMC", "LMC", "LAM")

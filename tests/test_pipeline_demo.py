@@ -135,7 +135,7 @@ def test_proving_holes_are_zones_even_where_the_probabilities_say_0(demo_run):
     # the holes that prove a window (likely windows) or thin clay (likely thin).
     from dataclasses import replace
 
-    from aquitardmap.pipeline import screen
+    from aquitardmap.screening.stage import screen
 
     zero = np.where(demo_run.inputs.grid.mask, 0.0, np.nan)
     probs = replace(demo_run.probabilities, p_below={"window": zero, "thin": zero})

@@ -23,8 +23,8 @@ from aquitardmap.evaluation.drilling_trial import (
 )
 from aquitardmap.evaluation.synthetic.region import make_synthetic_region
 from aquitardmap.grid import write_raster
+from aquitardmap.inputs.load import load_inputs
 from aquitardmap.outputs import names as outputs
-from aquitardmap.pipeline import load_inputs
 
 SMALL = {"n_holes": 60, "extent_m": (5000.0, 3500.0), "cell_size_m": 100.0,
          "write_project_toml": True, "hazards": False}

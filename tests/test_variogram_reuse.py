@@ -33,7 +33,7 @@ from aquitardmap.geostat.cache.variograms import (
 from aquitardmap.geostat.drift import RESIDUAL_NAME
 from aquitardmap.geostat.variogram import VariogramModel
 from aquitardmap.inputs.store import add_files, create_store
-from aquitardmap.pipeline import output_grids
+from aquitardmap.outputs.write import output_grids
 
 KEPT = VariogramModel("spherical", nugget=1.0, psill=9.0, range_m=1000.0)
 

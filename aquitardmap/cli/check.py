@@ -8,7 +8,7 @@ import click
 from rich.table import Table
 
 from aquitardmap.cli._common import console, guarded
-from aquitardmap.pipeline import load_inputs
+from aquitardmap.inputs.load import load_inputs
 
 
 @click.command("check")

@@ -28,17 +28,14 @@ from aquitardmap.drilling.candidates import CandidateSites, grid_sites, read_can
 from aquitardmap.drilling.design import DrillingPlan, plan_holes
 from aquitardmap.errors import ProblemList
 from aquitardmap.files import replace_atomically
+from aquitardmap.geostat.cache.folders import kept_variograms
 from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
+from aquitardmap.geostat.stage import build_surfaces
 from aquitardmap.geostat.surfaces import Surface, krige_thickness
 from aquitardmap.grid import resample_to_grid
+from aquitardmap.hydraulics.stage import compute_hydraulics
+from aquitardmap.inputs.load import Inputs, load_inputs
 from aquitardmap.outputs import names as outputs
-from aquitardmap.pipeline import (
-    Inputs,
-    build_surfaces,
-    compute_hydraulics,
-    kept_variograms,
-    load_inputs,
-)
 from aquitardmap.screening.zones import probability_below
 
 #: Columns of ``suggested_holes.csv`` (and of the GeoPackage layer, plus its geometry).

@@ -25,7 +25,7 @@ from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.drilling.suggest import suggest_holes, total_thickness_surface
 from aquitardmap.geostat.surfaces import Surface, krige_thickness
 from aquitardmap.grid import Grid, read_raster
-from aquitardmap.pipeline import Inputs, load_inputs
+from aquitardmap.inputs.load import Inputs, load_inputs
 
 DESIGNS = ("suggested", "random", "regular")
 

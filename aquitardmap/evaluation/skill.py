@@ -155,11 +155,11 @@ def zone_skill(project_dir: str | Path, *,
     (``"kriging"``, ``"screening"``) to field values, e.g.
     ``{"kriging": {"external_drift": "none"}}``. Writes nothing.
     """
-    from aquitardmap.pipeline import (
+    from aquitardmap.geostat.stage import build_surfaces
+    from aquitardmap.inputs.load import load_inputs
+    from aquitardmap.screening.stage import (
         aquitard_probabilities,
         borehole_table,
-        build_surfaces,
-        load_inputs,
         window_proof_grid,
     )
     from aquitardmap.screening.zones import proving_hole_cells, zone_masks
@@ -508,7 +508,7 @@ def screening_skill(project_dir: str | Path, *,
     """:class:`ScreeningSkill` of the screening run of a project folder that holds
     ``truth/aquitard_thickness_m.tif`` on its grid.
 
-    Runs the pipeline's stages as ``run`` does — :func:`~aquitardmap.pipeline.load_inputs`,
+    Runs the pipeline's stages as ``run`` does — :func:`~aquitardmap.inputs.load.load_inputs`,
     ``build_surfaces``, ``compute_hydraulics``, ``thickness_probability_grids``, ``screen``
     — with the project's settings, or with some replaced (``overrides`` as in
     :func:`zone_skill`), and scores the zones it draws, its P(window) and P(thin) grids,
@@ -521,11 +521,11 @@ def screening_skill(project_dir: str | Path, *,
     Raises:
         ValueError: when the truth raster is not on the project's grid.
     """
-    from aquitardmap.pipeline import (
+    from aquitardmap.geostat.stage import build_surfaces
+    from aquitardmap.hydraulics.stage import compute_hydraulics
+    from aquitardmap.inputs.load import load_inputs
+    from aquitardmap.screening.stage import (
         borehole_table,
-        build_surfaces,
-        compute_hydraulics,
-        load_inputs,
         proves_thinner_than,
         screen,
         thickness_probability_grids,
@@ -607,14 +607,12 @@ def _run_zone_masks(inputs, surfaces, hyd, probs, zones) -> tuple[dict[str, np.n
     """Window and thin cells of the run: :func:`aquitardmap.screening.zones.zone_masks` from the
     grids ``screen`` draws its zones from, checked against the drawn polygons; where the
     two differ (``screen`` changed how it draws), the drawn polygons rasterised."""
-    from aquitardmap.pipeline import window_proof_grid
+    from aquitardmap.hydraulics.stage import screened_thickness_m
+    from aquitardmap.screening.stage import window_proof_grid
     from aquitardmap.screening.zones import zone_masks
 
     total = surfaces["aquitard"]
-    thickness = total.thickness_m
-    if hyd.protective_thickness_m is not None:
-        thickness = np.where(np.isfinite(total.thickness_m), hyd.protective_thickness_m,
-                             np.nan)
+    thickness = screened_thickness_m(total, hyd)
     masks = zone_masks(thickness, hyd.travel_time_yr, inputs.grid, inputs.project.screening,
                        p_window=probs.p_below["window"], p_thin=probs.p_below["thin"],
                        window_proven=window_proof_grid(inputs, hyd),

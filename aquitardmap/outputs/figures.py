@@ -17,6 +17,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from aquitardmap.geostat.probability import ThicknessProbabilities  # noqa: E402
 from aquitardmap.geostat.surfaces import Surface  # noqa: E402
 from aquitardmap.geostat.variogram import VariogramModel  # noqa: E402
 
@@ -105,3 +106,13 @@ def variogram_figure(surface: Surface, path: str | Path, *, title: str = "",
     fig.savefig(path, format="png")
     plt.close(fig)
     return path
+
+
+def figure_surfaces(surfaces: dict[str, Surface],
+                     probabilities: ThicknessProbabilities | None) -> dict[str, Surface]:
+    """Surfaces that get a variogram figure: every kriged one, and the residual from the
+    external drift when the probabilities used it."""
+    out = dict(surfaces)
+    if probabilities is not None and probabilities.residual is not None:
+        out[probabilities.residual.name] = probabilities.residual
+    return out

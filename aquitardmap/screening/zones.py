@@ -105,7 +105,7 @@ def proving_hole_cells(boreholes: gpd.GeoDataFrame | None, grid: Grid
                        ) -> tuple[np.ndarray, np.ndarray]:
     """Cells holding a hole that proves a window and cells holding one that proves thin
     clay, from the ``proves_window`` / ``proves_thin`` columns of ``boreholes`` (as
-    :func:`aquitardmap.pipeline.borehole_table` writes them; pass the holes that are used).
+    :func:`aquitardmap.screening.stage.borehole_table` writes them; pass the holes that are used).
     Empty grids without those columns."""
     out = []
     for col in ("proves_window", "proves_thin"):
@@ -250,10 +250,15 @@ def _tier_head(kind: str, tier: str, th: ScreeningThresholds, prob: float,
             f"{thick:g} m is {prob:.0%} on average over the zone, at most {max_prob:.0%}")
 
 
+#: How the travel time was worked out, by ``Hydraulics.gradient_source``, in a zone's reason.
+GRADIENT_WORDS = {"stated": "unit-gradient assumption",
+                  "heads": "steady flux from the head inputs' head drop"}
+
+
 def _reason(kind: str, tier: str, th: ScreeningThresholds, mean_t: float, min_t: float,
             sd: float, p: float, mean_tt: float, n_holes: int, prob: float | None = None,
             max_prob: float = float("nan"),
-            piercing_per_km2: float = float("nan")) -> str:
+            piercing_per_km2: float = float("nan"), gradient_source: str = "stated") -> str:
     holes = _holes_words(n_holes)
     if kind == "pierced":
         return (f"Many boreholes pierce the clay: on average {piercing_per_km2:.0f} holes per "
@@ -273,7 +278,7 @@ def _reason(kind: str, tier: str, th: ScreeningThresholds, mean_t: float, min_t:
                 f"{th.window_thickness_m:g} and {th.thin_thickness_m:g} m")
     else:
         head = (f"Fast vertical path: advective travel time to the aquifer below "
-                f"{th.fast_travel_time_yr:g} years (unit-gradient assumption)")
+                f"{th.fast_travel_time_yr:g} years ({GRADIENT_WORDS[gradient_source]})")
     return (f"{head}; mean {mean_t:.1f} m (min {min_t:.1f} m), kriging SD about {sd:.1f} m, "
             f"approx. P(thinner than {th.thin_thickness_m:g} m) {p:.2f}; mean travel time "
             f"{mean_tt:.3g} years; {holes}.")
@@ -330,15 +335,19 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
                      boreholes: gpd.GeoDataFrame | None = None, *,
                      p_window: np.ndarray | None = None,
                      window_proven: np.ndarray | None = None,
-                     piercing_density_per_km2: np.ndarray | None = None) -> gpd.GeoDataFrame:
+                     piercing_density_per_km2: np.ndarray | None = None,
+                     gradient_source: str = "stated") -> gpd.GeoDataFrame:
     """Vectorise window, thin, fast and pierced zones into polygons with their statistics.
+
+    ``gradient_source`` (``"stated"`` or ``"heads"``, as the hydraulics stage worked out
+    the travel time) words the reason of fast-path zones (:data:`GRADIENT_WORDS`).
 
     ``p_thin`` is P(thinner than the thin threshold); with ``p_window`` too and
     ``thresholds.zone_basis == "probability"`` the window and thin zones are drawn from them
     in tiers (module docstring, :func:`zone_tier_masks`), likely windows only where
     ``window_proven``. ``boreholes`` are the holes used (points in the grid's CRS): they
     are counted in each zone, and with ``proves_window`` / ``proves_thin`` columns (as
-    :func:`aquitardmap.pipeline.borehole_table` writes them) their cells are honoured as
+    :func:`aquitardmap.screening.stage.borehole_table` writes them) their cells are honoured as
     hard data (:func:`proving_hole_cells`) and they support the zones near them. Pierced
     zones come from ``piercing_density_per_km2`` (none without it).
 
@@ -431,7 +440,7 @@ def zones_from_grids(total_thickness_m: np.ndarray, sd_m: np.ndarray,
         _reason(r.kind, r.tier, thresholds, r.mean_thickness_m, r.min_thickness_m,
                 r.mean_sd_m, r.mean_p_thin, r.mean_travel_time_yr, r.n_boreholes,
                 r.probability if np.isfinite(r.probability) else None, r.max_probability,
-                r.mean_piercing_per_km2)
+                r.mean_piercing_per_km2, gradient_source)
         + _unproven_note(r.kind, int(r.n_cells_unproven_window), thresholds)
         + _hard_data_note(r.kind, r.tier, int(r.n_cells_from_holes))
         for r in zones.itertuples()
