@@ -16,6 +16,7 @@ from pyproj import CRS
 from shapely.geometry import Point, Polygon, box
 
 from aquitardmap.grid import make_grid, write_raster
+from aquitardmap.hydraulics.column import avi_class
 from aquitardmap.outputs import names as outputs
 
 CRS_UTM32 = CRS.from_epsg(32632)
@@ -44,7 +45,7 @@ def thickness_at(x: float) -> float:
 
 def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True,
                      tiers: bool = False) -> None:
-    """Write a tiny run folder: 9 grids (no cover grid), 3 zones, 3 boreholes, summary.
+    """Write a tiny run folder: 10 grids (no cover grid), 3 zones, 3 boreholes, summary.
 
     With ``tiers`` the zones are drawn in tiers, as a probability run writes them: the
     window zone likely, the thin zone possible (with supporting holes, one a hostile id),
@@ -69,6 +70,11 @@ def build_run_folder(run_dir: Path, *, grids: bool = True, summary: bool = True,
             outputs.P_THIN: np.clip(1.0 - thickness_m / 10.0, 0.0, 1.0),
         }.items():
             write_raster(run_dir / name, values, grid)
+        # the vulnerability class grid, as the hydraulics stage writes it beside the
+        # resistance (integers, 0 = no data)
+        resistance_yr = np.maximum(thickness_m, 0.5) / KV_M_S / SECONDS_PER_YEAR
+        write_raster(run_dir / outputs.AVI_CLASS, avi_class(resistance_yr), grid,
+                     dtype="uint8", nodata=0)
     zones = gpd.GeoDataFrame(
         {
             "kind": ["window", "thin", "fast"],

@@ -110,7 +110,7 @@ def test_every_present_grid_is_a_layer_and_missing_ones_are_not(
         "Leakance of the column (1/s, log scale)",
         "Hydraulic resistance of the column (years, log scale)",
     ]
-    # Nine grid files plus the vulnerability class derived from the resistance grid.
+    # Ten grid files, the vulnerability class among them (no cover grid).
     assert len(OVERLAY.findall(page)) == 10
     assert not any("Cover" in t for t in _grid_titles(page))  # no cover grid was written
     assert _toggles(page) == ["basemap", "outline", "zones", "holes"]

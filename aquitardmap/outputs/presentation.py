@@ -67,7 +67,6 @@ class GridStyle:
     factor: float = 1.0
     note: str = ""
     classes: tuple[ClassStyle, ...] = field(default_factory=tuple)
-    derived_from: str = ""  # a class grid computed from another file, when its own is absent
     short: str = ""  # name in a layer list, when shorter than the title
 
     @property
@@ -115,8 +114,8 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
             grids this module does not know (they are listed last, under "Other grids").
 
     The better of two probability grids is shown: ``p_thin.tif`` (from the geostatistics
-    stage) over ``p_thin_approx.tif``. Without ``avi_class.tif`` the vulnerability class is
-    derived from ``resistance_yr.tif`` (``derived_from`` says so).
+    stage) over ``p_thin_approx.tif``. The vulnerability class is the ``avi_class.tif`` the
+    hydraulics stage wrote (a folder without it has no class layer).
     """
     files = set(files)
     t = thresholds(summary)
@@ -161,12 +160,6 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
         styles.append(GridStyle(AVI_CLASS_FILE, PROTECTION, "Aquifer vulnerability class (AVI)",
                                 "", classes=avi_classes(), short="Vulnerability class (AVI)",
                                 note="Van Stempvoort, Ewert & Wassenaar (1993)."))
-    elif outputs.RESISTANCE in files:
-        styles.append(GridStyle(AVI_CLASS_FILE, PROTECTION, "Aquifer vulnerability class (AVI)",
-                                "", classes=avi_classes(), derived_from=outputs.RESISTANCE,
-                                short="Vulnerability class (AVI)",
-                                note="Van Stempvoort, Ewert & Wassenaar (1993); from the "
-                                "hydraulic resistance grid."))
     styles.append(GridStyle(outputs.AQUITARD_THICKNESS_SD, UNCERTAINTY,
                             "Uncertainty of the clay thickness (one standard deviation)", "m",
                             "cividis_r", note="Darker = less certain; largest far from "
@@ -220,7 +213,7 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
                   "Clay removed by excavations, pits and slides", "m", "magma_r",
                   short="Clay removed by hazards", note="Darker = more clay removed."),
     ]
-    styles = [s for s in styles if s.file in files or s.derived_from in files]
+    styles = [s for s in styles if s.file in files]
     known = {s.file for s in styles} | {outputs.P_THIN, P_THIN_FILE}
     for f in sorted(files):
         if f.endswith(".tif") and f not in known:

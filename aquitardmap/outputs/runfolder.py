@@ -20,7 +20,6 @@ from pyproj import CRS
 from pyproj.exceptions import CRSError
 
 from aquitardmap.grid import read_raster
-from aquitardmap.hydraulics.column import avi_class
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.formatting import section
 from aquitardmap.outputs.presentation import GridStyle, grid_styles
@@ -78,18 +77,12 @@ class GridData:
 
 
 def read_grid(run_dir: Path, style: GridStyle) -> GridData:
-    """Read a styled grid; a class grid derived from another file is computed here
-    (the vulnerability class from the resistance with :func:`hydraulics.avi_class`)."""
-    run_dir = Path(run_dir)
-    if (run_dir / style.file).is_file():
-        values, transform, crs, _ = read_raster(run_dir / style.file)
-        if style.classes:
-            values = np.where(np.isin(values, [c.code for c in style.classes]), values, np.nan)
-        return GridData(style, values, transform, crs)
-    values, transform, crs, _ = read_raster(run_dir / style.derived_from)
-    classes = avi_class(np.where(np.isfinite(values), np.maximum(values, 0.0), np.nan))
-    shown = np.where(classes > 0, classes.astype(float), np.nan)
-    return GridData(style, shown, transform, crs)
+    """Read a styled grid as the run wrote it; cells of a class grid that hold no class of
+    the style are no data."""
+    values, transform, crs, _ = read_raster(Path(run_dir) / style.file)
+    if style.classes:
+        values = np.where(np.isin(values, [c.code for c in style.classes]), values, np.nan)
+    return GridData(style, values, transform, crs)
 
 
 def read_layer(path: Path, layer: str, fallback_crs: CRS | None,

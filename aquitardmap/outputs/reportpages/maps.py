@@ -204,8 +204,7 @@ def map_pages(pages: Pages, run_dir: Path) -> None:
             ax.tick_params(labelsize=7)
             ax.set_xlabel("Easting (km)", fontsize=7)
             ax.set_ylabel("Northing (km)", fontsize=7)
-            title = style.title + (" — from the resistance grid" if style.derived_from else "")
-            ax.set_title(plain_text(title), fontsize=9.5, loc="left")
+            ax.set_title(plain_text(style.title), fontsize=9.5, loc="left")
             if style.note:
                 ax.text(0.0, -0.135, plain_text(style.note), transform=ax.transAxes, fontsize=6.8,
                         color="#444444", va="top")

@@ -98,8 +98,7 @@ def write_qml_sidecars(run_dir: str | Path, values_of: dict[str, np.ndarray],
     ``p_thin_approx.tif`` beside ``p_thin.tif``, is styled as it would be on its own);
     returns the names written."""
     run_dir = Path(run_dir)
-    styles = {s.file: s for s in grid_styles(set(values_of), summary, descriptions)
-              if not s.derived_from}
+    styles = {s.file: s for s in grid_styles(set(values_of), summary, descriptions)}
     written = []
     for name, values in values_of.items():
         style = styles.get(name) or next(
