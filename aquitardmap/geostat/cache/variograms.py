@@ -60,8 +60,6 @@ KEPT_FORMAT = "kept-variograms-v1"
 DEFAULT_WITHIN = 0.1
 #: Default of ``[kriging] reuse_variogram_angle_deg`` (degrees).
 DEFAULT_ANGLE_DEG = 10.0
-#: Variogram sources (see :class:`aquitardmap.geostat.surfaces.Surface`) that a run fits itself.
-FITTED_SOURCES = ("fitted", "reused")
 
 def _relative(new: float, old: float, scale: float) -> float:
     """|new − old| / scale (0 when both are equal, infinite when the scale is 0)."""
