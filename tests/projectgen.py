@@ -461,9 +461,9 @@ def check_result(result) -> None:
 
 
 def _json_ready(summary: dict) -> object:
-    from aquitardmap.outputs.summary import _clean
+    from aquitardmap.outputs.summary import json_ready
 
-    return _clean(summary)
+    return json_ready(summary)
 
 
 def check_outputs(out_dir: Path, result) -> None:

@@ -25,6 +25,7 @@ The pages are drawn by the modules of :mod:`aquitardmap.outputs.reportpages`.
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 from aquitardmap.files import replace_atomically
 from aquitardmap.outputs import names as outputs
@@ -36,8 +37,12 @@ from aquitardmap.outputs.reportpages.title import title_page
 from aquitardmap.outputs.runfolder import read_summary
 
 
-def write_report(run_dir: str | Path) -> Path:
+def write_report(run_dir: str | Path, *, summary: dict[str, Any] | None = None) -> Path:
     """Write ``run_dir / report.pdf`` from the files of a run folder.
+
+    ``summary`` is the run's summary as ``summary.json`` holds it
+    (:func:`aquitardmap.outputs.summary.json_ready`), given by the run that writes the
+    folder; without it ``summary.json`` is read from ``run_dir`` (a folder written before).
 
     Missing files leave their part out (a map page without the grid, a table saying so);
     the caution is on every page. The file is written to a temporary name and moved into
@@ -49,7 +54,8 @@ def write_report(run_dir: str | Path) -> Path:
     run_dir = Path(run_dir)
     if not run_dir.is_dir():
         raise NotADirectoryError(f"run folder not found: {run_dir}")
-    summary = read_summary(run_dir)
+    if summary is None:
+        summary = read_summary(run_dir)
     pages = Pages(summary)
     title_page(pages)
     map_pages(pages, run_dir)

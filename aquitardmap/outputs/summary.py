@@ -45,12 +45,13 @@ from aquitardmap.screening.zones import (
 )
 
 
-def _clean(value: Any) -> Any:
-    """JSON-safe copy: numpy scalars to Python, non-finite floats to None."""
+def json_ready(value: Any) -> Any:
+    """A JSON-safe copy of ``value``, as ``summary.json`` holds it: keys as text, tuples as
+    lists, numpy scalars as Python numbers, non-finite floats as None, paths as text."""
     if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
+        return {str(k): json_ready(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
-        return [_clean(v) for v in value]
+        return [json_ready(v) for v in value]
     if isinstance(value, np.generic):
         value = value.item()
     if isinstance(value, float) and not math.isfinite(value):
@@ -63,7 +64,7 @@ def _clean(value: Any) -> Any:
 def write_summary(path: str | Path, summary: dict[str, Any]) -> Path:
     """Write ``summary`` as indented UTF-8 JSON (non-finite numbers become null)."""
     path = Path(path)
-    path.write_text(json.dumps(_clean(summary), indent=2, ensure_ascii=False) + "\n",
+    path.write_text(json.dumps(json_ready(summary), indent=2, ensure_ascii=False) + "\n",
                     encoding="utf-8")
     return path
 

@@ -22,7 +22,7 @@ from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.figures import figure_surfaces, variogram_figure
 from aquitardmap.outputs.presentation import avi_classes
 from aquitardmap.outputs.report import write_report
-from aquitardmap.outputs.summary import write_summary
+from aquitardmap.outputs.summary import json_ready, write_summary
 from aquitardmap.outputs.webmap.build import write_map
 from aquitardmap.outputs.webmap.qml import write_qml_sidecars
 
@@ -99,7 +99,7 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     """Stage 5: write every output file into ``folder``; returns the file names.
 
     ``self_contained_map`` writes a map that needs no network (see
-    :func:`aquitardmap.outputs.webmap.write_map`)."""
+    :func:`aquitardmap.outputs.webmap.build.write_map`)."""
     g = inputs.grid
     p = inputs.project
     grids = output_grids(inputs, surfaces, hyd, p_thin, probabilities)
@@ -145,6 +145,7 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
                     outputs.REPORT])
     summary["outputs"] = names
     write_summary(folder / outputs.SUMMARY, summary)
-    write_map(folder, self_contained=self_contained_map)
-    write_report(folder)
+    as_written = json_ready(summary)
+    write_map(folder, summary=as_written, self_contained=self_contained_map)
+    write_report(folder, summary=as_written)
     return names

@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import folium
 import numpy as np
@@ -74,8 +75,8 @@ def _union_bounds(boxes: list[tuple[float, float, float, float]]
             float(arr[:, 3].max()))
 
 
-def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -> str:
-    summary = read_summary(run_dir)
+def _build_map(run_dir: Path, summary: dict[str, Any], *, self_contained: bool,
+               max_overlay_cells: int) -> str:
     crs = project_crs(run_dir, summary)
     assets = find_web_assets() if self_contained else None
 
@@ -220,13 +221,17 @@ def _build_map(run_dir: Path, *, self_contained: bool, max_overlay_cells: int) -
     return page
 
 
-def write_map(run_dir: str | Path, *, self_contained: bool = False,
-              max_overlay_cells: int = 1_000_000) -> Path:
+def write_map(run_dir: str | Path, *, summary: dict[str, Any] | None = None,
+              self_contained: bool = False, max_overlay_cells: int = 1_000_000) -> Path:
     """Write the interactive map ``run_dir / map.html`` from the files of a run folder.
 
-    Reads the grids, zones, boreholes and ``summary.json`` named in
-    :mod:`aquitardmap.outputs.names` (any may be missing; what is there is shown). Each grid
-    overlay is warped to Web Mercator and has at most ``max_overlay_cells`` cells.
+    Reads the grids, zones and boreholes named in :mod:`aquitardmap.outputs.names` (any may
+    be missing; what is there is shown). Each grid overlay is warped to Web Mercator and has
+    at most ``max_overlay_cells`` cells.
+
+    ``summary`` is the run's summary as ``summary.json`` holds it
+    (:func:`aquitardmap.outputs.summary.json_ready`), given by the run that writes the
+    folder; without it ``summary.json`` is read from ``run_dir`` (a folder written before).
 
     With ``self_contained=True`` the page needs no network: Leaflet is inlined from a local
     copy (see :func:`find_web_assets`) and no background map tiles are used. Otherwise
@@ -245,7 +250,9 @@ def write_map(run_dir: str | Path, *, self_contained: bool = False,
         raise NotADirectoryError(f"run folder not found: {run_dir}")
     if max_overlay_cells < 1:
         raise ValueError(f"max_overlay_cells must be at least 1, got {max_overlay_cells}")
-    page = _build_map(run_dir, self_contained=self_contained,
+    if summary is None:
+        summary = read_summary(run_dir)
+    page = _build_map(run_dir, summary, self_contained=self_contained,
                       max_overlay_cells=max_overlay_cells)
     return write_text_atomically(run_dir / outputs.MAP, page)
 
