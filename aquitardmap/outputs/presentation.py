@@ -26,11 +26,6 @@ from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.formatting import fmt_threshold, truthy
 from aquitardmap.outputs.wording import gradient_words, thresholds
 
-#: Optional grids that other stages may write; shown when present.
-P_THIN_FILE = "p_thin.tif"
-P_WINDOW_FILE = "p_window.tif"
-AVI_CLASS_FILE = outputs.AVI_CLASS
-
 PROTECTION = "Protection"
 UNCERTAINTY = "Uncertainty"
 UNITS = "Clay units and cover"
@@ -133,9 +128,10 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
                                 "m", "viridis", short="Effective clay thickness",
                                 note="The clay the hydraulics count as protective. Darker = "
                                 "less protection."))
-    if P_THIN_FILE in files:
-        styles.append(GridStyle(P_THIN_FILE, PROTECTION, f"Chance the clay is {thin_words}",
-                                "%", "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
+    if outputs.P_THIN_PROB in files:
+        styles.append(GridStyle(outputs.P_THIN_PROB, PROTECTION,
+                                f"Chance the clay is {thin_words}", "%", "magma_r",
+                                fixed_range=(0.0, 100.0), factor=100.0,
                                 note="Darker = more likely thin.",
                                 short=f"Chance of clay {thin_words}"))
     elif outputs.P_THIN in files:
@@ -145,20 +141,22 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
                                 note="Darker = more likely thin. Approximate: assumes a "
                                 "Gaussian error of the kriged thickness.",
                                 short=f"Chance of clay {thin_words}"))
-    if P_WINDOW_FILE in files:
+    if outputs.P_WINDOW_PROB in files:
         words = (f"absent (under {fmt_threshold(window)} m)" if window is not None
                  else "absent")
-        styles.append(GridStyle(P_WINDOW_FILE, PROTECTION, f"Chance the clay is {words}", "%",
-                                "magma_r", fixed_range=(0.0, 100.0), factor=100.0,
+        styles.append(GridStyle(outputs.P_WINDOW_PROB, PROTECTION,
+                                f"Chance the clay is {words}", "%", "magma_r",
+                                fixed_range=(0.0, 100.0), factor=100.0,
                                 note="Darker = more likely a window.",
                                 short="Chance of no clay (window)"))
     styles.append(GridStyle(outputs.TRAVEL_TIME, PROTECTION, "Travel time down to the aquifer",
                             "years", "viridis", log=True,
                             note=f"Darker = faster. Advective; {gradient_words(summary)}.",
                             short="Travel time to the aquifer"))
-    if AVI_CLASS_FILE in files:
-        styles.append(GridStyle(AVI_CLASS_FILE, PROTECTION, "Aquifer vulnerability class (AVI)",
-                                "", classes=avi_classes(), short="Vulnerability class (AVI)",
+    if outputs.AVI_CLASS in files:
+        styles.append(GridStyle(outputs.AVI_CLASS, PROTECTION,
+                                "Aquifer vulnerability class (AVI)", "", classes=avi_classes(),
+                                short="Vulnerability class (AVI)",
                                 note="Van Stempvoort, Ewert & Wassenaar (1993)."))
     styles.append(GridStyle(outputs.AQUITARD_THICKNESS_SD, UNCERTAINTY,
                             "Uncertainty of the clay thickness (one standard deviation)", "m",
@@ -214,7 +212,7 @@ def grid_styles(files: set[str] | list[str], summary: dict[str, Any],
                   short="Clay removed by hazards", note="Darker = more clay removed."),
     ]
     styles = [s for s in styles if s.file in files]
-    known = {s.file for s in styles} | {outputs.P_THIN, P_THIN_FILE}
+    known = {s.file for s in styles} | {outputs.P_THIN, outputs.P_THIN_PROB}
     for f in sorted(files):
         if f.endswith(".tif") and f not in known:
             desc, units = (descriptions or {}).get(f, ("", ""))
@@ -356,8 +354,7 @@ def unit_colour(colours: dict[str, str], code: str) -> str:
 
 
 __all__ = [
-    "AVI_CLASS_FILE", "GROUPS", "HOLE_STYLES", "P_THIN_FILE", "P_WINDOW_FILE",
-    "POSSIBLE_DASH", "ZONE_COLOURS", "ClassStyle", "GridStyle", "HoleStyle", "ZoneStyle",
-    "avi_classes", "grid_styles", "hole_category", "hole_category_of", "unit_colour",
-    "unit_colours", "zone_style",
+    "GROUPS", "HOLE_STYLES", "POSSIBLE_DASH", "ZONE_COLOURS", "ClassStyle", "GridStyle",
+    "HoleStyle", "ZoneStyle", "avi_classes", "grid_styles", "hole_category",
+    "hole_category_of", "unit_colour", "unit_colours", "zone_style",
 ]

@@ -20,10 +20,7 @@ from matplotlib.ticker import FuncFormatter
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.formatting import section
 from aquitardmap.outputs.presentation import (
-    AVI_CLASS_FILE,
     HOLE_STYLES,
-    P_THIN_FILE,
-    P_WINDOW_FILE,
     ZONE_COLOURS,
     ZONE_DASHES,
     ZONE_OTHER_COLOUR,
@@ -41,9 +38,9 @@ MAX_MAP_CELLS = 1_500_000
 #: The maps, in order: (file of the grid, or a list of alternatives).
 MAP_FILES: tuple[tuple[str, ...], ...] = (
     (outputs.AQUITARD_THICKNESS,),
-    (P_THIN_FILE, outputs.P_THIN),
+    (outputs.P_THIN_PROB, outputs.P_THIN),
     (outputs.TRAVEL_TIME,),
-    (AVI_CLASS_FILE,),
+    (outputs.AVI_CLASS,),
 )
 
 
@@ -179,8 +176,8 @@ def map_pages(pages: Pages, run_dir: Path) -> None:
             if f in styles:
                 chosen.append(styles[f])
                 break
-    if P_WINDOW_FILE in styles:
-        chosen.insert(2, styles[P_WINDOW_FILE])
+    if outputs.P_WINDOW_PROB in styles:
+        chosen.insert(2, styles[outputs.P_WINDOW_PROB])
     crs = project_crs(run_dir, s)
     zones = read_layer(run_dir / outputs.ZONES, outputs.ZONES_LAYER, crs, crs)
     holes = read_layer(run_dir / outputs.BOREHOLES, outputs.BOREHOLES_LAYER, crs, crs)

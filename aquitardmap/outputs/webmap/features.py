@@ -199,11 +199,6 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str],
 
 # --------------------------------------------------------------------------- boreholes
 
-_HOLE_COLUMNS = ["borehole_id", "ground_elev_m", "total_depth_m", "reached_aquifer",
-                 "bottom_unit", "aquitard_thickness_m", "status_aquitard", "proves_window",
-                 "proves_thin", "qa_flags", "excluded", "log", "dem_misfit_m",
-                 "depth_to_aquifer_m"]
-
 
 def _thickness_text(status: str, thickness_m: float | None, category: str) -> str:
     if category == "window" and (thickness_m is None or thickness_m == 0):
