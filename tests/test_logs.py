@@ -17,14 +17,8 @@ import pytest
 from aquitardmap.config.project import Project, read_project
 from aquitardmap.errors import InputError, Problem
 from aquitardmap.evaluation.demo_stack import DEMO_STACK_TOML
-from aquitardmap.inputs.logs import (
-    FULL,
-    LOWER_BOUND,
-    UNKNOWN,
-    Boreholes,
-    column_table,
-    read_boreholes,
-)
+from aquitardmap.inputs.columns import FULL, LOWER_BOUND, UNKNOWN, column_table
+from aquitardmap.inputs.logs import Boreholes, read_boreholes
 
 # The stack of the demo project.
 PROJECT_TOML = """

@@ -14,7 +14,8 @@ from test_logs import PROJECT_TOML
 from aquitardmap.config.materials import MaterialRule, match_material
 from aquitardmap.config.project import read_project
 from aquitardmap.errors import InputError
-from aquitardmap.inputs.logs import column_table, read_boreholes
+from aquitardmap.inputs.columns import column_table
+from aquitardmap.inputs.logs import read_boreholes
 
 RULES = """
 [[materials]]

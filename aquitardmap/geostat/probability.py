@@ -138,7 +138,7 @@ def censored_data(x_m: np.ndarray, y_m: np.ndarray, thickness_m: np.ndarray,
     """Sort borehole thicknesses into equality and inequality data of the latent thickness.
 
     ``status`` is ``"full"``, ``"lower_bound"`` or ``"unknown"`` per hole (as in
-    :func:`aquitardmap.inputs.logs.column_table`). Full holes at one location are averaged; an
+    :func:`aquitardmap.inputs.columns.column_table`). Full holes at one location are averaged; an
     inequality at the location of an equality datum is dropped (the full thickness says
     more), and of several inequalities at one location the tightest is kept. ``drift`` (an
     external drift per hole, e.g. ground elevation) is carried along, averaged where holes

@@ -401,7 +401,7 @@ def krige_column(columns: pd.DataFrame, unit_codes: list[str], aquitard_codes: l
     """Krige the total aquitard and every column unit from a borehole column table
     (``context``: see :func:`krige_thickness`).
 
-    ``columns`` is :func:`aquitardmap.inputs.logs.column_table` output (excluded holes already
+    ``columns`` is :func:`aquitardmap.inputs.columns.column_table` output (excluded holes already
     removed; its index holds the borehole ids). Returns surfaces keyed ``"aquitard"`` and
     each unit code, each cross-validated; the aquitard unit surfaces are scaled to add up to
     the total.

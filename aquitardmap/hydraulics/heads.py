@@ -35,7 +35,7 @@ from aquitardmap.geostat.variogram import (
     fit_variogram,
 )
 from aquitardmap.grid import Grid, resample_to_grid
-from aquitardmap.inputs.logs import read_point_values
+from aquitardmap.inputs.tables import read_point_values
 
 HEAD_KEYS = ("water_table", "aquifer_head")
 GRID_SUFFIXES = (".tif", ".tiff")

@@ -23,7 +23,7 @@ from aquitardmap.units import M2_PER_KM2
 
 
 def piercing_mask(columns: pd.DataFrame) -> pd.Series:
-    """Whether each borehole of a :func:`aquitardmap.inputs.logs.column_table` pierces the
+    """Whether each borehole of a :func:`aquitardmap.inputs.columns.column_table` pierces the
     aquitard (reached the aquifer through some clay, not excluded)."""
     return ((columns["status_aquitard"] == "full") & columns["reached_aquifer"].astype(bool)
             & (columns["aquitard_thickness_m"] > 0) & ~columns["excluded"].astype(bool))

@@ -30,7 +30,7 @@ from pathlib import Path
 
 from aquitardmap.errors import ProblemList
 from aquitardmap.files import file_sha256
-from aquitardmap.inputs.logs import RawTable, read_csv_cells
+from aquitardmap.inputs.tables import RawTable, read_csv_cells
 
 KINDS = ("collars", "intervals", "samples")
 _HEADER_HINTS = {

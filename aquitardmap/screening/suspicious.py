@@ -21,7 +21,7 @@ import pandas as pd
 
 from aquitardmap.config.settings import QASettings
 from aquitardmap.grid import Grid
-from aquitardmap.inputs.logs import FLAG_ORDER
+from aquitardmap.inputs.columns import FLAG_ORDER
 
 #: Columns added to the borehole table.
 COLUMNS = ("cv_error_m", "cv_standardised_error", "suspicious", "suspicious_reasons")
