@@ -31,20 +31,16 @@ the new version wins and the stored one moves to history. :func:`undo_batch` rem
 batch's boreholes and restores the versions it replaced.
 
 Once a store exists, :func:`project_boreholes` (used by the pipeline) reads the boreholes
-from it instead of the project's CSV files.
+from it instead of the project's CSV files. The file's schema and the row operations the
+batches are made of are :mod:`aquitardmap.inputs.storefile`.
 """
 
 from __future__ import annotations
 
 import math
-import os
 import sqlite3
-import struct
-import tempfile
-from collections.abc import Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
 from pathlib import Path
 
 import pandas as pd
@@ -52,27 +48,31 @@ import pandas as pd
 from aquitardmap.config.project import Project
 from aquitardmap.config.settings import DEFAULT_FILES
 from aquitardmap.errors import InputError, Problem, ProblemList
-from aquitardmap.files import file_sha256
+from aquitardmap.files import file_sha256, replace_atomically
 from aquitardmap.inputs.logfiles import LogTables, SourceFile, read_log_files
 from aquitardmap.inputs.logs import (
+    COLLAR_COLUMNS,
     SAMPLE_VALUES,
     Boreholes,
     boreholes_from_frames,
     read_boreholes,
     validate_logs,
 )
+from aquitardmap.inputs.storefile import (
+    carry_samples,
+    connect,
+    create_schema,
+    insert_boreholes,
+    move_to_history,
+    new_batch,
+    now_utc,
+    restore_replaced,
+    stored_srs_id,
+    update_extent,
+    write_transaction,
+)
 
 STORE_FILE = DEFAULT_FILES["store"]
-_GPKG_APPLICATION_ID = 0x47504B47  # "GPKG" (GeoPackage 1.2, clause 1.1.1.1.1)
-_GPKG_USER_VERSION = 10200
-_CUSTOM_SRS_ID = 100000
-
-_COLLAR_COLS = ("borehole_id", "x", "y", "ground_elev_m", "total_depth_m")
-_INTERVAL_COLS = ("borehole_id", "from_m", "to_m", "unit", "material")
-_SAMPLE_COLS = ("borehole_id", "depth_m", *SAMPLE_VALUES)
-_META = ("batch_id", "source", "line")
-_TABLE_COLS = {"collars": _COLLAR_COLS, "intervals": _INTERVAL_COLS, "samples": _SAMPLE_COLS}
-_TEXT = {"borehole_id", "unit", "material", "source"}
 
 
 # --------------------------------------------------------------------------------------------
@@ -119,7 +119,7 @@ class AddResult:
 
 
 # --------------------------------------------------------------------------------------------
-# GeoPackage plumbing
+# The store of a project
 
 
 def store_path(project: Project) -> Path:
@@ -130,163 +130,6 @@ def store_path(project: Project) -> Path:
 def has_store(project: Project) -> bool:
     """True when the project's store file exists."""
     return store_path(project).is_file()
-
-
-def _point_blob(x: float, y: float, srs_id: int) -> bytes:
-    """GeoPackage geometry blob of a 2-D point (GeoPackage 1.2, clause 2.1.3): header
-    ``GP``, version 0, flags (little-endian, no envelope), srs_id; then WKB (ISO 13249)."""
-    return b"GP" + struct.pack("<BBi", 0, 0b00000001, srs_id) + struct.pack("<BIdd", 1, 1, x, y)
-
-
-def _srs(project: Project) -> tuple[int, str, int, str]:
-    """(srs_id, organization, organization_coordsys_id, WKT) of the project CRS."""
-    code = project.crs.to_epsg()
-    wkt = project.crs.to_wkt("WKT1_GDAL")
-    if code is not None:
-        return code, "EPSG", code, wkt
-    return _CUSTOM_SRS_ID, "NONE", _CUSTOM_SRS_ID, wkt
-
-
-def _script(con: sqlite3.Connection, sql: str) -> None:
-    """Run ``;``-separated statements inside the open transaction (``executescript`` would
-    commit it first)."""
-    for stmt in sql.split(";"):
-        if stmt.strip():
-            con.execute(stmt)
-
-
-def _create_schema(con: sqlite3.Connection, project: Project) -> int:
-    srs_id, org, org_id, wkt = _srs(project)
-    con.execute(f"PRAGMA application_id = {_GPKG_APPLICATION_ID}")
-    con.execute(f"PRAGMA user_version = {_GPKG_USER_VERSION}")
-    _script(con, """
-        CREATE TABLE gpkg_spatial_ref_sys (
-          srs_name TEXT NOT NULL, srs_id INTEGER NOT NULL PRIMARY KEY,
-          organization TEXT NOT NULL, organization_coordsys_id INTEGER NOT NULL,
-          definition TEXT NOT NULL, description TEXT);
-        CREATE TABLE gpkg_contents (
-          table_name TEXT NOT NULL PRIMARY KEY, data_type TEXT NOT NULL,
-          identifier TEXT UNIQUE, description TEXT DEFAULT '',
-          last_change DATETIME NOT NULL DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')),
-          min_x DOUBLE, min_y DOUBLE, max_x DOUBLE, max_y DOUBLE, srs_id INTEGER,
-          CONSTRAINT fk_gc_r_srs_id FOREIGN KEY (srs_id)
-            REFERENCES gpkg_spatial_ref_sys(srs_id));
-        CREATE TABLE gpkg_geometry_columns (
-          table_name TEXT NOT NULL, column_name TEXT NOT NULL,
-          geometry_type_name TEXT NOT NULL, srs_id INTEGER NOT NULL,
-          z TINYINT NOT NULL, m TINYINT NOT NULL,
-          CONSTRAINT pk_geom_cols PRIMARY KEY (table_name, column_name),
-          CONSTRAINT uk_gc_table_name UNIQUE (table_name),
-          CONSTRAINT fk_gc_tn FOREIGN KEY (table_name) REFERENCES gpkg_contents(table_name),
-          CONSTRAINT fk_gc_srs FOREIGN KEY (srs_id) REFERENCES gpkg_spatial_ref_sys (srs_id));
-    """)
-    refs = [
-        ("Undefined cartesian SRS", -1, "NONE", -1, "undefined",
-         "undefined cartesian coordinate reference system"),
-        ("Undefined geographic SRS", 0, "NONE", 0, "undefined",
-         "undefined geographic coordinate reference system"),
-        ("WGS 84 geodetic", 4326, "EPSG", 4326,
-         'GEOGCS["WGS 84",DATUM["WGS_1984",SPHEROID["WGS 84",6378137,298.257223563,'
-         'AUTHORITY["EPSG","7030"]],AUTHORITY["EPSG","6326"]],PRIMEM["Greenwich",0,'
-         'AUTHORITY["EPSG","8901"]],UNIT["degree",0.0174532925199433,AUTHORITY["EPSG",'
-         '"9122"]],AXIS["Latitude",NORTH],AXIS["Longitude",EAST],AUTHORITY["EPSG","4326"]]',
-         "longitude/latitude coordinates in decimal degrees on the WGS 84 spheroid"),
-    ]
-    if srs_id not in (-1, 0, 4326):
-        refs.append((project.crs.name, srs_id, org, org_id, wkt, "project CRS"))
-    con.executemany("INSERT INTO gpkg_spatial_ref_sys VALUES (?,?,?,?,?,?)", refs)
-
-    meta = "batch_id INTEGER NOT NULL, source TEXT, line INTEGER"
-    _script(con, f"""
-        CREATE TABLE collars (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, geom POINT,
-          borehole_id TEXT NOT NULL UNIQUE, x DOUBLE NOT NULL, y DOUBLE NOT NULL,
-          ground_elev_m DOUBLE NOT NULL, total_depth_m DOUBLE NOT NULL, {meta});
-        CREATE TABLE intervals (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, borehole_id TEXT NOT NULL,
-          from_m DOUBLE NOT NULL, to_m DOUBLE NOT NULL, unit TEXT NOT NULL, material TEXT,
-          {meta});
-        CREATE INDEX intervals_borehole ON intervals (borehole_id);
-        CREATE TABLE samples (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, borehole_id TEXT NOT NULL,
-          depth_m DOUBLE NOT NULL, d10_mm DOUBLE, d60_mm DOUBLE, porosity DOUBLE,
-          k_lab_m_s DOUBLE, {meta});
-        CREATE INDEX samples_borehole ON samples (borehole_id);
-        CREATE TABLE batches (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, added_utc TEXT NOT NULL, note TEXT,
-          files TEXT, n_added INTEGER, n_replaced INTEGER, n_unchanged INTEGER,
-          n_intervals INTEGER, n_samples INTEGER, undone_utc TEXT);
-        CREATE TABLE batch_files (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, batch_id INTEGER NOT NULL,
-          file TEXT NOT NULL, sha256 TEXT NOT NULL, tables TEXT);
-        CREATE TABLE history_collars (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, borehole_id TEXT NOT NULL, x DOUBLE,
-          y DOUBLE, ground_elev_m DOUBLE, total_depth_m DOUBLE, {meta},
-          reason TEXT NOT NULL, by_batch INTEGER NOT NULL);
-        CREATE TABLE history_intervals (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, borehole_id TEXT NOT NULL, from_m DOUBLE,
-          to_m DOUBLE, unit TEXT, material TEXT, {meta},
-          reason TEXT NOT NULL, by_batch INTEGER NOT NULL);
-        CREATE TABLE history_samples (
-          fid INTEGER PRIMARY KEY AUTOINCREMENT, borehole_id TEXT NOT NULL, depth_m DOUBLE,
-          d10_mm DOUBLE, d60_mm DOUBLE, porosity DOUBLE, k_lab_m_s DOUBLE, {meta},
-          reason TEXT NOT NULL, by_batch INTEGER NOT NULL);
-    """)
-    described = {
-        "collars": "borehole collars (live)", "intervals": "logged intervals (live)",
-        "samples": "samples (live)", "batches": "batches of added logs",
-        "batch_files": "files of each batch with SHA-256",
-        "history_collars": "collars replaced or undone",
-        "history_intervals": "intervals replaced or undone",
-        "history_samples": "samples replaced or undone",
-    }
-    for table, desc in described.items():
-        kind = "features" if table == "collars" else "attributes"
-        con.execute("INSERT INTO gpkg_contents (table_name, data_type, identifier, "
-                    "description, srs_id) VALUES (?,?,?,?,?)",
-                    (table, kind, table, desc, srs_id if kind == "features" else None))
-    con.execute("INSERT INTO gpkg_geometry_columns VALUES ('collars','geom','POINT',?,0,0)",
-                (srs_id,))
-    return srs_id
-
-
-def _connect(path: Path) -> sqlite3.Connection:
-    con = sqlite3.connect(path, isolation_level=None, timeout=60.0)
-    con.execute("PRAGMA synchronous = FULL")
-    return con
-
-
-@contextmanager
-def _write_transaction(con: sqlite3.Connection) -> Iterator[None]:
-    """``BEGIN IMMEDIATE`` (the write lock at once, so two writers queue rather than fail
-    half-way), ``COMMIT`` when the block ends, ``ROLLBACK`` on any exception. A block may
-    end the transaction itself (``ROLLBACK`` and return: nothing to write)."""
-    con.execute("BEGIN IMMEDIATE")
-    try:
-        yield
-    except BaseException:
-        if con.in_transaction:
-            con.execute("ROLLBACK")
-        raise
-    if con.in_transaction:
-        con.execute("COMMIT")
-
-
-def _srs_id(con: sqlite3.Connection) -> int:
-    return int(con.execute("SELECT srs_id FROM gpkg_geometry_columns WHERE table_name = "
-                           "'collars'").fetchone()[0])
-
-
-def _now() -> str:
-    return datetime.now(UTC).isoformat(timespec="seconds")
-
-
-def _clean(v: object) -> object:
-    if isinstance(v, float) and math.isnan(v):
-        return None
-    if v is None or (not isinstance(v, str) and pd.isna(v)):
-        return None
-    return v.item() if hasattr(v, "item") else v
 
 
 # --------------------------------------------------------------------------------------------
@@ -305,16 +148,19 @@ class _Hole:
     batch_id: int = 0
 
     def same_data(self, other: _Hole) -> bool:
-        return (_eq(self.collar, other.collar) and len(self.intervals) == len(other.intervals)
-                and all(_eq(a, b) for a, b in zip(self.intervals, other.intervals, strict=True))
-                and len(self.samples) == len(other.samples)
-                and all(_eq(a, b) for a, b in zip(self.samples, other.samples, strict=True)))
+        return (_eq(self.collar, other.collar) and _same_rows(self.intervals, other.intervals)
+                and _same_rows(self.samples, other.samples))
 
 
 def _eq(a: tuple, b: tuple) -> bool:
     def norm(v: object) -> object:
         return None if v is None or (isinstance(v, float) and math.isnan(v)) else v
     return all(norm(x) == norm(y) for x, y in zip(a, b, strict=True))
+
+
+def _same_rows(a: tuple, b: tuple) -> bool:
+    """Two versions of a hole's intervals (or samples) hold the same rows (blank = NaN)."""
+    return len(a) == len(b) and all(_eq(x, y) for x, y in zip(a, b, strict=True))
 
 
 def _fmt(v: object) -> str:
@@ -331,15 +177,13 @@ def _log_text(ivs: tuple) -> str:
 def _difference(old: _Hole, new: _Hole) -> str:
     """Plain text of what differs, with both versions."""
     parts = []
-    for name, a, b in zip(_COLLAR_COLS[1:], old.collar, new.collar, strict=True):
+    for name, a, b in zip(COLLAR_COLUMNS[1:], old.collar, new.collar, strict=True):
         if not _eq((a,), (b,)):
             parts.append(f"{name} stored {_fmt(a)}, new {_fmt(b)}")
-    if not (len(old.intervals) == len(new.intervals) and all(
-            _eq(a, b) for a, b in zip(old.intervals, new.intervals, strict=True))):
+    if not _same_rows(old.intervals, new.intervals):
         parts.append(f"log stored [{_log_text(old.intervals)}], new "
                      f"[{_log_text(new.intervals)}]")
-    if not (len(old.samples) == len(new.samples) and all(
-            _eq(a, b) for a, b in zip(old.samples, new.samples, strict=True))):
+    if not _same_rows(old.samples, new.samples):
         def st(s: tuple) -> str:
             return "; ".join(" ".join(_fmt(v) for v in r) for r in s) or "none"
         parts.append(f"samples (depth_m {' '.join(SAMPLE_VALUES)}) stored [{st(old.samples)}]"
@@ -401,86 +245,7 @@ def _stored_holes(con: sqlite3.Connection, ids: Iterable[str]) -> dict[str, _Hol
 
 
 # --------------------------------------------------------------------------------------------
-# Writing
-
-
-def _insert_boreholes(con: sqlite3.Connection, b: Boreholes, ids: set[str], batch_id: int,
-                      srs_id: int) -> tuple[int, int]:
-    """Insert the collars, intervals and samples of ``ids``; returns (n_intervals,
-    n_samples)."""
-    rows = []
-    for bid, c in b.collars.iterrows():
-        if bid in ids:
-            x, y = float(c["x"]), float(c["y"])
-            rows.append((_point_blob(x, y, srs_id), bid, x, y, float(c["ground_elev_m"]),
-                         float(c["total_depth_m"]), batch_id, str(c["source"]),
-                         int(c["line"])))
-    con.executemany("INSERT INTO collars (geom, borehole_id, x, y, ground_elev_m, "
-                    "total_depth_m, batch_id, source, line) VALUES (?,?,?,?,?,?,?,?,?)", rows)
-    iv = b.intervals[b.intervals["borehole_id"].isin(ids)]
-    con.executemany(
-        "INSERT INTO intervals (borehole_id, from_m, to_m, unit, material, batch_id, source, "
-        "line) VALUES (?,?,?,?,?,?,?,?)",
-        [(r.borehole_id, float(r.from_m), float(r.to_m), r.unit, _clean(r.material),
-          batch_id, r.source, int(r.line)) for r in iv.itertuples(index=False)])
-    sm = b.samples[b.samples["borehole_id"].isin(ids)]
-    con.executemany(
-        f"INSERT INTO samples (borehole_id, depth_m, {', '.join(SAMPLE_VALUES)}, batch_id, "
-        "source, line) VALUES (?,?,?,?,?,?,?,?,?)",
-        [(r["borehole_id"], float(r["depth_m"]), *(_clean(float(r[k])) for k in SAMPLE_VALUES),
-          batch_id, r["source"], int(r["line"])) for r in sm.to_dict("records")])
-    return len(iv), len(sm)
-
-
-def _to_history(con: sqlite3.Connection, ids: Sequence[str], reason: str, by_batch: int,
-                where: str = "borehole_id IN ({q})", params: Sequence = ()) -> None:
-    """Move live records (selected by ``where``) into the history tables."""
-    for table, cols in _TABLE_COLS.items():
-        names = ", ".join((*cols, *_META))
-        for chunk in range(0, max(len(ids), 1), 500):
-            part = list(ids[chunk:chunk + 500])
-            q = ",".join("?" * len(part))
-            cond = where.format(q=q)
-            args = [*part, *params]
-            con.execute(f"INSERT INTO history_{table} ({names}, reason, by_batch) "
-                        f"SELECT {names}, ?, ? FROM {table} WHERE {cond}",
-                        [reason, by_batch, *args])
-            con.execute(f"DELETE FROM {table} WHERE {cond}", args)
-            if not ids:
-                break
-
-
-def _carry_samples(con: sqlite3.Connection, ids: Sequence[str], batch_id: int) -> int:
-    """Copy the samples of replaced holes back into the live table under ``batch_id`` (their
-    history rows stay, so undoing the batch restores the old record whole)."""
-    names = ", ".join(_SAMPLE_COLS)
-    n = 0
-    for chunk in range(0, len(ids), 500):
-        part = list(ids[chunk:chunk + 500])
-        q = ",".join("?" * len(part))
-        cur = con.execute(f"INSERT INTO samples ({names}, batch_id, source, line) SELECT "
-                          f"{names}, ?, source, line FROM history_samples WHERE by_batch = ? "
-                          f"AND reason = 'replaced' AND borehole_id IN ({q}) ORDER BY fid",
-                          [batch_id, batch_id, *part])
-        n += cur.rowcount
-    return n
-
-
-def _update_extent(con: sqlite3.Connection) -> None:
-    con.execute("UPDATE gpkg_contents SET min_x = (SELECT min(x) FROM collars), "
-                "min_y = (SELECT min(y) FROM collars), max_x = (SELECT max(x) FROM collars), "
-                "max_y = (SELECT max(y) FROM collars), "
-                "last_change = strftime('%Y-%m-%dT%H:%M:%fZ','now') "
-                "WHERE table_name = 'collars'")
-
-
-def _new_batch(con: sqlite3.Connection, note: str, sources: Sequence[SourceFile]) -> int:
-    cur = con.execute("INSERT INTO batches (added_utc, note, files) VALUES (?,?,?)",
-                      (_now(), note, ", ".join(s.path.name for s in sources)))
-    batch_id = int(cur.lastrowid)
-    con.executemany("INSERT INTO batch_files (batch_id, file, sha256, tables) VALUES (?,?,?,?)",
-                    [(batch_id, s.path.name, s.sha256, ",".join(s.tables)) for s in sources])
-    return batch_id
+# Batches
 
 
 def _project_sources(project: Project) -> list[SourceFile]:
@@ -507,30 +272,24 @@ def create_store(project: Project) -> Batch:
         raise FileExistsError(path)
     boreholes = read_boreholes(project)
     sources = _project_sources(project)
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.partial-", dir=path.parent)
-    os.close(fd)
-    tmp = Path(tmp_name)
-    try:
-        con = _connect(tmp)
+
+    def write(tmp: Path) -> None:
+        con = connect(tmp)
         try:
             con.execute("PRAGMA journal_mode = DELETE")
             con.execute("BEGIN")
-            srs_id = _create_schema(con, project)
-            batch_id = _new_batch(con, "initial import of the project's CSV files", sources)
+            srs_id = create_schema(con, project)
+            batch_id = new_batch(con, "initial import of the project's CSV files", sources)
             ids = set(boreholes.collars.index)
-            n_iv, n_s = _insert_boreholes(con, boreholes, ids, batch_id, srs_id)
+            n_iv, n_s = insert_boreholes(con, boreholes, ids, batch_id, srs_id)
             con.execute("UPDATE batches SET n_added=?, n_replaced=0, n_unchanged=0, "
                         "n_intervals=?, n_samples=? WHERE fid=?", (len(ids), n_iv, n_s, batch_id))
-            _update_extent(con)
+            update_extent(con)
             con.execute("COMMIT")
         finally:
             con.close()
-        with open(tmp, "rb") as f:
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+
+    replace_atomically(path, write, fsync=True)
     return history(project)[0]
 
 
@@ -584,7 +343,7 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
         initial = create_store(project)
     path = store_path(project)
     tables, problems = _read_batch(project, paths)
-    con = _connect(path)
+    con = connect(path)
     try:
         already = {s.path.name: _live_file_batches(con, s.sha256) for s in tables.sources}
         if tables.sources and not problems and all(already.values()):
@@ -597,7 +356,7 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
         t = tables.tables
         holes = _holes_from_boreholes(new)
 
-        with _write_transaction(con):
+        with write_transaction(con):
             stored = _stored_holes(con, [b for b in holes if b in stored_ids])
             conflicts = ProblemList()
             added, replaced, unchanged = [], [], []
@@ -627,17 +386,17 @@ def add_files(project: Project, paths: Sequence[str | Path], *, note: str = "",
                                  f"nothing to add: all {len(unchanged)} boreholes in these "
                                  "files are already stored with the same data", initial,
                                  new.warnings)
-            batch_id = _new_batch(con, note, tables.sources)
+            batch_id = new_batch(con, note, tables.sources)
             if replaced:
-                _to_history(con, replaced, "replaced", batch_id)
-            n_iv, n_s = _insert_boreholes(con, new, set(added) | set(replaced), batch_id,
-                                          _srs_id(con))
+                move_to_history(con, replaced, "replaced", batch_id)
+            n_iv, n_s = insert_boreholes(con, new, set(added) | set(replaced), batch_id,
+                                          stored_srs_id(con))
             if replaced and keep_samples:
-                n_s += _carry_samples(con, replaced, batch_id)
+                n_s += carry_samples(con, replaced, batch_id)
             con.execute("UPDATE batches SET n_added=?, n_replaced=?, n_unchanged=?, "
                         "n_intervals=?, n_samples=? WHERE fid=?",
                         (len(added), len(replaced), len(unchanged), n_iv, n_s, batch_id))
-            _update_extent(con)
+            update_extent(con)
     finally:
         con.close()
     batch = next(b for b in history(project) if b.batch_id == batch_id)
@@ -652,7 +411,7 @@ def history(project: Project) -> list[Batch]:
     path = store_path(project)
     if not path.is_file():
         return []
-    con = _connect(path)
+    con = connect(path)
     try:
         files: dict[int, list] = {}
         for bid, name, sha in con.execute("SELECT batch_id, file, sha256 FROM batch_files "
@@ -678,9 +437,9 @@ def undo_batch(project: Project, batch_id: int) -> str:
     path = store_path(project)
     if not path.is_file():
         raise InputError([Problem(path.name, 0, 0, "the project has no store yet")])
-    con = _connect(path)
+    con = connect(path)
     try:
-        with _write_transaction(con):
+        with write_transaction(con):
             row = con.execute("SELECT undone_utc FROM batches WHERE fid = ?",
                               (batch_id,)).fetchone()
             if row is None:
@@ -701,24 +460,10 @@ def undo_batch(project: Project, batch_id: int) -> str:
                                           "the later batch first")])
             ids = [r[0] for r in con.execute("SELECT borehole_id FROM collars WHERE batch_id=?",
                                              (batch_id,))]
-            _to_history(con, ids, "undone", batch_id)
-            restore = [r[0] for r in con.execute(
-                "SELECT borehole_id FROM history_collars WHERE by_batch = ? AND reason = "
-                "'replaced'", (batch_id,))]
-            srs_id = _srs_id(con)
-            for table, cols in _TABLE_COLS.items():
-                names = ", ".join((*cols, *_META))
-                con.execute(f"INSERT INTO {table} ({names}) SELECT {names} FROM "
-                            f"history_{table} WHERE by_batch = ? AND reason = 'replaced' "
-                            "ORDER BY fid", (batch_id,))
-                con.execute(f"DELETE FROM history_{table} WHERE by_batch = ? AND reason = "
-                            "'replaced'", (batch_id,))
-            for bid, x, y in con.execute("SELECT borehole_id, x, y FROM collars WHERE geom IS "
-                                         "NULL").fetchall():
-                con.execute("UPDATE collars SET geom = ? WHERE borehole_id = ?",
-                            (_point_blob(x, y, srs_id), bid))
-            con.execute("UPDATE batches SET undone_utc = ? WHERE fid = ?", (_now(), batch_id))
-            _update_extent(con)
+            move_to_history(con, ids, "undone", batch_id)
+            restore = restore_replaced(con, batch_id)
+            con.execute("UPDATE batches SET undone_utc = ? WHERE fid = ?", (now_utc(), batch_id))
+            update_extent(con)
     finally:
         con.close()
     return (f"batch {batch_id} undone: {len(ids)} borehole(s) removed, {len(restore)} "
@@ -732,7 +477,7 @@ def read_store(project: Project) -> Boreholes:
     record was read from when it was added.
     """
     path = store_path(project)
-    con = _connect(path)
+    con = connect(path)
     try:
         con.execute("BEGIN")  # one consistent snapshot of the three tables
         collars = pd.read_sql_query(
@@ -766,7 +511,7 @@ def project_boreholes(project: Project) -> Boreholes:
         b = read_store(project)
         notes = list(b.warnings)
         known = set()
-        con = _connect(store_path(project))
+        con = connect(store_path(project))
         try:
             known = {r[0] for r in con.execute(
                 "SELECT f.sha256 FROM batch_files f JOIN batches b ON b.fid = f.batch_id "
