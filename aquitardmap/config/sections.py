@@ -291,6 +291,8 @@ def read_hydraulics(doc: ConfigDocument, cfg: dict[str, Any]) -> HydraulicSettin
                                      "hydraulics", low=0, low_open=True, high=100.0),
         hazen_c=doc.number(hy, "hazen_c", d.hazen_c, "hydraulics", low=0, low_open=True,
                            high=1000.0),
+        # Terzaghi's C: 10.7e-3 for smooth grains, 6.1e-3 for coarse (irregular) grains
+        # (Vukovic & Soro 1992; Rosas et al. 2014; values *from memory*).
         terzaghi_c=doc.number(hy, "terzaghi_c", d.terzaghi_c, "hydraulics", low=6.1e-3,
                               high=10.7e-3),
         crust_depth_m=doc.number(hy, "crust_depth_m", d.crust_depth_m, "hydraulics",

@@ -59,9 +59,6 @@ SLICHTER_D10_RANGE_MM = (0.01, 5.0)
 #: *from memory*). Porosity must exceed 0.13, where the porosity function vanishes.
 TERZAGHI_D10_RANGE_MM = (0.063, 2.0)
 TERZAGHI_MIN_POROSITY = 0.13
-#: Terzaghi's coefficient: 10.7e-3 for smooth grains, 6.1e-3 for coarse (irregular) grains
-#: (Vukovic & Soro 1992; Rosas et al. 2014; values *from memory*).
-TERZAGHI_C_RANGE = (6.1e-3, 10.7e-3)
 
 #: Beyer's range (Vukovic & Soro 1992, *from memory*): 0.06 mm < D10 < 0.6 mm and
 #: 1 < Cu = D60/D10 < 20.
@@ -70,10 +67,6 @@ BEYER_CU_RANGE = (1.0, 20.0)
 
 #: Grain-size methods, in the order their columns appear in the per-sample table.
 GRAIN_SIZE_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer")
-
-#: The values ``k_source`` can take, per sample and per unit.
-SAMPLE_SOURCES = ("lab", *GRAIN_SIZE_METHODS, "")
-UNIT_SOURCES = ("lab", *GRAIN_SIZE_METHODS, "default")
 
 #: A lab K (m/s) at or above this in a unit whose role is ``aquitard`` gets a warning: it is
 #: above the range of clays and silty clays (about 1e-12 to 1e-9 m/s for unweathered
@@ -332,6 +325,26 @@ def _set(reasons: npt.NDArray[np.object_], mask: npt.NDArray[np.bool_], text: st
     reasons[where] = text
 
 
+def _porosity_reasons(r: npt.NDArray[np.object_], n: FloatArray, method: str) -> None:
+    _set(r, ~np.isfinite(n), f"porosity missing: {method} not computable")
+    _set(r, (n <= 0) | (n >= 1), f"porosity not between 0 and 1: {method} not computable")
+
+
+def _d10_reasons(r: npt.NDArray[np.object_], d10: FloatArray, d60: FloatArray,
+                 bounds: tuple[float, float], method: str) -> None:
+    lo, hi = bounds
+    _set(r, ~np.isfinite(d10), "D10 missing")
+    _set(r, d10 <= 0, "D10 not positive")
+    _set(r, d10 < lo, f"D10 below {lo:g} mm (too fine for {method})")
+    _set(r, d10 > hi, f"D10 above {hi:g} mm (too coarse for {method})")
+    _set(r, np.isfinite(d60) & (d60 < d10), "D60 smaller than D10 (grading inconsistent)")
+
+
+def _arrays(d10_mm: ArrayLike, *others: ArrayLike) -> list[FloatArray]:
+    d10 = np.asarray(d10_mm, dtype=float)
+    return [d10, *(np.broadcast_to(np.asarray(o, dtype=float), d10.shape) for o in others)]
+
+
 def hazen_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.object_]:
     """Whether each sample lies in Hazen's range; ``""`` when it does, else the reason.
 
@@ -346,16 +359,10 @@ def hazen_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.objec
     Returns:
         Array of ``str`` (object dtype), same shape: the first reason that applies.
     """
-    d10 = np.asarray(d10_mm, dtype=float)
-    d60 = np.broadcast_to(np.asarray(d60_mm, dtype=float), d10.shape)
-    lo, hi = HAZEN_D10_RANGE_MM
+    d10, d60 = _arrays(d10_mm, d60_mm)
     r = _reasons(d10.shape)
-    _set(r, ~np.isfinite(d10), "D10 missing")
-    _set(r, d10 <= 0, "D10 not positive")
-    _set(r, d10 < lo, f"D10 below {lo:g} mm (too fine for Hazen)")
-    _set(r, d10 > hi, f"D10 above {hi:g} mm (too coarse for Hazen)")
+    _d10_reasons(r, d10, d60, HAZEN_D10_RANGE_MM, "Hazen")
     _set(r, ~np.isfinite(d60), "D60 missing (uniformity cannot be checked)")
-    _set(r, d60 < d10, "D60 smaller than D10 (grading inconsistent)")
     with np.errstate(invalid="ignore", divide="ignore"):
         cu = d60 / d10
     _set(r, cu >= HAZEN_MAX_CU, f"Cu = D60/D10 of {HAZEN_MAX_CU:g} or more (not uniform)")
@@ -380,39 +387,16 @@ def kozeny_carman_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
     Returns:
         Array of ``str`` (object dtype), same shape: the first reason that applies.
     """
-    d10 = np.asarray(d10_mm, dtype=float)
-    d60 = np.broadcast_to(np.asarray(d60_mm, dtype=float), d10.shape)
-    n = np.broadcast_to(np.asarray(porosity, dtype=float), d10.shape)
+    d10, d60, n = _arrays(d10_mm, d60_mm, porosity)
     lo, hi = KOZENY_CARMAN_D10_RANGE_MM
     r = _reasons(d10.shape)
-    _set(r, ~np.isfinite(n), "porosity missing: Kozeny–Carman not computable")
-    _set(r, (n <= 0) | (n >= 1), "porosity not between 0 and 1: Kozeny–Carman not computable")
+    _porosity_reasons(r, n, "Kozeny–Carman")
     _set(r, ~np.isfinite(d10), "D10 missing")
     _set(r, d10 <= 0, "D10 not positive")
     _set(r, d10 < lo, f"D10 below {lo:g} mm: clay or fine silt")
     _set(r, d10 > hi, f"D10 above {hi:g} mm: gravel")
     _set(r, np.isfinite(d60) & (d60 < d10), "D60 smaller than D10 (grading inconsistent)")
     return r
-
-
-def _porosity_reasons(r: npt.NDArray[np.object_], n: FloatArray, method: str) -> None:
-    _set(r, ~np.isfinite(n), f"porosity missing: {method} not computable")
-    _set(r, (n <= 0) | (n >= 1), f"porosity not between 0 and 1: {method} not computable")
-
-
-def _d10_reasons(r: npt.NDArray[np.object_], d10: FloatArray, d60: FloatArray,
-                 bounds: tuple[float, float], method: str) -> None:
-    lo, hi = bounds
-    _set(r, ~np.isfinite(d10), "D10 missing")
-    _set(r, d10 <= 0, "D10 not positive")
-    _set(r, d10 < lo, f"D10 below {lo:g} mm (too fine for {method})")
-    _set(r, d10 > hi, f"D10 above {hi:g} mm (too coarse for {method})")
-    _set(r, np.isfinite(d60) & (d60 < d10), "D60 smaller than D10 (grading inconsistent)")
-
-
-def _arrays(d10_mm: ArrayLike, *others: ArrayLike) -> list[FloatArray]:
-    d10 = np.asarray(d10_mm, dtype=float)
-    return [d10, *(np.broadcast_to(np.asarray(o, dtype=float), d10.shape) for o in others)]
 
 
 def slichter_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
@@ -469,13 +453,12 @@ def _method_values(df: pd.DataFrame, settings: HydraulicSettings
     d60 = df["d60_mm"].to_numpy()
     por = df["porosity"].to_numpy()
     t = settings.groundwater_temp_c
-    terzaghi_c = getattr(settings, "terzaghi_c", 10.7e-3)
     return {
         "hazen": (hazen_k_m_s(d10, settings.hazen_c), hazen_validity(d10, d60)),
         "kozeny_carman": (kozeny_carman_k_m_s(d10, por, t),
                           kozeny_carman_validity(d10, d60, por)),
         "slichter": (slichter_k_m_s(d10, por, t), slichter_validity(d10, d60, por)),
-        "terzaghi": (terzaghi_k_m_s(d10, por, t, terzaghi_c),
+        "terzaghi": (terzaghi_k_m_s(d10, por, t, settings.terzaghi_c),
                      terzaghi_validity(d10, d60, por)),
         "beyer": (beyer_k_m_s(d10, d60, t), beyer_validity(d10, d60)),
     }
@@ -615,8 +598,7 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
                 note += f"; {_plural(len(rest), 'other sample')} not used (lab values first)"
         elif len(grain):
             used, source = grain["k_m_s"].to_numpy(), unit.k_method
-            note = f"geometric mean of {len(grain)} {method_name} value" \
-                   f"{'' if len(grain) == 1 else 's'}"
+            note = f"geometric mean of {_plural(len(grain), f'{method_name} value')}"
             if len(out_of_range):
                 note += (f"; {len(out_of_range)} of {len(rest)} grain-size samples not usable "
                          f"for {method_name} ({_top_reason(out_of_range, unit)})")
@@ -640,7 +622,7 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
         else:
             k, sd = float(unit.k_default_m_s), nan
             geo = lo = hi = nan
-        secondary = float(getattr(unit, "secondary_k_factor", 1.0))
+        secondary = float(unit.secondary_k_factor)
         row = {
             "unit": unit.code,
             "k_m_s": k,

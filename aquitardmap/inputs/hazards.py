@@ -34,7 +34,6 @@ from aquitardmap.errors import Problem, ProblemList
 from aquitardmap.grid import Grid
 
 HAZARD_KINDS = ("excavation", "pit", "landslide_scar", "other")
-HAZARD_COLUMNS = ("name", "kind", "removed_depth_m", "geometry")
 
 
 def _empty(crs: CRS) -> gpd.GeoDataFrame:
