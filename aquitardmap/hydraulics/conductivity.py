@@ -82,6 +82,7 @@ _METHOD_NAMES = {"hazen": "Hazen", "kozeny_carman": "Kozeny–Carman", "slichter
 
 FloatArray = npt.NDArray[np.float64]
 ArrayLike = npt.ArrayLike
+Reasons = npt.NDArray[np.object_]  # per sample: "" when in range, else why not
 
 
 def _check_temperature(temp_c: FloatArray) -> None:
@@ -315,22 +316,22 @@ def beyer_k_m_s(d10_mm: ArrayLike, d60_mm: ArrayLike, temp_c: ArrayLike) -> Floa
     return general_form_k_m_s(beta, d10, temp_c)
 
 
-def _reasons(shape: tuple[int, ...]) -> npt.NDArray[np.object_]:
+def _reasons(shape: tuple[int, ...]) -> Reasons:
     return np.full(shape, "", dtype=object)
 
 
-def _set(reasons: npt.NDArray[np.object_], mask: npt.NDArray[np.bool_], text: str) -> None:
+def _set(reasons: Reasons, mask: npt.NDArray[np.bool_], text: str) -> None:
     """Write ``text`` where ``mask`` holds and no earlier reason was written."""
     where = mask & (reasons == "")
     reasons[where] = text
 
 
-def _porosity_reasons(r: npt.NDArray[np.object_], n: FloatArray, method: str) -> None:
+def _porosity_reasons(r: Reasons, n: FloatArray, method: str) -> None:
     _set(r, ~np.isfinite(n), f"porosity missing: {method} not computable")
     _set(r, (n <= 0) | (n >= 1), f"porosity not between 0 and 1: {method} not computable")
 
 
-def _d10_reasons(r: npt.NDArray[np.object_], d10: FloatArray, d60: FloatArray,
+def _d10_reasons(r: Reasons, d10: FloatArray, d60: FloatArray,
                  bounds: tuple[float, float], method: str) -> None:
     lo, hi = bounds
     _set(r, ~np.isfinite(d10), "D10 missing")
@@ -345,7 +346,20 @@ def _arrays(d10_mm: ArrayLike, *others: ArrayLike) -> list[FloatArray]:
     return [d10, *(np.broadcast_to(np.asarray(o, dtype=float), d10.shape) for o in others)]
 
 
-def hazen_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.object_]:
+def _graded_reasons(d10_mm: ArrayLike, d60_mm: ArrayLike, bounds: tuple[float, float],
+                    method: str, why_d60: str) -> tuple[Reasons, FloatArray]:
+    """Reasons of a method that needs the uniformity: the D10 range and a known D60
+    (``why_d60`` says why); and Cu = D60/D10 for the method's own bound."""
+    d10, d60 = _arrays(d10_mm, d60_mm)
+    r = _reasons(d10.shape)
+    _d10_reasons(r, d10, d60, bounds, method)
+    _set(r, ~np.isfinite(d60), f"D60 missing ({why_d60})")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cu = d60 / d10
+    return r, cu
+
+
+def hazen_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> Reasons:
     """Whether each sample lies in Hazen's range; ``""`` when it does, else the reason.
 
     Range (*from memory*, see Freeze & Cherry 1979): clean uniform sand with
@@ -359,18 +373,13 @@ def hazen_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.objec
     Returns:
         Array of ``str`` (object dtype), same shape: the first reason that applies.
     """
-    d10, d60 = _arrays(d10_mm, d60_mm)
-    r = _reasons(d10.shape)
-    _d10_reasons(r, d10, d60, HAZEN_D10_RANGE_MM, "Hazen")
-    _set(r, ~np.isfinite(d60), "D60 missing (uniformity cannot be checked)")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        cu = d60 / d10
+    r, cu = _graded_reasons(d10_mm, d60_mm, HAZEN_D10_RANGE_MM, "Hazen",
+                            "uniformity cannot be checked")
     _set(r, cu >= HAZEN_MAX_CU, f"Cu = D60/D10 of {HAZEN_MAX_CU:g} or more (not uniform)")
     return r
 
 
-def kozeny_carman_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
-                           porosity: ArrayLike) -> npt.NDArray[np.object_]:
+def kozeny_carman_validity(d10_mm: ArrayLike, d60_mm: ArrayLike, porosity: ArrayLike) -> Reasons:
     """Whether each sample suits Kozeny–Carman with D10; ``""`` when it does, else why not.
 
     Refused: porosity missing or outside 0 < n < 1 (the equation cannot be computed);
@@ -399,8 +408,7 @@ def kozeny_carman_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
     return r
 
 
-def slichter_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
-                      porosity: ArrayLike) -> npt.NDArray[np.object_]:
+def slichter_validity(d10_mm: ArrayLike, d60_mm: ArrayLike, porosity: ArrayLike) -> Reasons:
     """Whether each sample lies in Slichter's range; ``""`` when it does, else the reason.
 
     Range: :data:`SLICHTER_D10_RANGE_MM` (Vukovic & Soro 1992, *from memory*); porosity
@@ -413,8 +421,7 @@ def slichter_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
     return r
 
 
-def terzaghi_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
-                      porosity: ArrayLike) -> npt.NDArray[np.object_]:
+def terzaghi_validity(d10_mm: ArrayLike, d60_mm: ArrayLike, porosity: ArrayLike) -> Reasons:
     """Whether each sample lies in Terzaghi's range; ``""`` when it does, else the reason.
 
     Range: sand-sized D10 (:data:`TERZAGHI_D10_RANGE_MM`) and porosity above 0.13, where the
@@ -429,25 +436,21 @@ def terzaghi_validity(d10_mm: ArrayLike, d60_mm: ArrayLike,
     return r
 
 
-def beyer_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> npt.NDArray[np.object_]:
+def beyer_validity(d10_mm: ArrayLike, d60_mm: ArrayLike) -> Reasons:
     """Whether each sample lies in Beyer's range; ``""`` when it does, else the reason.
 
     Range (Vukovic & Soro 1992, *from memory*): 0.06 mm <= D10 <= 0.6 mm and
     1 <= Cu = D60/D10 <= 20; D60 is required (the formula uses Cu).
     """
-    d10, d60 = _arrays(d10_mm, d60_mm)
-    r = _reasons(d10.shape)
-    _d10_reasons(r, d10, d60, BEYER_D10_RANGE_MM, "Beyer")
-    _set(r, ~np.isfinite(d60), "D60 missing (Beyer needs the uniformity coefficient)")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        cu = d60 / d10
-    lo, hi = BEYER_CU_RANGE
+    r, cu = _graded_reasons(d10_mm, d60_mm, BEYER_D10_RANGE_MM, "Beyer",
+                            "Beyer needs the uniformity coefficient")
+    hi = BEYER_CU_RANGE[1]
     _set(r, cu > hi, f"Cu = D60/D10 above {hi:g} (outside Beyer's range)")
     return r
 
 
 def _method_values(df: pd.DataFrame, settings: HydraulicSettings
-                   ) -> dict[str, tuple[FloatArray, npt.NDArray[np.object_]]]:
+                   ) -> dict[str, tuple[FloatArray, Reasons]]:
     """K (m/s) and validity reason of every grain-size method for every sample."""
     d10 = df["d10_mm"].to_numpy()
     d60 = df["d60_mm"].to_numpy()
@@ -584,8 +587,7 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
         rest = s[s["k_source"] != "lab"]
         method_name = _METHOD_NAMES.get(unit.k_method, "")
         if unit.k_method == "none":
-            out_of_range = rest.iloc[0:0]
-            grain = rest.iloc[0:0]
+            out_of_range = grain = rest.iloc[0:0]
         else:
             reasons = rest[f"{unit.k_method}_reason"]
             out_of_range = rest[reasons != ""]
@@ -613,15 +615,14 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
                 note = (f"{len(out_of_range)} of {len(rest)} grain-size samples not usable "
                         f"for {method_name} ({_top_reason(out_of_range, unit)}); "
                         "default used")
-        nan = float("nan")
         if len(used):
             logs = np.log10(used)
             k = float(10.0 ** logs.mean())
-            sd = float(np.std(logs, ddof=1)) if len(used) >= 2 else nan
+            sd = float(np.std(logs, ddof=1)) if len(used) >= 2 else np.nan
             geo, lo, hi = k, float(logs.min()), float(logs.max())
         else:
-            k, sd = float(unit.k_default_m_s), nan
-            geo = lo = hi = nan
+            k, sd = float(unit.k_default_m_s), np.nan
+            geo = lo = hi = np.nan
         secondary = float(unit.secondary_k_factor)
         row = {
             "unit": unit.code,
@@ -643,7 +644,7 @@ def unit_conductivity(samples: pd.DataFrame, units: Sequence[Unit],
             ok = s[(s[f"{method}_reason"] == "") & np.isfinite(s[f"k_{method}_m_s"])]
             vals = ok[f"k_{method}_m_s"].to_numpy(float)
             row[f"k_{method}_geomean_m_s"] = (float(10.0 ** np.log10(vals).mean())
-                                              if len(vals) else nan)
+                                              if len(vals) else np.nan)
             row[f"n_{method}_in_range"] = int(len(vals))
         rows.append(row)
     columns = ["unit", "k_m_s", "kv_m_s", "k_source", "n_samples", "n_used",
