@@ -28,12 +28,11 @@ from aquitardmap.config.settings import (
     ScreeningThresholds,
     Unit,
 )
-from aquitardmap.geostat.variogram import VariogramModel
+from aquitardmap.geostat.variogram import MODELS, VariogramModel
 
 ROLES = ("cover", "aquitard", "aquifer")
 K_METHODS = ("hazen", "kozeny_carman", "slichter", "terzaghi", "beyer", "none")
 CRUST_TREATMENTS = ("raise_k", "not_protective")
-VARIOGRAM_MODELS = ("spherical", "exponential", "gaussian")
 ANISOTROPY_CHOICES = ("none", "auto")
 #: [kriging] external_drift: the ground elevation (DEM) as an external drift of the total
 #: aquitard thickness behind the probability maps: never, always, or when cross-validation
@@ -195,17 +194,17 @@ def read_variograms(doc: ConfigDocument, cfg: Any,
                         f"{', '.join(VARIOGRAM_KEYS)}")
         before = len(doc.problems.problems)
         model = tbl.get("model")
-        if model not in VARIOGRAM_MODELS:
+        if model not in MODELS:
             doc.add(doc.locate("model", table) if "model" in tbl else where,
-                    f"[{table}] model must be one of {', '.join(VARIOGRAM_MODELS)}, got "
+                    f"[{table}] model must be one of {', '.join(MODELS)}, got "
                     f"{model!r}")
         for key in ("psill", "range_m"):
             if key not in tbl:
                 doc.add(where, f"[{table}] {key} is required")
         model2 = tbl.get("model2", "")
-        if model2 not in ("", *VARIOGRAM_MODELS):
+        if model2 not in ("", *MODELS):
             doc.add(doc.locate("model2", table), f"[{table}] model2 must be one of "
-                    f"{', '.join(VARIOGRAM_MODELS)}, got {model2!r}")
+                    f"{', '.join(MODELS)}, got {model2!r}")
         if model2 and not {"psill2", "range2_m"} <= set(tbl):
             doc.add(doc.locate("model2", table), f"[{table}] model2 needs psill2 and range2_m")
         vals = {
@@ -236,14 +235,14 @@ def read_kriging(doc: ConfigDocument, cfg: dict[str, Any],
     d = KrigingSettings()
     kr = doc.section(cfg, "kriging")
     model = kr.get("variogram_model", d.variogram_model)
-    if model not in VARIOGRAM_MODELS:
+    if model not in MODELS:
         doc.add(doc.locate("variogram_model", "kriging"),
-                f"[kriging] variogram_model must be one of {', '.join(VARIOGRAM_MODELS)}")
+                f"[kriging] variogram_model must be one of {', '.join(MODELS)}")
         model = d.variogram_model
     nested = kr.get("nested_model", d.nested_model)
-    if nested not in ("", *VARIOGRAM_MODELS):
+    if nested not in ("", *MODELS):
         doc.add(doc.locate("nested_model", "kriging"), "[kriging] nested_model must be \"\" "
-                f"(none) or one of {', '.join(VARIOGRAM_MODELS)}, got {nested!r}")
+                f"(none) or one of {', '.join(MODELS)}, got {nested!r}")
         nested = d.nested_model
     aniso = doc.choice(kr, "anisotropy", d.anisotropy, "kriging", ANISOTROPY_CHOICES)
     column_codes = []

@@ -54,6 +54,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.spatial import cKDTree
 
+from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.kriging import krige_points, merge_coincident
 from aquitardmap.geostat.variogram import (
@@ -358,11 +359,11 @@ class IndicatorSettings:
         max_neighbours: kriging neighbourhood.
     """
 
-    continuity_ratio: float = 4.0
+    continuity_ratio: float = ScreeningThresholds.continuity_ratio
     chain_max_length_m: float = 0.0
-    chain_corridor_m: float = 150.0
+    chain_corridor_m: float = ScreeningThresholds.chain_corridor_m
     chain_reach_m: float = 0.0
-    location_sd_m: float = 20.0
+    location_sd_m: float = ScreeningThresholds.location_sd_m
     hard_floor: float = 0.9
     max_neighbours: int = 32
 
