@@ -57,10 +57,10 @@ def test_density_matches_iapws_95(temp_c):
     assert water_density_kg_m3(temp_c) == pytest.approx(rho_ref, rel=5e-6)
 
 
-def test_water_properties_are_vectorised_and_match_primer_values():
+def test_water_properties_are_vectorised_and_match_handbook_values():
     mu = water_viscosity_pa_s(np.array([10.0, 20.0]))
     assert mu.shape == (2,)
-    # DOMAIN primer (from memory): about 1.31e-3 Pa·s at 10 °C and 1.00e-3 at 20 °C.
+    # Handbook values (from memory): about 1.31e-3 Pa·s at 10 °C and 1.00e-3 at 20 °C.
     assert mu[0] == pytest.approx(1.31e-3, abs=0.005e-3)
     assert mu[1] == pytest.approx(1.00e-3, abs=0.005e-3)
     # Pure water is densest near 3.98 °C (handbook value, from memory).
@@ -99,7 +99,7 @@ def test_hazen_is_nan_where_d10_missing_or_not_positive():
 
 
 def test_hazen_validity_bounds():
-    # Range from memory (DOMAIN primer, Freeze & Cherry 1979): 0.1 <= D10 <= 3 mm, Cu < 5.
+    # Range from memory (Freeze & Cherry 1979): 0.1 <= D10 <= 3 mm, Cu < 5.
     d10 = np.array([0.1, 0.09, 3.0, 3.1, 0.2, 0.2, 0.2, 0.2, np.nan])
     d60 = np.array([0.3, 0.3, 6.0, 6.0, 0.98, 1.0, np.nan, 0.1, 0.5])
     r = hazen_validity(d10, d60)
@@ -115,7 +115,7 @@ def test_hazen_validity_bounds():
 # --- Kozeny–Carman ----------------------------------------------------------------------
 
 def test_kozeny_carman_matches_worked_example():
-    # DOMAIN primer worked example (from memory, a common calculator example): n = 0.30,
+    # Worked example (from memory, a common calculator example): n = 0.30,
     # d = 0.1 mm, water at 10 °C -> K ≈ 2.3e-5 m/s. Quoted to two significant figures, so
     # the rounding interval is ±0.05e-5 (±2.2 %).
     k = float(kozeny_carman_k_m_s(0.1, 0.30, 10.0))

@@ -1,9 +1,8 @@
 """Tests for aquitardmap.inputs.logs: reading, validating and summarising borehole logs.
 
 Every table here is a small invented CSV written to a temporary folder; positions are in
-UTM-like metres. The censoring rules checked below are those of DOMAIN.md §3: a hole that
-stops inside a unit gives a lower bound on its thickness, never a thickness (common
-practice in aquitard mapping).
+UTM-like metres. The censoring rule checked below: a hole that stops inside a unit gives
+a lower bound on its thickness, never a thickness (common practice in aquitard mapping).
 """
 
 from __future__ import annotations

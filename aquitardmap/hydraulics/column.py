@@ -280,7 +280,7 @@ def crust_thickness_m(thickness_m: npt.ArrayLike, is_aquitard: npt.ArrayLike,
 
     The crust is the top ``crust_depth_m`` of the aquitard units, counted down from the top
     of the uppermost aquitard unit present at the cell (cover units do not count towards
-    its depth); DOMAIN primer §2. A clay thinner than the crust is all crust.
+    its depth; common practice). A clay thinner than the crust is all crust.
 
     Args:
         thickness_m: unit thicknesses (m), shape ``(n_units, ...)``, top to bottom.
@@ -304,8 +304,8 @@ def diffusion_time_yr(thickness_m: npt.ArrayLike, effective_diffusion_m2_s: floa
     """Diffusive time scale across a layer, ``t = B² / De`` (years).
 
     The characteristic time for a solute to diffuse across a thickness ``B`` with effective
-    diffusion coefficient ``De`` (e.g. Crank 1975, *The Mathematics of Diffusion*; DOMAIN
-    primer §4). An order-of-magnitude scale, not an arrival time.
+    diffusion coefficient ``De`` (e.g. Crank 1975, *The Mathematics of Diffusion*). An
+    order-of-magnitude scale, not an arrival time.
 
     Args:
         thickness_m: thickness B (m), any shape, >= 0 or NaN.

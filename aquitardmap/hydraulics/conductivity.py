@@ -38,8 +38,7 @@ STANDARD_GRAVITY_M_S2 = 9.80665
 WATER_TEMP_RANGE_C = (0.0, 40.0)
 
 #: Hazen's range: clean, uniform sands. D10 bounds (mm) and the largest uniformity
-#: coefficient Cu = D60/D10 (exclusive). *From memory* (see Freeze & Cherry 1979 and
-#: the project's DOMAIN primer).
+#: coefficient Cu = D60/D10 (exclusive). *From memory* (see Freeze & Cherry 1979).
 HAZEN_D10_RANGE_MM = (0.1, 3.0)
 HAZEN_MAX_CU = 5.0
 

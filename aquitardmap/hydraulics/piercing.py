@@ -1,7 +1,7 @@
 """Piercing boreholes: holes through the whole aquitard into the aquifer, and their density.
 
 Every well or hole that passes through the clay into the aquifer is a potential vertical
-conduit if it is poorly sealed (DOMAIN primer §2). A hole *pierces* the aquitard when its
+conduit if it is poorly sealed (common practice). A hole *pierces* the aquitard when its
 log reaches the aquifer (``status_aquitard == "full"``) and it went through some clay on
 the way (``aquitard_thickness_m > 0``): a hole in a window pierces nothing. Holes left out
 by ``[qa] exclude_boreholes`` are not counted.

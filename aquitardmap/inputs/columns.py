@@ -7,7 +7,7 @@ observed (``unknown``).
 
 A hole that stops inside a unit does not measure that unit's thickness: it gives a lower
 bound (a censored value), never a thickness. Treating it as a full thickness invents thin
-zones (DOMAIN.md §3).
+zones (common practice).
 """
 
 from __future__ import annotations
