@@ -256,6 +256,26 @@ BH-I,500900,6600195,39.0
     assert [p.line for p in collar_problems] == sorted(p.line for p in collar_problems)
 
 
+def test_absurd_total_depth_is_flagged_not_refused(tmp_path):
+    # A total depth of 1e9 m (a unit slip or a typo) is no hole anyone drilled: deeper than
+    # MAX_PLAUSIBLE_DEPTH_M (2,000 m; water wells and geotechnical holes through these clays
+    # stop within a few hundred metres, common practice) it is kept but warned about at its
+    # cell and flagged in the borehole table's qa_flags.
+    collars = COLLARS_OK.replace("BH-B,500300,6600150,40.5,12.0",
+                                 "BH-B,500300,6600150,40.5,1e9")
+    b = read_boreholes(make_project(tmp_path, collars=collars))
+    w = [p for p in b.warnings if "deeper than any water well" in p.message]
+    assert [(p.file, p.line, p.column) for p in w] == [("collars.csv", 3, 5)]
+    flags = column_table(b, make_project(tmp_path, collars=collars))["qa_flags"]
+    assert "total depth implausibly deep" in flags["BH-B"]
+    assert "implausibly deep" not in flags["BH-A"]
+    # the bound itself is credible: 2,000 m passes without a word
+    collars = COLLARS_OK.replace("BH-B,500300,6600150,40.5,12.0",
+                                 "BH-B,500300,6600150,40.5,2000")
+    b = read_boreholes(make_project(tmp_path, collars=collars))
+    assert not [p for p in b.warnings if "deeper than any water well" in p.message]
+
+
 def test_interval_problems_are_all_reported_at_their_cells(tmp_path):
     intervals = """borehole_id,from_m,to_m,unit
 BH-A,0,2.1,SAND

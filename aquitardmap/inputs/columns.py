@@ -18,7 +18,13 @@ from collections.abc import Sequence
 import pandas as pd
 
 from aquitardmap.config.project import Project
-from aquitardmap.inputs.logs import TOTAL_DEPTH_TOLERANCE_M, Boreholes, depth_text, log_gaps
+from aquitardmap.inputs.logs import (
+    MAX_PLAUSIBLE_DEPTH_M,
+    TOTAL_DEPTH_TOLERANCE_M,
+    Boreholes,
+    depth_text,
+    log_gaps,
+)
 
 #: Status of a thickness read from one hole.
 FULL = "full"
@@ -30,6 +36,7 @@ FLAG_ORDER = "unit order breaks the stack"
 FLAG_GAP = "gap in log"
 FLAG_NO_INTERVALS = "no intervals"
 FLAG_SHORT_LOG = "log ends above total depth"
+FLAG_DEEP = "total depth implausibly deep"
 
 
 def _combined_status(statuses: Sequence[str]) -> str:
@@ -89,7 +96,8 @@ def column_table(boreholes: Boreholes, project: Project) -> pd.DataFrame:
         unit logged below a unit that lies lower in the stack), ``"gap in log"`` (an
         undescribed depth range, including a log that starts below ground), ``"log ends
         above total depth"`` (by more than :data:`TOTAL_DEPTH_TOLERANCE_M`), ``"no
-        intervals"``.
+        intervals"``, ``"total depth implausibly deep"`` (deeper than
+        :data:`~aquitardmap.inputs.logs.MAX_PLAUSIBLE_DEPTH_M`).
     ``log``
         compact text of the log, e.g. ``"0.0–2.1 SAND; 2.1–14.0 UMC; 14.0–20.0 GRAV"``.
 
@@ -168,6 +176,8 @@ def column_table(boreholes: Boreholes, project: Project) -> pd.DataFrame:
             flags.append(FLAG_SHORT_LOG)
         if not ivs:
             flags.append(FLAG_NO_INTERVALS)
+        if collar["total_depth_m"] > MAX_PLAUSIBLE_DEPTH_M:
+            flags.append(FLAG_DEEP)
         row["qa_flags"] = "; ".join(flags)
         row["log"] = "; ".join(f"{depth_text(t)}–{depth_text(b)} {u}" for t, b, u, _ in ivs)
         rows.append(row)
@@ -191,5 +201,5 @@ def _column_names(project: Project) -> list[str]:
 
 
 
-__all__ = ["FLAG_GAP", "FLAG_NO_INTERVALS", "FLAG_ORDER", "FLAG_SHORT_LOG", "FULL",
+__all__ = ["FLAG_DEEP", "FLAG_GAP", "FLAG_NO_INTERVALS", "FLAG_ORDER", "FLAG_SHORT_LOG", "FULL",
            "LOWER_BOUND", "UNKNOWN", "column_table"]

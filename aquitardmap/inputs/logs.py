@@ -51,6 +51,11 @@ from aquitardmap.inputs.tables import (
 TOTAL_DEPTH_TOLERANCE_M = 0.01
 #: Two depths closer than this (m) are the same depth; it only absorbs float rounding.
 SAME_DEPTH_M = 1e-6
+#: Deepest credible ``total_depth_m`` (m) of a water well or geotechnical hole through
+#: post-glacial clays and the aquifer below them: such holes stop within a few hundred metres
+#: (common practice). A deeper collar is kept, with a warning (a unit slip, e.g. mm, or a
+#: typo) and the ``qa_flags`` reason :data:`aquitardmap.inputs.columns.FLAG_DEEP`.
+MAX_PLAUSIBLE_DEPTH_M = 2000.0
 
 #: Largest credible hydraulic conductivity (m/s): the top of the range of clean gravel in
 #: Freeze & Cherry (1979), Table 2.2 (*from memory*). A larger lab value is refused with a
@@ -163,6 +168,12 @@ def _read_collars(raw: RawTable, project: Project, problems: ProblemList,
             problems.add(path, line, table.columns["total_depth_m"],
                          f"total_depth_m must be > 0, got {td:g}")
             ok = False
+        elif td is not None and td > MAX_PLAUSIBLE_DEPTH_M:
+            warnings.add(path, line, table.columns["total_depth_m"],
+                         f"total_depth_m = {td:g} m is deeper than any water well or "
+                         f"geotechnical hole reaches (more than {MAX_PLAUSIBLE_DEPTH_M:g} m): "
+                         "a unit slip (mm or cm?) or a typo; used as given, and flagged in "
+                         "the borehole table's qa_flags")
         if metres and x is not None and y is not None and abs(x) <= 180 and abs(y) <= 90:
             problems.add(path, line, table.columns["x"],
                          f"coordinates ({x:g}, {y:g}) look like degrees of longitude and "
