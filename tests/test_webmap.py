@@ -39,6 +39,7 @@ from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.presentation import unit_colours
 from aquitardmap.outputs.webmap.assets import WebAssetsNotFound, find_web_assets
 from aquitardmap.outputs.webmap.build import write_map
+from aquitardmap.outputs.webmap.features import HoleData, hole_popup_html, hole_tooltip_html
 from aquitardmap.outputs.webmap.page import lonlat_to_xy_fit
 from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
 
@@ -144,8 +145,7 @@ def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:
     for raw in ("<img src=x onerror", "\\u003cimg src=x", "<script>alert(2)",
                 "\\u003cscript\\u003ealert(2)", "<b>exposed", "\\u003cb\\u003eexposed"):
         assert raw not in page
-    popups = [f["properties"].get("popup_html", "") for g in _geojson_payloads(page)
-              for f in g["features"]]
+    popups = [p["popup_html"] for p in _hole_props(page).values()]
     assert any("&lt;img src=x onerror=alert(1)&gt;" in p for p in popups)
     assert any("FILL &lt;b&gt;x&lt;/b&gt;" in p for p in popups)
     tips = [f["properties"].get("tooltip_html", "") for g in _geojson_payloads(page)
@@ -156,15 +156,20 @@ def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:
     assert "Thin clay 49" not in page
 
 
+def _hole_data(page: str) -> HoleData:
+    """The boreholes' compact data as the page carries it (decoded as JSON)."""
+    cfg = _config_value(page, "holes")
+    return HoleData(cfg["rows"], cfg["cats"], cfg["units"], {})
+
+
 def _hole_props(page: str) -> dict[str, dict]:
-    out = {}
-    for g in _geojson_payloads(page):
-        for f in g["features"]:
-            p = f["properties"]
-            if "popup_html" in p:
-                hole = re.search(r'<div class="aqm-popup-title">(.*?)</div>', p["popup_html"])
-                out[html.unescape(hole.group(1))] = p
-    return out
+    """Per hole id: category, and the popup and tooltip built from the page's data (the
+    browser builds the same text: test_webmap_browser.py compares them)."""
+    data = _hole_data(page)
+    return {html.unescape(r[3]): {"category": data.categories[r[2]][0],
+                                  "popup_html": hole_popup_html(r, data),
+                                  "tooltip_html": hole_tooltip_html(r, data)}
+            for r in data.records}
 
 
 def test_partial_hole_shows_a_lower_bound_not_a_thickness(tiny_run: tuple[Path, str]) -> None:
