@@ -132,7 +132,7 @@ var aqmHoles = (function () {
   function tooltipHtml(r, data) { return "<b>" + r[ID] + "</b>: " + data.cats[r[CAT]][3]; }
 
   function clusterIcon(cluster) {
-    var n = cluster.getChildCount(), size = n < 10 ? 26 : n < 100 ? 32 : n < 1000 ? 38 : 44;
+    var n = cluster.getChildCount(), size = n < 10 ? 22 : n < 100 ? 26 : n < 1000 ? 30 : 34;
     return L.divIcon({ html: "<span>" + n + "</span>", className: "aqm-cluster",
                        iconSize: L.point(size, size) });
   }
@@ -142,6 +142,8 @@ var aqmHoles = (function () {
     var proving = data.cats.map(function (c) { return c[0] === "window" || c[0] === "thin"; });
     var pane = map.getPane("aqmProving") || map.createPane("aqmProving");
     pane.style.zIndex = 640;
+    // Clustering needs a highest zoom; a map without tiles has none of its own.
+    if (map.options.maxZoom === undefined) { map.setMaxZoom(19); }
     var onTop = L.featureGroup(), clustered = null;
     if (typeof L.markerClusterGroup === "function") {
       clustered = L.markerClusterGroup({ iconCreateFunction: clusterIcon, chunkedLoading: true,

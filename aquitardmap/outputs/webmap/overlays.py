@@ -21,7 +21,6 @@ import math
 from dataclasses import dataclass
 
 import matplotlib
-import matplotlib.image
 import numpy as np
 from affine import Affine
 from matplotlib.ticker import MaxNLocator
@@ -191,10 +190,30 @@ def colourise_classes(values: np.ndarray, style: GridStyle) -> np.ndarray:
     return rgba
 
 
-def png_data_url(rgba: np.ndarray) -> str:
+def png_bytes(rgba: np.ndarray) -> bytes:
+    """PNG of an RGBA uint8 image, exactly its colours: a palette image (one byte a pixel,
+    alpha in the ``tRNS`` chunk, as the PNG specification allows) when it has at most 256
+    colours, as every coloured grid and the relief have; else full RGBA."""
+    from PIL import Image
+
+    rgba = np.ascontiguousarray(rgba, dtype=np.uint8)
+    flat = rgba.reshape(-1, 4).view(np.uint32).ravel()
+    colours, index = np.unique(flat, return_inverse=True)
     buf = io.BytesIO()
-    matplotlib.image.imsave(buf, rgba, format="png")
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+    if len(colours) <= 256:
+        table = colours.view(np.uint8).reshape(-1, 4)
+        img = Image.fromarray(index.reshape(rgba.shape[:2]).astype(np.uint8), mode="P")
+        img.putpalette(table[:, :3].ravel().tolist(), rawmode="RGB")
+        img.save(buf, format="PNG", optimize=True,
+                 transparency=bytes(table[:, 3].tolist()))
+    else:
+        Image.fromarray(rgba, mode="RGBA").save(buf, format="PNG", optimize=True)
+    return buf.getvalue()
+
+
+def png_data_url(rgba: np.ndarray) -> str:
+    """A ``data:`` URL of :func:`png_bytes`."""
+    return "data:image/png;base64," + base64.b64encode(png_bytes(rgba)).decode("ascii")
 
 
 def gradient_css(cmap_name: str, stops: int = 11) -> str:

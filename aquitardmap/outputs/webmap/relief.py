@@ -96,7 +96,7 @@ def relief_image(dem_path: str | Path, fallback_crs: CRS | None, max_cells: int
         band = src.read(1, out_shape=(height, width), masked=True,
                         resampling=Resampling.average if k > 1 else Resampling.nearest)
         z = np.ma.filled(band.astype(float), np.nan)
-        transform = src.transform * Affine.scale(src.width / width, src.height / height)
+        transform = src.transform @ Affine.scale(src.width / width, src.height / height)
     if transform.b != 0 or transform.d != 0:
         return None
     shade = hillshade_horn(z, *_cell_size_m(transform, crs, height))
