@@ -213,3 +213,64 @@ def set_probability(run_dir: Path, probability: dict | None) -> None:
     if probability is not None:
         summary["probability"] = probability
     path.write_text(json.dumps(summary), encoding="utf-8")
+
+
+#: Categories of the large run folder's holes: (status, reached, proves_window, proves_thin).
+_LARGE_KINDS = (("full", True, False, False), ("full", True, False, True),
+                ("full", True, True, False), ("lower_bound", False, False, False),
+                ("unknown", False, False, False))
+
+
+def build_large_run_folder(run_dir: Path, *, n_holes: int = 20_000, cells: int = 2_000,
+                           cell_m: float = 20.0, seed: int = 3) -> None:
+    """A regional run folder: ``cells`` x ``cells`` grids (4 M cells by default) of a
+    smooth invented thickness, 20,000 invented holes with logs and ~300 square zones;
+    no summary (the map reads what is there)."""
+    import rasterio
+    from affine import Affine
+    from rasterio.crs import CRS as RioCRS
+
+    run_dir.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(seed)
+    transform = Affine(cell_m, 0, X0, 0, -cell_m, Y0 + cells * cell_m)
+    t = np.linspace(0, 6 * np.pi, cells, dtype=np.float32)
+    thickness = (12 + 8 * np.sin(t)[None, :] * np.cos(0.7 * t)[:, None]).astype(np.float32)
+    profile = {"driver": "GTiff", "width": cells, "height": cells, "count": 1,
+               "dtype": "float32", "crs": RioCRS.from_epsg(32632), "transform": transform,
+               "nodata": np.nan, "tiled": True, "compress": "deflate"}
+    for name, values in {outputs.AQUITARD_THICKNESS: thickness,
+                         outputs.AQUITARD_THICKNESS_SD: 1 + thickness / 10,
+                         outputs.P_THIN: np.clip(1 - thickness / 10, 0, 1)}.items():
+        with rasterio.open(run_dir / name, "w", **profile) as dst:
+            dst.write(values, 1)
+    side = cells * cell_m
+    xy = rng.uniform(0, side, (n_holes, 2)) + (X0, Y0)
+    kinds = rng.choice(len(_LARGE_KINDS), n_holes, p=(0.6, 0.03, 0.02, 0.25, 0.1))
+    top = np.round(rng.uniform(1, 6, n_holes), 1)
+    clay = np.round(rng.uniform(0.5, 30, n_holes), 1)
+    rows = {k: [] for k in ("borehole_id", "ground_elev_m", "total_depth_m",
+                            "reached_aquifer", "aquitard_thickness_m", "status_aquitard",
+                            "depth_to_aquifer_m", "proves_window", "proves_thin", "qa_flags",
+                            "excluded", "log", "dem_misfit_m")}
+    for i in range(n_holes):
+        status, reached, window, thin = _LARGE_KINDS[kinds[i]]
+        c = 0.0 if window else clay[i]
+        bottom = top[i] + c
+        depth = round(bottom + (3.0 if reached else -min(c, 2.0) / 2), 1)
+        log = f"0.0–{top[i]:g} SAND" + (f"; {top[i]:g}–{bottom:.1f} UMC" if c else "") + \
+            (f"; {bottom:.1f}–{depth:g} GRAV" if reached else "")
+        for key, value in zip(rows, (f"RG-{i:05d}", round(float(rng.uniform(20, 60)), 1),
+                                     depth, reached, c, status,
+                                     bottom if reached else np.nan, window, thin, "", False,
+                                     log, round(float(rng.normal(0, 0.5)), 2)), strict=True):
+            rows[key].append(value)
+    gpd.GeoDataFrame(rows, geometry=gpd.points_from_xy(xy[:, 0], xy[:, 1]),
+                     crs=CRS_UTM32).to_file(run_dir / outputs.BOREHOLES,
+                                            layer=outputs.BOREHOLES_LAYER, driver="GPKG")
+    centres = rng.uniform(0, side - 400, (300, 2)) + (X0, Y0)
+    zones = gpd.GeoDataFrame(
+        {"kind": rng.choice(["window", "thin", "fast"], 300), "area_m2": 160_000.0,
+         "reason": "invented", "mean_thickness_m": 2.0, "min_thickness_m": 0.5,
+         "mean_sd_m": 1.0, "mean_p_thin": 0.7, "n_boreholes": 1},
+        geometry=[box(x, y, x + 400, y + 400) for x, y in centres], crs=CRS_UTM32)
+    zones.to_file(run_dir / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")

@@ -228,3 +228,30 @@ def test_indicator_settings_have_documented_defaults(tmp_path):
     s = read_project(_project(tmp_path, MINIMAL)).screening
     assert (s.probability_method, s.continuity_ratio, s.chain_corridor_m,
             s.location_sd_m) == ("indicator", 4.0, 150.0, 20.0)
+
+
+def test_map_background_is_read_and_defaults_to_the_kind_of_map(tmp_path):
+    from aquitardmap.outputs.webmap.build import resolve_background
+
+    assert read_project(DEMO).map.background == "relief"  # the demo: arbitrary coordinates
+    unset = read_project(_project(tmp_path, MINIMAL)).map.background
+    assert unset is None
+    # not set: tiles for a map that fetches its library, the DEM relief offline
+    assert resolve_background(unset, self_contained=False) == "tiles"
+    assert resolve_background(unset, self_contained=True) == "relief"
+    assert resolve_background("tiles", self_contained=True) == "relief"  # never fetches
+    assert resolve_background("none", self_contained=True) == "none"
+    for value in ("tiles", "none", "relief"):
+        p = read_project(_project(tmp_path, MINIMAL + f'\n[map]\nbackground = "{value}"\n'))
+        assert p.map.background == value
+
+
+@pytest.mark.parametrize("lines,line,words", [
+    ('[map]\nbackground = "satellite"\n', 19, "[map] background must be one of tiles, none, "
+     "relief, got 'satellite'"),
+    ("[map]\nbackground = 3\n", 19, "[map] background must be one of"),
+    ('[map]\nbackgroud = "none"\n', 19, "unknown key 'backgroud' in [map]"),
+])
+def test_map_background_is_checked_at_its_line(tmp_path, lines, line, words):
+    probs = _problems(tmp_path, MINIMAL + "\n" + lines)
+    assert any(p.line == line and words in p.message and p.column >= 1 for p in probs), probs

@@ -39,6 +39,7 @@ from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.presentation import unit_colours
 from aquitardmap.outputs.webmap.assets import WebAssetsNotFound, find_web_assets
 from aquitardmap.outputs.webmap.build import write_map
+from aquitardmap.outputs.webmap.features import HoleData, hole_popup_html, hole_tooltip_html
 from aquitardmap.outputs.webmap.page import lonlat_to_xy_fit
 from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
 
@@ -144,8 +145,7 @@ def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:
     for raw in ("<img src=x onerror", "\\u003cimg src=x", "<script>alert(2)",
                 "\\u003cscript\\u003ealert(2)", "<b>exposed", "\\u003cb\\u003eexposed"):
         assert raw not in page
-    popups = [f["properties"].get("popup_html", "") for g in _geojson_payloads(page)
-              for f in g["features"]]
+    popups = [p["popup_html"] for p in _hole_props(page).values()]
     assert any("&lt;img src=x onerror=alert(1)&gt;" in p for p in popups)
     assert any("FILL &lt;b&gt;x&lt;/b&gt;" in p for p in popups)
     tips = [f["properties"].get("tooltip_html", "") for g in _geojson_payloads(page)
@@ -156,15 +156,20 @@ def test_user_text_is_escaped_everywhere(tiny_run: tuple[Path, str]) -> None:
     assert "Thin clay 49" not in page
 
 
+def _hole_data(page: str) -> HoleData:
+    """The boreholes' compact data as the page carries it (decoded as JSON)."""
+    cfg = _config_value(page, "holes")
+    return HoleData(cfg["rows"], cfg["cats"], cfg["units"], {})
+
+
 def _hole_props(page: str) -> dict[str, dict]:
-    out = {}
-    for g in _geojson_payloads(page):
-        for f in g["features"]:
-            p = f["properties"]
-            if "popup_html" in p:
-                hole = re.search(r'<div class="aqm-popup-title">(.*?)</div>', p["popup_html"])
-                out[html.unescape(hole.group(1))] = p
-    return out
+    """Per hole id: category, and the popup and tooltip built from the page's data (the
+    browser builds the same text: test_webmap_browser.py compares them)."""
+    data = _hole_data(page)
+    return {html.unescape(r[3]): {"category": data.categories[r[2]][0],
+                                  "popup_html": hole_popup_html(r, data),
+                                  "tooltip_html": hole_tooltip_html(r, data)}
+            for r in data.records}
 
 
 def test_partial_hole_shows_a_lower_bound_not_a_thickness(tiny_run: tuple[Path, str]) -> None:
@@ -618,3 +623,59 @@ def test_zone_tooltip_and_style_say_the_tier_and_the_proving_holes(tiered_run: s
         tiered_run
     assert "the higher tier first, then window before thin" in tiered_run
     assert "Thin area by tier</td><td>likely 0.0 ha, possible 1.25 km²" in tiered_run
+
+
+@pytest.mark.parametrize("p,q", [(0.0, 0.0), (0.3, 0.0), (0.0, -0.5), (-0.2, 0.4),
+                                 (1.5, 1.5)])
+def test_relief_shade_of_a_plane_is_the_published_hillshade(p: float, q: float) -> None:
+    """On a plane Horn's (1981) differences give the exact slope, so the shade must equal
+    the hillshade formula of Burrough & McDonnell (1998): cos(zenith) cos(slope) +
+    sin(zenith) sin(slope) cos(sun azimuth - aspect), the aspect being the compass
+    direction the slope faces."""
+    from aquitardmap.outputs.webmap.relief import hillshade_horn
+
+    dx, dy = 25.0, 30.0
+    rows, cols = np.mgrid[0:6, 0:7]
+    z = p * cols * dx + q * (-rows * dy)  # row 0 is the north edge
+    shade = hillshade_horn(z, dx, dy, azimuth_deg=315.0, altitude_deg=45.0)
+    zenith, azimuth = np.radians(45.0), np.radians(315.0)
+    slope = np.arctan(np.hypot(p, q))
+    aspect = np.arctan2(-p, -q)  # downhill direction, clockwise from north
+    expected = max(0.0, np.cos(zenith) * np.cos(slope)
+                   + np.sin(zenith) * np.sin(slope) * np.cos(azimuth - aspect))
+    assert np.all(np.isnan(shade[[0, -1], :])) and np.all(np.isnan(shade[:, [0, -1]]))
+    assert shade[1:-1, 1:-1] == pytest.approx(np.full((4, 5), expected), abs=1e-12)
+
+
+def test_background_setting_picks_tiles_relief_or_nothing(tmp_path: Path) -> None:
+    build_run_folder(tmp_path)
+    dem = tmp_path / "dem.tif"
+    x = np.arange(60)
+    z = np.tile(40 + 10 * np.exp(-((x - 30) / 8.0) ** 2), (50, 1)).astype("float32")
+    with rasterio.open(dem, "w", driver="GTiff", width=60, height=50, count=1, dtype="float32",
+                       crs="EPSG:32632",
+                       transform=rasterio.Affine(20, 0, X0 - 100, 0, -20, Y0 + 850)) as dst:
+        dst.write(z, 1)
+    relief = write_map(tmp_path, background="relief", dem_path=dem).read_text("utf-8")
+    assert "relief" in _toggles(relief) and "basemap" not in _toggles(relief)
+    assert "tile.openstreetmap" not in relief
+    none = write_map(tmp_path, background="none", dem_path=dem).read_text("utf-8")
+    assert not {"relief", "basemap"} & set(_toggles(none))
+    tiles = write_map(tmp_path, dem_path=dem).read_text("utf-8")
+    assert "basemap" in _toggles(tiles) and "relief" not in _toggles(tiles)
+    with pytest.raises(ValueError, match="background"):
+        write_map(tmp_path, background="satellite")
+
+
+def test_overlays_stay_within_the_pixel_budget() -> None:
+    """A 4 M-cell grid is shown as an image of at most MAX_OVERLAY_SIDE_PX on its long
+    side; class grids keep exact class codes (most frequent class of the cells)."""
+    from affine import Affine
+
+    from aquitardmap.outputs.webmap.overlays import MAX_OVERLAY_SIDE_PX, warp_for_display
+
+    values = np.tile(np.arange(4000) % 5 + 1, (1000, 1)).astype(float)
+    transform = Affine(10, 0, X0, 0, -10, Y0 + 10_000)
+    shown, _ = warp_for_display(values, transform, CRS_UTM32, 4_000_000, classes=True)
+    assert max(shown.shape) <= MAX_OVERLAY_SIDE_PX
+    assert set(np.unique(shown[np.isfinite(shown)])) <= {1.0, 2.0, 3.0, 4.0, 5.0}

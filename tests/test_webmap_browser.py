@@ -26,11 +26,22 @@ import folium
 import matplotlib.image
 import numpy as np
 import pytest
-from mapdata import EVIL_ID, EVIL_UNIT, HOLE_XY, X0, Y0, build_run_folder, thickness_at
+from mapdata import (
+    EVIL_ID,
+    EVIL_UNIT,
+    HOLE_XY,
+    X0,
+    Y0,
+    build_large_run_folder,
+    build_run_folder,
+    thickness_at,
+)
 from pyproj import Transformer
 
 from aquitardmap.outputs import names as outputs
+from aquitardmap.outputs.webmap import assets as webmap_assets
 from aquitardmap.outputs.webmap.build import write_map
+from aquitardmap.outputs.webmap.features import HoleData, hole_popup_html, hole_tooltip_html
 
 from conftest import REPO
 
@@ -356,5 +367,136 @@ def test_self_contained_map_needs_no_network(browser, leaflet_dist, tmp_path, mo
         assert _grid_state(s.page)["images"] == 1
         assert s.page.evaluate("() => Object.keys(aqm.cfg.layers)") == ["outline", "zones",
                                                                           "holes"]
+    finally:
+        s.close()
+
+
+def _page_hole_data(page) -> HoleData:
+    cfg = page.evaluate("() => aqm.cfg.holes")
+    return HoleData(cfg["rows"], cfg["cats"], cfg["units"], {})
+
+
+def _popups_match(page) -> int:
+    """Every hole's popup and tooltip as the page builds them equal the Python text."""
+    data = _page_hole_data(page)
+    built = page.evaluate("""() => aqm.cfg.holes.rows.map(r => [
+        aqmHoles.popupHtml(r, aqm.cfg.holes), aqmHoles.tooltipHtml(r, aqm.cfg.holes)])""")
+    for record, (popup, tip) in zip(data.records, built, strict=True):
+        assert popup == hole_popup_html(record, data)
+        assert tip == hole_tooltip_html(record, data)
+    return len(built)
+
+
+def test_popups_built_in_the_page_equal_the_python_popups(session, tiny_map, demo_run):
+    session.open(tiny_map)
+    assert _popups_match(session.page) == 3
+    session.open(demo_run.out_dir / outputs.MAP)
+    assert _popups_match(session.page) > 300
+    # Python's "%g" and "%.1f" rules as the page spells them (Python's format mini-language).
+    cases = [0.0, 2.5, 12.0, 0.1234567, 1234567.0, 1e-5, 123456.0, 1e9, 33.3333333]
+    assert session.page.evaluate("v => v.map(aqmHoles.g6)", cases) == [f"{v:g}" for v in cases]
+    assert session.errors == []
+
+
+def test_proving_holes_are_never_clustered(session, demo_run):
+    page = session.page
+    session.open(demo_run.out_dir / outputs.MAP)
+    state = page.evaluate("""() => {
+        var g = aqm.cfg.layers.holes.layer, h = aqm.cfg.holes, out = {proving: 0, drawn: 0,
+            clusteredProving: 0, clustered: 0, expected: 0};
+        h.rows.forEach(r => { var k = h.cats[r[2]][0];
+                              if (k === "window" || k === "thin") { out.expected += 1; } });
+        g.proving.eachLayer(m => { out.proving += 1; if (aqm.map.hasLayer(m)) out.drawn += 1; });
+        g.clustered.getLayers().forEach(m => { out.clustered += 1;
+            var f = m.options.fillColor;
+            if (f === h.cats[0][1] || f === h.cats[1][1]) { out.clusteredProving += 1; } });
+        out.clusters = document.querySelectorAll(".aqm-cluster").length;
+        return out; }""")
+    assert state["expected"] > 0 and state["proving"] == state["expected"]
+    assert state["drawn"] == state["proving"]  # always drawn, whatever the zoom
+    assert state["clusteredProving"] == 0
+    assert state["proving"] + state["clustered"] == len(page.evaluate("() => aqm.cfg.holes.rows"))
+    assert state["clusters"] > 0  # the demo's 400-odd holes are grouped at the opening view
+    assert session.errors == []
+
+
+def test_opening_view_fits_the_study_area_beside_the_panel(session, demo_run):
+    page = session.page
+    session.open(demo_run.out_dir / outputs.MAP)
+    box = page.evaluate("""() => {
+        var e = aqm.cfg.extent, m = aqm.map, a = m.latLngToContainerPoint(e[0]),
+            b = m.latLngToContainerPoint(e[1]), size = m.getSize(),
+            panel = document.getElementById("aqm-panel").getBoundingClientRect(),
+            map = m.getContainer().getBoundingClientRect();
+        return {left: a.x, bottom: a.y, right: b.x, top: b.y, width: size.x, height: size.y,
+                panelLeft: panel.left - map.left}; }""")
+    assert box["left"] >= 0 and box["top"] >= 0 and box["bottom"] <= box["height"]
+    assert box["right"] <= box["panelLeft"]  # not under the layer panel
+    # and it fills the room: one zoom step (0.25) more would not fit (Leaflet's zoomSnap)
+    assert (box["right"] - box["left"]) > 0.5 * box["panelLeft"] or \
+        (box["bottom"] - box["top"]) > 0.5 * box["height"]
+
+
+def _tiny_dem(path: Path) -> None:
+    """An invented DEM over the tiny run folder: a ridge running north-south."""
+    import rasterio
+    from affine import Affine
+
+    x = np.arange(60)
+    z = np.tile(40 + 10 * np.exp(-((x - 30) / 8.0) ** 2), (50, 1)).astype("float32")
+    with rasterio.open(path, "w", driver="GTiff", width=60, height=50, count=1,
+                       dtype="float32", crs="EPSG:32632",
+                       transform=Affine(20, 0, X0 - 100, 0, -20, Y0 + 850)) as dst:
+        dst.write(z, 1)
+
+
+def test_offline_map_from_the_package_alone_renders_with_network_blocked(browser, tmp_path,
+                                                                          monkeypatch):
+    monkeypatch.setattr(webmap_assets, "SYSTEM_ASSET_DIRS", ())
+    monkeypatch.delenv("AQUITARDMAP_WEB_ASSETS", raising=False)
+    build_run_folder(tmp_path)
+    _tiny_dem(tmp_path / "dem.tif")
+    path = write_map(tmp_path, self_contained=True, dem_path=tmp_path / "dem.tif")
+    s = Session(browser, None, offline=True)
+    try:
+        s.open(path)
+        assert s.refused == [] and s.errors == []
+        assert s.page.evaluate("() => Object.keys(aqm.cfg.layers)") == [
+            "relief", "outline", "zones", "holes"]
+        assert s.page.locator(".leaflet-aqmRelief-pane img").count() == 1
+        assert s.page.evaluate("() => typeof L.markerClusterGroup") == "function"
+        ARTIFACTS.mkdir(exist_ok=True)
+        s.page.screenshot(path=str(ARTIFACTS / "offline_relief_map.png"))
+    finally:
+        s.close()
+
+
+def test_large_region_map_loads_and_its_cost_is_recorded(browser, leaflet_dist,
+                                                         tmp_path_factory):
+    """20,000 holes and 4 M cells: the page loads with no console error (tiles are served
+    blank, nothing else is fetched); size, load time and script heap go to
+    test-artifacts/large_map_load.json (never a failure on time)."""
+    run_dir = tmp_path_factory.mktemp("large")
+    build_large_run_folder(run_dir)
+    t0 = time.perf_counter()
+    path = write_map(run_dir)
+    write_s = time.perf_counter() - t0
+    s = Session(browser, leaflet_dist)
+    try:
+        seconds = s.open(path)
+        s.page.wait_for_timeout(500)
+        cdp = s.context.new_cdp_session(s.page)
+        heap = cdp.send("Runtime.getHeapUsage")
+        n_holes = s.page.evaluate("() => aqm.cfg.holes.rows.length")
+        ARTIFACTS.mkdir(exist_ok=True)
+        s.page.screenshot(path=str(ARTIFACTS / "large_map.png"))
+        (ARTIFACTS / "large_map_load.json").write_text(json.dumps(
+            {"holes": n_holes, "cells": 4_000_000, "size_mb": round(path.stat().st_size / 1e6, 2),
+             "write_s": round(write_s, 2), "open_to_ready_s": round(seconds, 3),
+             "js_heap_used_mb": round(heap["usedSize"] / 1e6, 1)}, indent=2) + "\n",
+            encoding="utf-8")
+        assert n_holes == 20_000
+        assert s.errors == [] and s.refused == [] and s.dialogs == []
+        assert s.page.locator(".aqm-cluster").count() > 0
     finally:
         s.close()

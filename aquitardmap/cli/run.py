@@ -42,9 +42,10 @@ def flagged_area_words(zones: dict) -> str:
 @click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path),
               help="Folder for the outputs; replaced as a whole only when the run succeeds.")
 @click.option("--offline-map", "offline_map", is_flag=True,
-              help="Write a map.html that opens without network: Leaflet inlined from a local "
-                   "copy (Debian's libjs-leaflet, a global npm leaflet, or the folder in "
-                   "AQUITARDMAP_WEB_ASSETS) and no background map tiles.")
+              help="Write a map.html that opens without network: Leaflet inlined from the "
+                   "copy shipped in the package (or the folder in AQUITARDMAP_WEB_ASSETS), no "
+                   "background map tiles; the background is a shaded relief of the DEM unless "
+                   "[map] background = \"none\".")
 @click.option("--compute", "compute_mode", type=click.Choice(["single", "dask"]), default=None,
               help="Where the kriging tiles run: this process (single) or a Dask cluster "
                    "(dask; needs the 'dask' extra). Default: [compute] mode of project.toml.")

@@ -56,7 +56,7 @@ PROJECT_FILE = "project.toml"
 REQUIRED_FILES = ("collars", "intervals")
 #: The tables (and arrays of tables) ``project.toml`` may hold.
 SECTIONS = ("project", "grid", "units", "kriging", "hydraulics", "screening", "qa", "files",
-            "materials", "drilling", "compute", "variograms")
+            "materials", "drilling", "compute", "variograms", "map")
 
 
 @dataclass(frozen=True)
@@ -78,6 +78,7 @@ class Project:
     config_sha256: str = ""
     materials: tuple[MaterialRule, ...] = ()
     drilling: settings.DrillingSettings = field(default_factory=settings.DrillingSettings)
+    map: settings.MapSettings = field(default_factory=settings.MapSettings)
     max_grid_cells: int = settings.MAX_GRID_CELLS
 
     @property
@@ -194,6 +195,7 @@ def read_project(folder: str | Path) -> Project:
     qa = sections.read_qa(doc, cfg)
     drilling = sections.read_drilling(doc, cfg, root)
     compute = sections.read_compute(doc, cfg)
+    map_settings = sections.read_map(doc, cfg)
     files = sections.read_files(doc, cfg, root)
     doc.report_unknown_keys()
     materials = sections.read_materials(doc, cfg, {u.code for u in units})
@@ -204,4 +206,5 @@ def read_project(folder: str | Path) -> Project:
         units=units, kriging=kriging, hydraulics=hydraulics, screening=screening, qa=qa,
         files=files, config_sha256=hashlib.sha256(raw).hexdigest(), materials=materials,
         drilling=drilling, compute=compute, max_grid_cells=max_cells,
+        map=map_settings,
     )

@@ -19,11 +19,13 @@ from aquitardmap.config.document import ConfigDocument
 from aquitardmap.config.materials import MaterialRule
 from aquitardmap.config.settings import (
     DEFAULT_FILES,
+    MAP_BACKGROUNDS,
     MAX_GRID_CELLS,
     ComputeSettings,
     DrillingSettings,
     HydraulicSettings,
     KrigingSettings,
+    MapSettings,
     QASettings,
     ScreeningThresholds,
     Unit,
@@ -456,6 +458,15 @@ def read_compute(doc: ConfigDocument, cfg: dict[str, Any]) -> ComputeSettings:
         tile_cells=int(doc.number(cp, "tile_cells", d.tile_cells, "compute", low=1024,
                                   high=16_777_216, integer=True)),
     )
+
+
+def read_map(doc: ConfigDocument, cfg: dict[str, Any]) -> MapSettings:
+    """``[map]``: the background of the planners' map (tiles, none, or the DEM relief)."""
+    mp = doc.section(cfg, "map")
+    if "background" not in mp:
+        return MapSettings()
+    return MapSettings(background=doc.choice(mp, "background", "tiles", "map",
+                                             MAP_BACKGROUNDS))
 
 
 def _has_link(root: Path, name: str) -> bool:

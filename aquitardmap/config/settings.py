@@ -267,3 +267,23 @@ class ComputeSettings:
     scheduler: str = ""
     workers: int = 0
     tile_cells: int = 65_536
+
+
+#: Backgrounds of the map (``[map] background``): web map tiles, none, or a shaded relief
+#: of the project's DEM.
+MAP_BACKGROUNDS = ("tiles", "none", "relief")
+
+
+@dataclass(frozen=True)
+class MapSettings:
+    """The planners' map (``map.html``).
+
+    Attributes:
+        background: ``"tiles"`` (OpenStreetMap tiles, fetched when the page opens),
+            ``"none"``, or ``"relief"`` (a shaded relief drawn from the project's DEM and
+            kept in the page). None (not set): tiles for a map that fetches its library,
+            the relief for a self-contained one (``run --offline-map``), which never
+            fetches tiles.
+    """
+
+    background: str | None = None

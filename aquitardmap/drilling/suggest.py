@@ -264,8 +264,13 @@ def suggest(project_dir: str | Path, out_dir: str | Path, n_holes: int | None = 
     result = suggest_holes(inputs, surface, n_holes, candidates=sites, priority=priority,
                            protective_m=protective)
     written = write_suggestions(out_dir, result)
-    if (Path(out_dir) / outputs.MAP).exists():
+    old_map = Path(out_dir) / outputs.MAP
+    if old_map.exists():
+        from aquitardmap.outputs.webmap.assets import EXTERNAL_REF
         from aquitardmap.outputs.webmap.build import write_map
 
-        write_map(out_dir)
+        # the same kind of map as the run wrote: self-contained when it fetched nothing
+        offline = not EXTERNAL_REF.search(old_map.read_text(encoding="utf-8"))
+        write_map(out_dir, self_contained=offline, background=p.map.background,
+                  dem_path=p.file("dem"))
     return result, written

@@ -146,6 +146,7 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
     summary["outputs"] = names
     write_summary(folder / outputs.SUMMARY, summary)
     as_written = json_ready(summary)
-    write_map(folder, summary=as_written, self_contained=self_contained_map)
+    write_map(folder, summary=as_written, self_contained=self_contained_map,
+              background=p.map.background, dem_path=p.file("dem"))
     write_report(folder, summary=as_written)
     return names

@@ -13,8 +13,11 @@ The map is a folium (Leaflet) page. It reads only what the run folder holds, by 
   possible tier, the possible one lighter with a dash-dot outline) with a tooltip saying
   kind, tier, area, probability, thickness, the holes proving a window or thin clay near
   it and the reason;
-* the boreholes, coloured by what they prove, with a popup giving the log as a strip
-  diagram and its values;
+* the boreholes, coloured by what they prove, grouped by zoom (holes proving a window or
+  thin clay never grouped), with a popup giving the log as a strip diagram and its values,
+  built in the browser from compact per-hole data when it opens;
+* a background: web map tiles, none, or a shaded relief of the project's DEM
+  (``[map] background``);
 * the study-area outline, a scale bar, and a click read-out of coordinates (WGS 84 and the
   project CRS) and of the main grids' values at that cell.
 
@@ -22,7 +25,9 @@ Everything a user typed (borehole ids, unit names, logs, reasons, the project na
 HTML-escaped before it reaches the page (:mod:`aquitardmap.outputs.webmap.markup`).
 
 Modules: ``build`` (:func:`~aquitardmap.outputs.webmap.build.write_map`, the page put
-together), ``overlays`` (grid images and legends), ``features`` (zones, boreholes,
-outline), ``striplog`` (the SVG log), ``page`` (title, caution, panel, script),
-``assets`` (local Leaflet for self-contained maps), ``markup`` (escaping).
+together), ``overlays`` (grid images sized to the screen, and legends), ``relief`` (the
+DEM's shaded relief), ``features`` (zones, the boreholes' page data and popups, outline),
+``striplog`` (the SVG log), ``page`` (title, caution, panel, script), ``assets`` (the
+Leaflet and marker-cluster files shipped in ``vendor/``), ``markup`` (escaping). Scripts:
+``holes.js`` (boreholes, clusters, popups), ``page.js`` (panel, read-out, opening view).
 """

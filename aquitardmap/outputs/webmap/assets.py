@@ -1,9 +1,11 @@
-"""Local copies of Leaflet for a self-contained map (nothing is downloaded).
+"""Local copies of Leaflet and its marker-cluster plugin for the map (nothing is downloaded).
 
-A self-contained map inlines Leaflet's script and style (with its images as data URLs) from
-a copy already installed on the machine: the folder named by ``AQUITARDMAP_WEB_ASSETS``,
-Debian's ``libjs-leaflet`` package, or a global npm install of ``leaflet``. The project
-never copies Leaflet into its own source tree.
+The package ships Leaflet 1.9.3 (the version folium loads) and leaflet.markercluster 1.5.3
+with their licence files in ``vendor/`` (see ``vendor/README.md``). A self-contained map
+inlines Leaflet's script and style (with its images as data URLs) from the folder named by
+``AQUITARDMAP_WEB_ASSETS`` when set, else from the package's copy, else from a copy
+installed on the machine (Debian's ``libjs-leaflet``, a global npm ``leaflet``). The
+marker-cluster plugin is always inlined from the package (every map clusters its holes).
 """
 
 from __future__ import annotations
@@ -18,6 +20,12 @@ from pathlib import Path
 #: Environment variable naming a folder that holds ``leaflet.js`` (or ``leaflet.min.js``),
 #: ``leaflet.css`` and Leaflet's ``images/`` for self-contained maps.
 ASSETS_ENV = "AQUITARDMAP_WEB_ASSETS"
+
+VENDOR_DIR = Path(__file__).with_name("vendor")
+#: The package's own copy of Leaflet (``vendor/leaflet``): looked in before the system.
+PACKAGE_ASSET_DIRS: tuple[Path, ...] = (VENDOR_DIR / "leaflet",)
+#: The package's copy of leaflet.markercluster (script and its base style).
+MARKERCLUSTER_DIR = VENDOR_DIR / "markercluster"
 
 #: Where a system-wide copy of Leaflet is looked for when no folder is given:
 #: Debian's ``libjs-leaflet`` package, then a global npm install of ``leaflet``.
@@ -45,15 +53,16 @@ def find_web_assets(search_dirs: Sequence[str | Path] | None = None) -> WebAsset
 
     Looks in ``search_dirs`` when given, otherwise in the folder named by the environment
     variable ``AQUITARDMAP_WEB_ASSETS`` (and its ``leaflet/`` and ``dist/`` subfolders),
-    then in :data:`SYSTEM_ASSET_DIRS` (Debian's ``libjs-leaflet``, a global npm
-    ``leaflet``). Raises :class:`WebAssetsNotFound` listing where it looked.
+    then in the package's own copy (:data:`PACKAGE_ASSET_DIRS`), then in
+    :data:`SYSTEM_ASSET_DIRS` (Debian's ``libjs-leaflet``, a global npm ``leaflet``).
+    Raises :class:`WebAssetsNotFound` listing where it looked.
     """
     if search_dirs is None:
         dirs: list[Path] = []
         env = os.environ.get(ASSETS_ENV)
         if env:
             dirs += [Path(env), Path(env) / "leaflet", Path(env) / "dist"]
-        dirs += list(SYSTEM_ASSET_DIRS)
+        dirs += [*PACKAGE_ASSET_DIRS, *SYSTEM_ASSET_DIRS]
     else:
         dirs = [Path(d) for d in search_dirs]
     for d in dirs:
@@ -64,8 +73,9 @@ def find_web_assets(search_dirs: Sequence[str | Path] | None = None) -> WebAsset
     looked = ", ".join(str(d) for d in dirs) or "(nowhere)"
     raise WebAssetsNotFound(
         "A self-contained map needs a local copy of Leaflet 1.x (leaflet.js or leaflet.min.js "
-        f"plus leaflet.css); none was found. Looked in: {looked}. Install Debian's "
-        f"libjs-leaflet package, or set {ASSETS_ENV} to a folder that holds the files."
+        f"plus leaflet.css); none was found. Looked in: {looked}. Reinstall aquitardmap (its "
+        "package ships Leaflet), install Debian's libjs-leaflet package, or set "
+        f"{ASSETS_ENV} to a folder that holds the files."
     )
 
 
@@ -91,10 +101,26 @@ def inline_css(assets: WebAssets) -> str:
     return _CSS_URL.sub(to_data_url, css).replace("</style", "<\\/style")
 
 
+def _script_text(path: Path) -> str:
+    """A script file, safe to put inside a ``<script>`` element (no source-map comment)."""
+    js = _SOURCE_MAP.sub("", path.read_text(encoding="utf-8"))
+    return js.replace("</script", "<\\/script")
+
+
 def inline_js(assets: WebAssets) -> str:
     """Leaflet's script, safe to put inside a ``<script>`` element."""
-    js = _SOURCE_MAP.sub("", assets.leaflet_js.read_text(encoding="utf-8"))
-    return js.replace("</script", "<\\/script")
+    return _script_text(assets.leaflet_js)
+
+
+def markercluster_js() -> str:
+    """The package's leaflet.markercluster script, safe inside a ``<script>`` element."""
+    return _script_text(MARKERCLUSTER_DIR / "leaflet.markercluster.js")
+
+
+def markercluster_css() -> str:
+    """The plugin's base style (cluster animation); the symbols are styled in page.css."""
+    css = _SOURCE_MAP.sub("", (MARKERCLUSTER_DIR / "MarkerCluster.css").read_text("utf-8"))
+    return css.replace("</style", "<\\/style")
 
 
 #: A ``<script src=...>`` or ``<link href=...>``: what a self-contained page must not have.

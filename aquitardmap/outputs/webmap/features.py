@@ -4,7 +4,9 @@ handed to the page is escaped HTML built here."""
 
 from __future__ import annotations
 
+import html
 import json
+from dataclasses import dataclass
 from typing import Any
 
 import folium
@@ -30,11 +32,12 @@ from aquitardmap.outputs.presentation import (
     ZONE_COLOURS,
     ZONE_OTHER_COLOUR,
     hole_category_of,
+    unit_colour,
     zone_style,
 )
 from aquitardmap.outputs.webmap.markup import esc
 from aquitardmap.outputs.webmap.overlays import LONLAT
-from aquitardmap.outputs.webmap.striplog import parse_log, strip_log_svg
+from aquitardmap.outputs.webmap.striplog import Interval, f1, g6, parse_log, strip_log_svg
 from aquitardmap.outputs.wording import zone_tier_label
 from aquitardmap.screening.zones import TIERED_KINDS, ZONE_TIERS
 
@@ -200,101 +203,136 @@ def zones_layer(gdf: gpd.GeoDataFrame, labels: dict[str, str],
 # --------------------------------------------------------------------------- boreholes
 
 
-def _thickness_text(status: str, thickness_m: float | None, category: str) -> str:
+#: Aquitard status of a hole as the popup data code it: 0 other, 1 lower bound, 2 unknown.
+_STATUS_CODES = {"lower_bound": 1, "unknown": 2}
+#: Order of the fields of one hole in the page data (:func:`hole_records`).
+HOLE_FIELDS = ("lat", "lon", "category", "id_html", "status", "thickness_m", "reached",
+               "depth_to_aquifer_m", "ground_elev_m", "total_depth_m", "dem_misfit_m",
+               "pierces", "qa_html", "excluded", "log")
+
+
+def _round1(value: Any) -> float | None:
+    """A length for the page, rounded to 0.1 (what the popup shows); None when missing."""
+    v = finite_float(value)
+    return None if v is None else round(v, 1)
+
+
+def _thickness_text(status: int, thickness_m: float | None, category: str) -> str:
     if category == "window" and (thickness_m is None or thickness_m == 0):
         return "none (the hole reached the aquifer without passing through clay)"
     if thickness_m is None:
         return "not known"
-    if status == "lower_bound":
+    if status == 1:
         return f"≥ {thickness_m:.1f} m (hole stopped in clay)"
-    if status == "unknown":
+    if status == 2:
         return f"{thickness_m:.1f} m (not confirmed: the hole stopped above the clay)"
     return f"{thickness_m:.1f} m"
 
 
-def _interval_table(log_text: str, names: dict[str, str]) -> str:
-    ivs = parse_log(log_text)
-    if not ivs:
-        return (f'<div class="aqm-log">{esc(log_text)}</div>' if log_text else "")
-    rows = "".join(
-        f"<tr><td>{iv.top_m:g}–{iv.bottom_m:g} m</td><td>{esc(names.get(iv.unit, iv.unit))}"
-        f" [{esc(iv.unit)}]</td><td>{iv.bottom_m - iv.top_m:.1f} m</td></tr>" for iv in ivs)
-    return ('<table class="aqm-ivs"><tr><th>Depth</th><th>Unit</th><th>Thickness</th></tr>'
-            f"{rows}</table>")
+@dataclass(frozen=True)
+class HoleData:
+    """The boreholes as the page carries them: one compact record per hole (fields in the
+    order of :data:`HOLE_FIELDS`; text already escaped; lengths rounded to 0.1 m; the log
+    as flat (top m, bottom m, unit index) triples, or its escaped text when it does not
+    parse), the categories ``[key, fill, edge, label html]`` and the units
+    ``[code html, name html, colour]`` the logs use."""
+
+    records: list[list[Any]]
+    categories: list[list[str]]
+    units: list[list[str]]
+    counts: dict[str, int]
+
+    def as_config(self) -> dict[str, Any]:
+        return {"rows": self.records, "cats": self.categories, "units": self.units}
 
 
-def borehole_popup(row: dict[str, Any], category: str, colours: dict[str, str],
-                   names: dict[str, str]) -> str:
-    """Popup HTML of one borehole: what it proves, its values, its log as a strip."""
-    hole_id = _text(row.get("borehole_id")) or "(no id)"
-    status = _text(row.get("status_aquitard")).lower()
-    reached = truthy(row.get("reached_aquifer"))
-    what = HOLE_STYLES[category].label
-    if category == "suspicious":
-        what = ("Excluded from the estimates" if truthy(row.get("excluded"))
-                else "Suspicious: QA-flagged")
-    facts = [
-        f"Clay (aquitard) thickness: <b>{_thickness_text(status, finite_float(row.get('aquitard_thickness_m')), category)}</b>",  # noqa: E501
-    ]
-    depth_aq = finite_float(row.get("depth_to_aquifer_m"))
-    facts.append("Reached the aquifer: " + (
-        f"yes, at {depth_aq:.1f} m" if reached and depth_aq is not None
-        else "yes" if reached else "no"))
-    facts.append(f"Ground elevation: {fmt_m(finite_float(row.get('ground_elev_m')))}")
-    facts.append(f"Drilled depth: {fmt_m(finite_float(row.get('total_depth_m')))}")
-    misfit = finite_float(row.get("dem_misfit_m"))
-    if misfit is not None:
-        facts.append(f"Collar minus DEM: {misfit:+.1f} m")
-    if truthy(row.get("pierces_aquitard")):
-        facts.append('<span class="aqm-flag">Pierces the clay into the aquifer: a possible '
-                     "vertical conduit unless sealed.</span>")
-    flags = _text(row.get("qa_flags"))
-    if flags:
-        facts.append(f'<span class="aqm-flag">QA: {esc(flags)}</span>')
-    if truthy(row.get("excluded")):
-        facts.append('<span class="aqm-flag">Not used in the estimates.</span>')
-    log_text = _text(row.get("log"))
-    svg = strip_log_svg(parse_log(log_text), colours,
-                        total_depth_m=finite_float(row.get("total_depth_m")),
-                        reached_aquifer=reached, title=f"Log of borehole {hole_id}")
-    return (f'<div class="aqm-popup"><div class="aqm-popup-title">{esc(hole_id)}</div>'
-            f'<div class="aqm-popup-what">{esc(what)}</div>'
-            f'<div class="aqm-popup-body">{svg}<div class="aqm-facts">{"<br>".join(facts)}'
-            f"</div></div>{_interval_table(log_text, names)}</div>")
-
-
-def boreholes_layer(gdf: gpd.GeoDataFrame, colours: dict[str, str], names: dict[str, str]
-                    ) -> tuple[folium.GeoJson, dict[str, int]]:
-    """Boreholes (lon/lat) as circle markers with popups, and the count per category."""
-    props = []
+def hole_records(gdf: gpd.GeoDataFrame, colours: dict[str, str], names: dict[str, str]
+                 ) -> HoleData:
+    """Compact page data of the boreholes (lon/lat) from which the page draws the markers
+    and builds each popup when it opens (:func:`hole_popup_html` is the same popup in
+    Python)."""
+    cats = list(HOLE_STYLES)
     counts = dict.fromkeys(HOLE_STYLES, 0)
-    for row in gdf.drop(columns="geometry").to_dict("records"):
+    unit_index: dict[str, int] = {}
+    records: list[list[Any]] = []
+    xy = np.round(shapely.get_coordinates(gdf.geometry.values), 6) if len(gdf) else []
+    for (lon, lat), row in zip(xy, gdf.drop(columns="geometry").to_dict("records"),
+                               strict=True):
         category = hole_category_of(row)
         counts[category] += 1
-        hole_id = esc(_text(row.get("borehole_id")) or "(no id)")
-        label = HOLE_STYLES[category].label
-        props.append({"category": category,
-                      "popup_html": borehole_popup(row, category, colours, names),
-                      "tooltip_html": f"<b>{hole_id}</b>: {esc(label)}"})
-    data = feature_collection(gdf, props)
+        log_text = _text(row.get("log"))
+        ivs = parse_log(log_text)
+        log: list[Any] | str = []
+        for iv in ivs:
+            k = unit_index.setdefault(iv.unit, len(unit_index))
+            log += [iv.top_m, iv.bottom_m, k]
+        if not ivs:
+            log = esc(log_text)
+        records.append([
+            float(lat), float(lon), cats.index(category),
+            esc(_text(row.get("borehole_id")) or "(no id)"),
+            _STATUS_CODES.get(_text(row.get("status_aquitard")).lower(), 0),
+            _round1(row.get("aquitard_thickness_m")), int(truthy(row.get("reached_aquifer"))),
+            _round1(row.get("depth_to_aquifer_m")), _round1(row.get("ground_elev_m")),
+            _round1(row.get("total_depth_m")), _round1(row.get("dem_misfit_m")),
+            int(truthy(row.get("pierces_aquitard"))), esc(_text(row.get("qa_flags"))),
+            int(truthy(row.get("excluded"))), log])
+    categories = [[k, s.fill, s.edge, esc(s.label)] for k, s in HOLE_STYLES.items()]
+    units = [[esc(u), esc(names.get(u, u)), unit_colour(colours, u)] for u in unit_index]
+    return HoleData(records, categories, units, counts)
 
-    def style(feature: dict[str, Any]) -> dict[str, Any]:
-        s = HOLE_STYLES[feature["properties"]["category"]]
-        return {"fillColor": s.fill, "color": s.edge}
 
-    marker = folium.CircleMarker(radius=5.5, weight=1.5, fill=True, fill_opacity=0.95,
-                                 bubbling_mouse_events=False)
-    has = bool(data["features"])
-    layer = folium.GeoJson(
-        data, name="Boreholes", marker=marker, style_function=style if has else None,
-        popup=(folium.GeoJsonPopup(fields=["popup_html"], labels=False, class_name="aqm-pop",
-                                   style="",
-                                   max_width=380) if has else None),
-        tooltip=(folium.GeoJsonTooltip(fields=["tooltip_html"], labels=False,
-                                       class_name="aqm-tip") if has else None),
-        control=False,
-    )
-    return layer, counts
+def hole_popup_html(record: list[Any], data: HoleData) -> str:
+    """Popup HTML of one hole record: what it proves, its values, its log as a strip
+    (``holes.js``'s ``aqmHolePopup`` builds the same text in the browser)."""
+    r = dict(zip(HOLE_FIELDS, record, strict=True))
+    category = data.categories[r["category"]][0]
+    what = HOLE_STYLES[category].label
+    if category == "suspicious":
+        what = "Excluded from the estimates" if r["excluded"] else "Suspicious: QA-flagged"
+    thickness = _thickness_text(r["status"], r["thickness_m"], category)
+    facts = [f"Clay (aquitard) thickness: <b>{thickness}</b>"]
+    depth_aq = r["depth_to_aquifer_m"]
+    facts.append("Reached the aquifer: " + (
+        f"yes, at {depth_aq:.1f} m" if r["reached"] and depth_aq is not None
+        else "yes" if r["reached"] else "no"))
+    facts.append(f"Ground elevation: {fmt_m(r['ground_elev_m'])}")
+    facts.append(f"Drilled depth: {fmt_m(r['total_depth_m'])}")
+    if r["dem_misfit_m"] is not None:
+        facts.append(f"Collar minus DEM: {r['dem_misfit_m']:+.1f} m")
+    if r["pierces"]:
+        facts.append('<span class="aqm-flag">Pierces the clay into the aquifer: a possible '
+                     "vertical conduit unless sealed.</span>")
+    if r["qa_html"]:
+        facts.append(f'<span class="aqm-flag">QA: {r["qa_html"]}</span>')
+    if r["excluded"]:
+        facts.append('<span class="aqm-flag">Not used in the estimates.</span>')
+    log = r["log"]
+    svg, table = "", f'<div class="aqm-log">{log}</div>' if isinstance(log, str) and log else ""
+    if isinstance(log, list) and log:
+        units = data.units
+        ivs = [Interval(log[i], log[i + 1], html.unescape(units[log[i + 2]][0]))
+               for i in range(0, len(log), 3)]
+        colours = {html.unescape(u[0]): u[2] for u in units}
+        svg = strip_log_svg(ivs, colours, total_depth_m=r["total_depth_m"],
+                            reached_aquifer=bool(r["reached"]),
+                            title=f"Log of borehole {html.unescape(r['id_html'])}")
+        rows = "".join(
+            f"<tr><td>{g6(log[i])}–{g6(log[i + 1])} m</td><td>{units[log[i + 2]][1]}"
+            f" [{units[log[i + 2]][0]}]</td><td>{f1(log[i + 1] - log[i])} m</td></tr>"
+            for i in range(0, len(log), 3))
+        table = ('<table class="aqm-ivs"><tr><th>Depth</th><th>Unit</th><th>Thickness</th>'
+                 f"</tr>{rows}</table>")
+    return (f'<div class="aqm-popup"><div class="aqm-popup-title">{r["id_html"]}</div>'
+            f'<div class="aqm-popup-what">{esc(what)}</div>'
+            f'<div class="aqm-popup-body">{svg}<div class="aqm-facts">{"<br>".join(facts)}'
+            f"</div></div>{table}</div>")
+
+
+def hole_tooltip_html(record: list[Any], data: HoleData) -> str:
+    """Tooltip of one hole record: its id and what it proves."""
+    r = dict(zip(HOLE_FIELDS, record, strict=True))
+    return f"<b>{r['id_html']}</b>: {data.categories[r['category']][3]}"
 
 
 # ------------------------------------------------------------------ suggested holes

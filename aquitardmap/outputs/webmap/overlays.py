@@ -5,6 +5,12 @@ image stretched between its corner coordinates sits where the cells are; the cor
 coordinates handed to Leaflet are longitudes/latitudes (EPSG:4326). (An image warped to
 EPSG:4326 instead would be stretched linearly in latitude on a Mercator screen: for a
 40 km tall area at 55° N its middle would sit some 45 m off.)
+
+Each overlay is sized to the screen, not to the grid: at most :data:`MAX_OVERLAY_SIDE_PX`
+pixels on its long side (and at most the cell budget of
+:func:`~aquitardmap.outputs.webmap.build.write_map`). Down-sampling takes the most frequent
+class of a class grid (so every pixel shows a class that is there, in its exact colour) and
+the average of a continuous grid (coloured after averaging); the GeoTIFFs keep every cell.
 """
 
 from __future__ import annotations
@@ -15,7 +21,6 @@ import math
 from dataclasses import dataclass
 
 import matplotlib
-import matplotlib.image
 import numpy as np
 from affine import Affine
 from matplotlib.ticker import MaxNLocator
@@ -29,6 +34,10 @@ from aquitardmap.outputs.webmap.markup import esc
 LONLAT = CRS.from_epsg(4326)
 WEB_MERCATOR = CRS.from_epsg(3857)
 
+#: Long side (pixels) of a grid overlay or the relief at most: about the width of a large
+#: screen, so a regional grid is not carried at full resolution in the page.
+MAX_OVERLAY_SIDE_PX = 2048
+
 #: Small grids are drawn with up to this many image pixels so cell edges stay crisp.
 _OVERSAMPLE_PIXELS = 512 * 512
 _OVERSAMPLE_MAX = 4
@@ -41,7 +50,8 @@ def mercator_target(transform: Affine, width: int, height: int, crs: CRS,
     """Web Mercator raster that covers a grid, and the grid's lon/lat bounds.
 
     The target has about as many cells as the source (oversampled up to 4x per side for
-    small grids, so cell edges stay crisp) and never more than ``max_cells``.
+    small grids, so cell edges stay crisp), never more than ``max_cells`` and never more
+    than :data:`MAX_OVERLAY_SIDE_PX` on its long side.
     Returns (transform, width, height, (west, south, east, north) in degrees).
     """
     xmin = transform.c
@@ -57,6 +67,10 @@ def mercator_target(transform: Affine, width: int, height: int, crs: CRS,
     res = math.sqrt(span_x * span_y / (width * height))
     w = max(1, round(span_x / res))
     h = max(1, round(span_y / res))
+    if max(w, h) > MAX_OVERLAY_SIDE_PX:
+        f = MAX_OVERLAY_SIDE_PX / max(w, h)
+        w, h = max(1, min(MAX_OVERLAY_SIDE_PX, round(w * f))), \
+            max(1, min(MAX_OVERLAY_SIDE_PX, round(h * f)))
     if w * h > max_cells:
         f = math.sqrt(max_cells / (w * h))
         w, h = max(1, math.floor(w * f)), max(1, math.floor(h * f))
@@ -64,7 +78,8 @@ def mercator_target(transform: Affine, width: int, height: int, crs: CRS,
             w, h = (w - 1, h) if w >= h else (w, h - 1)
     else:
         k = int(math.sqrt(min(max_cells, _OVERSAMPLE_PIXELS) / (w * h)))
-        k = min(_OVERSAMPLE_MAX, max(1, k))
+        k = min(_OVERSAMPLE_MAX, MAX_OVERLAY_SIDE_PX // max(w, h), max(1, k))
+        k = max(1, k)
         w, h = w * k, h * k
     dst_transform = Affine(span_x / w, 0.0, mx0, 0.0, -span_y / h, my1)
     return dst_transform, w, h, (west, south, east, north)
@@ -175,10 +190,30 @@ def colourise_classes(values: np.ndarray, style: GridStyle) -> np.ndarray:
     return rgba
 
 
-def png_data_url(rgba: np.ndarray) -> str:
+def png_bytes(rgba: np.ndarray) -> bytes:
+    """PNG of an RGBA uint8 image, exactly its colours: a palette image (one byte a pixel,
+    alpha in the ``tRNS`` chunk, as the PNG specification allows) when it has at most 256
+    colours, as every coloured grid and the relief have; else full RGBA."""
+    from PIL import Image
+
+    rgba = np.ascontiguousarray(rgba, dtype=np.uint8)
+    flat = rgba.reshape(-1, 4).view(np.uint32).ravel()
+    colours, index = np.unique(flat, return_inverse=True)
     buf = io.BytesIO()
-    matplotlib.image.imsave(buf, rgba, format="png")
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+    if len(colours) <= 256:
+        table = colours.view(np.uint8).reshape(-1, 4)
+        img = Image.fromarray(index.reshape(rgba.shape[:2]).astype(np.uint8), mode="P")
+        img.putpalette(table[:, :3].ravel().tolist(), rawmode="RGB")
+        img.save(buf, format="PNG", optimize=True,
+                 transparency=bytes(table[:, 3].tolist()))
+    else:
+        Image.fromarray(rgba, mode="RGBA").save(buf, format="PNG", optimize=True)
+    return buf.getvalue()
+
+
+def png_data_url(rgba: np.ndarray) -> str:
+    """A ``data:`` URL of :func:`png_bytes`."""
+    return "data:image/png;base64," + base64.b64encode(png_bytes(rgba)).decode("ascii")
 
 
 def gradient_css(cmap_name: str, stops: int = 11) -> str:

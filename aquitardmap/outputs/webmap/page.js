@@ -22,6 +22,8 @@ function aqmStart(map, cfg) {
     map.on("resize", fitPanel);
     fitPanel();
   }
+  // The boreholes: drawn here from their compact data (holes.js).
+  if (cfg.holes && cfg.layers.holes) { cfg.layers.holes.layer = aqmHoles.layer(map, cfg.holes); }
 
   function setVisible(id, on) {
     var el = id ? document.getElementById(id) : null;
@@ -87,6 +89,19 @@ function aqmStart(map, cfg) {
       if (window.innerWidth < 700) { fold.click(); }
     }
   }
+
+  // The opening view: the whole study area, beside the layer panel (on the right).
+  function fitExtent() {
+    if (!cfg.extent) { return; }
+    map.invalidateSize({ animate: false });
+    var right = 20;
+    if (panel && !panel.classList.contains("aqm-collapsed")) {
+      right += Math.min(panel.offsetWidth, map.getSize().x / 2);
+    }
+    map.fitBounds(cfg.extent, { paddingTopLeft: [20, 20], paddingBottomRight: [right, 40],
+                                animate: false });
+  }
+  fitExtent();
 
   var checked = panel ? panel.querySelector('input[name="aqm-grid"]:checked') : null;
   showGrid(checked ? parseInt(checked.value, 10) : -1);
@@ -165,7 +180,7 @@ function aqmStart(map, cfg) {
     L.popup({ maxWidth: 360 }).setLatLng(e.latlng).setContent(html + "</div>").openOn(map);
   });
 
-  window.aqm = { map: map, cfg: cfg, showGrid: showGrid, setLayer: setLayer,
+  window.aqm = { map: map, cfg: cfg, showGrid: showGrid, setLayer: setLayer, fit: fitExtent,
                  current: function () { return current; },
                  readyMs: (window.performance && performance.now) ? performance.now() : null };
 }

@@ -389,22 +389,27 @@ class PageScript(MacroElement):
 
     def render(self, **kwargs: Any) -> None:
         map_name = self._parent.get_name()
-        code = (f"{static_text('page.js')}\n"
+        code = (f"{static_text('holes.js')}\n{static_text('page.js')}\n"
                 f"aqmStart({map_name}, {self.config_js});\n")
         self.get_root().script.add_child(RawHtml(code), name=self.get_name())
 
 
 def js_config(*, grids: list[tuple[str, str]], layers: dict[str, tuple[str, str]],
               opacity_pct: int, fit: dict[str, Any] | None,
-              readout: dict[str, Any] | None) -> str:
+              readout: dict[str, Any] | None, extent: list[list[float]] | None = None,
+              holes: dict[str, Any] | None = None) -> str:
     """The config object of ``aqmStart`` as JavaScript source.
 
     Args:
         grids: (folium variable of the overlay, legend id) per grid, in panel order.
-        layers: key -> (folium variable, legend id or "") of the on/off layers.
+        layers: key -> (folium variable, legend id or "") of the on/off layers
+            (``"null"``: the page makes the layer, as for the boreholes).
+        extent: [[south, west], [north, east]] the opening view fits (degrees).
+        holes: the boreholes' compact data (:meth:`features.HoleData.as_config`).
     """
     grid_js = ",".join(f'{{layer:{var},legend:{js_json(legend)}}}' for var, legend in grids)
     layer_js = ",".join(f"{js_json(k)}:{{layer:{var},legend:{js_json(legend)}}}"
                         for k, (var, legend) in layers.items())
     return (f"{{grids:[{grid_js}],layers:{{{layer_js}}},opacity:{int(opacity_pct)},"
-            f"fit:{js_json(fit)},readout:{js_json(readout)}}}")
+            f"fit:{js_json(fit)},readout:{js_json(readout)},extent:{js_json(extent)},"
+            f"holes:{js_json(holes)}}}")

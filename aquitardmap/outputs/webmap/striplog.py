@@ -4,6 +4,11 @@ The column is drawn to depth scale, each interval filled with its unit's colour
 (:func:`aquitardmap.outputs.presentation.unit_colours`), unit codes beside the column, depth ticks
 on the left and, for a hole that stopped before the aquifer, an open base marked "hole
 ends" so nobody reads the bottom of the log as the bottom of the clay.
+
+The page draws the same figure in the browser from each hole's intervals (``holes.js``,
+``aqmStripSvg``), so a popup is built only when it opens; the two are kept equal
+character for character (tests/test_webmap_browser.py). Numbers are written with
+:func:`f1` and :func:`g6`, which JavaScript reproduces exactly.
 """
 
 from __future__ import annotations
@@ -38,6 +43,19 @@ def parse_log(text: str) -> list[Interval]:
             if bottom > top:
                 out.append(Interval(top, bottom, m.group(3)))
     return out
+
+
+def f1(value: float) -> str:
+    """``value`` with one decimal, halves rounded up (``floor(10 v + 0.5) / 10``): the
+    same digits in Python and in JavaScript (``toFixed`` and ``%.1f`` break exact ties
+    differently)."""
+    return f"{math.floor(value * 10 + 0.5) / 10:.1f}"
+
+
+def g6(value: float) -> str:
+    """``value`` as Python's ``%g`` writes it (6 significant digits, exponent outside
+    1e-4..1e6); ``holes.js`` has the same rule."""
+    return f"{value:g}"
 
 
 def _tick_step_m(depth_m: float) -> float:
@@ -77,38 +95,38 @@ def strip_log_svg(intervals: list[Interval], colours: dict[str, str], *,
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="aqm-strip" width="120" '
              f'height="{height_px}" viewBox="0 0 120 {height_px}" role="img">',
              f"<title>{esc(title)}</title>",
-             f'<rect x="{x0}" y="{top_px}" width="{w}" height="{col_h:.1f}" fill="#ffffff" '
-             'stroke="#999" stroke-dasharray="2 2"/>']
+             f'<rect x="{f1(x0)}" y="{f1(top_px)}" width="{f1(w)}" height="{f1(col_h)}" '
+             'fill="#ffffff" stroke="#999" stroke-dasharray="2 2"/>']
     last_label_y = -100.0
     for iv in intervals:
         y0, y1 = y(iv.top_m), y(iv.bottom_m)
-        parts.append(f'<rect x="{x0}" y="{y0:.1f}" width="{w}" height="{max(y1 - y0, 0.5):.1f}"'
-                     f' fill="{unit_colour(colours, iv.unit)}" stroke="#333" '
-                     'stroke-width="0.5"/>')
+        parts.append(f'<rect x="{f1(x0)}" y="{f1(y0)}" width="{f1(w)}" '
+                     f'height="{f1(max(y1 - y0, 0.5))}" fill="{unit_colour(colours, iv.unit)}" '
+                     'stroke="#333" stroke-width="0.5"/>')
         mid = (y0 + y1) / 2 + 3
         if y1 - y0 >= 8 and mid - last_label_y >= 9:
-            parts.append(f'<text x="{x0 + w + 4}" y="{mid:.1f}" font-size="9">'
+            parts.append(f'<text x="{f1(x0 + w + 4)}" y="{f1(mid)}" font-size="9">'
                          f"{esc(iv.unit)}</text>")
             last_label_y = mid
     step = _tick_step_m(depth)
     d = 0.0
     while d <= depth + 1e-9:
         yy = y(d)
-        parts.append(f'<line x1="{x0 - 3}" y1="{yy:.1f}" x2="{x0}" y2="{yy:.1f}" '
+        parts.append(f'<line x1="{f1(x0 - 3)}" y1="{f1(yy)}" x2="{f1(x0)}" y2="{f1(yy)}" '
                      'stroke="#333" stroke-width="0.7"/>')
-        parts.append(f'<text x="{x0 - 5}" y="{yy + 3:.1f}" font-size="8" '
-                     f'text-anchor="end">{d:g} m</text>')
+        parts.append(f'<text x="{f1(x0 - 5)}" y="{f1(yy + 3)}" font-size="8" '
+                     f'text-anchor="end">{g6(d)} m</text>')
         d += step
     base = y(depth)
     if reached_aquifer:
-        parts.append(f'<line x1="{x0}" y1="{base:.1f}" x2="{x0 + w}" y2="{base:.1f}" '
+        parts.append(f'<line x1="{f1(x0)}" y1="{f1(base)}" x2="{f1(x0 + w)}" y2="{f1(base)}" '
                      'stroke="#333" stroke-width="1.2"/>')
     else:
-        zig = " ".join(f"{x0 + i * w / 6:.1f},{base + (2.5 if i % 2 else -2.5):.1f}"
+        zig = " ".join(f"{f1(x0 + i * w / 6)},{f1(base + (2.5 if i % 2 else -2.5))}"
                        for i in range(7))
         parts.append(f'<polyline points="{zig}" fill="none" stroke="#c0392b" '
                      'stroke-width="1.2"/>')
-        parts.append(f'<text x="{x0 + w / 2}" y="{base + 13:.1f}" font-size="8.5" '
+        parts.append(f'<text x="{f1(x0 + w / 2)}" y="{f1(base + 13)}" font-size="8.5" '
                      'fill="#c0392b" text-anchor="middle">hole ends</text>')
     parts.append("</svg>")
     return "".join(parts)
