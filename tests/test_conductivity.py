@@ -420,7 +420,7 @@ def test_unit_using_beyer_and_per_method_comparison_columns():
 
 
 def test_lab_k_that_looks_like_cm_s_in_an_aquitard_gets_a_hint_and_is_used_as_given():
-    from aquitardmap.hydraulics.conductivity import lab_k_magnitude_warnings
+    from aquitardmap.inputs.samples import lab_k_magnitude_warnings
     s = _samples([("A", 5.0, np.nan, np.nan, np.nan, 3e-7, "CLAY"),    # 3e-9 m/s in cm/s
                   ("B", 5.0, np.nan, np.nan, np.nan, 3e-9, "CLAY"),
                   ("C", 1.0, np.nan, np.nan, np.nan, 3e-4, "SAND")])   # cover: plausible

@@ -10,7 +10,8 @@ from shapely.geometry import box
 from aquitardmap.config.settings import KrigingSettings
 from aquitardmap.errors import ProblemList
 from aquitardmap.grid import make_grid, write_raster
-from aquitardmap.hydraulics.heads import krige_head_points, read_head_surface
+from aquitardmap.hydraulics.heads import head_surface, krige_head_points
+from aquitardmap.inputs.heads import read_head_input
 
 CRS_M = CRS.from_epsg(32632)
 GRID = make_grid(box(0, 0, 2000, 2000), 100.0, CRS_M)
@@ -38,8 +39,7 @@ def test_too_few_points_are_refused(tmp_path):
     path = tmp_path / "water_table.csv"
     path.write_text("x,y,head_m\n0,0,50\n100,100,51\n200,0,52\n")
     problems, notes = ProblemList(), []
-    assert read_head_surface(path, "water_table", GRID, KrigingSettings(), problems,
-                             notes) is None
+    assert read_head_input(path, "water_table", GRID, problems, notes) is None
     assert "at least 8" in problems.problems[0].message
 
 
@@ -47,8 +47,7 @@ def test_bad_rows_are_reported_with_line_and_column(tmp_path):
     path = tmp_path / "aquifer_head.csv"
     path.write_text("x,y,head_m\n0,0,50\n100,100,high\n")
     problems, notes = ProblemList(), []
-    assert read_head_surface(path, "aquifer_head", GRID, KrigingSettings(), problems,
-                             notes) is None
+    assert read_head_input(path, "aquifer_head", GRID, problems, notes) is None
     p = problems.problems[0]
     assert (p.file, p.line, p.column) == ("aquifer_head.csv", 3, 3)
 
@@ -58,7 +57,8 @@ def test_grid_input_is_resampled(tmp_path):
     xx, yy = np.meshgrid(xs, ys)
     path = write_raster(tmp_path / "wt.tif", _plane(xx, yy), GRID)
     problems, notes = ProblemList(), []
-    s = read_head_surface(path, "water_table", GRID, KrigingSettings(), problems, notes)
+    s = head_surface(read_head_input(path, "water_table", GRID, problems, notes), GRID,
+                     KrigingSettings())
     assert s.source == "grid" and not problems
     assert np.allclose(s.head_m, _plane(xx, yy), atol=1e-4)
     assert s.as_dict()["min_m"] == pytest.approx(float(_plane(xx, yy).min()), abs=1e-4)

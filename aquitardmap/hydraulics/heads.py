@@ -1,31 +1,21 @@
-"""Hydraulic heads above and below the column, for the vertical gradient.
+"""Head surfaces above and below the column, for the vertical gradient (stage 3).
 
-Two optional inputs, each either a GeoTIFF grid of head (m, the project's elevation datum)
-or a CSV of points ``x, y, head_m`` (project CRS, m):
-
-* ``water_table`` (``[files] water_table``, default ``water_table.csv``): the water table
-  above the column;
-* ``aquifer_head`` (``[files] aquifer_head``, default ``aquifer_head.csv``): the head in the
-  protected aquifer (its potentiometric surface).
-
-A grid is resampled onto the project grid (bilinear). Points are kriged the way the
-thickness surfaces are (:mod:`aquitardmap.geostat.variogram` fit,
-:func:`aquitardmap.geostat.kriging.
-krige_grid`, the project's ``[kriging]`` settings), without the clipping at zero that
-thickness gets. With both inputs the gradient is ``(h_water_table − h_aquifer) / B``
-(:func:`aquitardmap.hydraulics.column.gradient_from_heads`); where either is missing, the stated
-``[hydraulics] vertical_gradient`` applies.
+The head inputs (:mod:`aquitardmap.inputs.heads`, read and checked in stage 1) become
+surfaces on the project grid: a grid as read, points kriged the way the thickness surfaces
+are (:mod:`aquitardmap.geostat.variogram` fit, :func:`aquitardmap.geostat.kriging.krige_grid`,
+the project's ``[kriging]`` settings), without the clipping at zero that thickness gets.
+With both the gradient is ``(h_water_table − h_aquifer) / B``
+(:func:`aquitardmap.hydraulics.column.gradient_from_heads`); where either is missing, the
+stated ``[hydraulics] vertical_gradient`` applies.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from aquitardmap.config.settings import KrigingSettings
-from aquitardmap.errors import Problem, ProblemList
 from aquitardmap.geostat.kriging import krige_grid, merge_coincident
 from aquitardmap.geostat.surfaces import MIN_HOLES_FOR_VARIOGRAM
 from aquitardmap.geostat.variogram import (
@@ -34,11 +24,8 @@ from aquitardmap.geostat.variogram import (
     experimental_variogram,
     fit_variogram,
 )
-from aquitardmap.grid import Grid, resample_to_grid
-from aquitardmap.inputs.tables import read_point_values
-
-HEAD_KEYS = ("water_table", "aquifer_head")
-GRID_SUFFIXES = (".tif", ".tiff")
+from aquitardmap.grid import Grid
+from aquitardmap.inputs.heads import HeadInput
 
 
 @dataclass(frozen=True)
@@ -92,39 +79,13 @@ def krige_head_points(x_m: np.ndarray, y_m: np.ndarray, head_m: np.ndarray, grid
     return res.estimate, model
 
 
-def read_head_surface(path: Path | None, key: str, grid: Grid, settings: KrigingSettings,
-                      problems: ProblemList, notes: list[Problem]) -> HeadSurface | None:
-    """Read one head input (grid or points) onto ``grid``; None when the file is absent.
-
-    Problems (unreadable file, bad rows, too few points) go to ``problems``; a grid that
-    leaves study-area cells without a value is noted (the stated gradient applies there).
-    """
-    if path is None:
-        return None
-    if path.suffix.lower() in GRID_SUFFIXES:
-        try:
-            head = resample_to_grid(path, grid)
-        except Exception as exc:  # noqa: BLE001 - any reader failure is an input problem
-            problems.add(path, 0, 0, f"cannot read the {key} grid: {exc}")
-            return None
-        head = np.where(grid.mask, head, np.nan)
-        missing = int((grid.mask & ~np.isfinite(head)).sum())
-        if missing:
-            notes.append(Problem(path.name, 0, 0, f"the {key} grid gives no value in "
-                                 f"{missing} cell(s) of the study area; the stated "
-                                 "vertical_gradient is used there"))
-        return HeadSurface(key, path.name, "grid", head)
-    warnings = ProblemList()
-    before = len(problems.problems)
-    pts = read_point_values(path, "head_m", problems, warnings)
-    notes.extend(warnings.problems)
-    if len(problems.problems) > before:
-        return None
-    try:
-        head, model = krige_head_points(pts["x"].to_numpy(), pts["y"].to_numpy(),
-                                        pts["head_m"].to_numpy(), grid, settings)
-    except ValueError as exc:
-        problems.add(path, 0, 0, f"{key}: {exc}")
-        return None
-    return HeadSurface(key, path.name, "points", np.where(grid.mask, head, np.nan),
+def head_surface(head: HeadInput, grid: Grid, settings: KrigingSettings) -> HeadSurface:
+    """The head surface of a head input on ``grid``: a grid as read, points kriged
+    (:func:`krige_head_points`) and clipped to the study area."""
+    if head.source == "grid":
+        return HeadSurface(head.key, head.file, "grid", head.head_m)
+    pts = head.points
+    est, model = krige_head_points(pts["x"].to_numpy(), pts["y"].to_numpy(),
+                                   pts["head_m"].to_numpy(), grid, settings)
+    return HeadSurface(head.key, head.file, "points", np.where(grid.mask, est, np.nan),
                        n_points=len(pts), variogram=model)

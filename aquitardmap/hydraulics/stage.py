@@ -27,12 +27,13 @@ from aquitardmap.hydraulics.column import (
     series_resistance_s,
 )
 from aquitardmap.hydraulics.conductivity import unit_conductivity
-from aquitardmap.hydraulics.heads import HEAD_KEYS
+from aquitardmap.hydraulics.heads import HeadSurface, head_surface
 from aquitardmap.hydraulics.piercing import piercing_mask, piercing_table, point_density_per_km2
 from aquitardmap.inputs.hazards import (
     hazard_table,
     removed_depth_grid_m,
 )
+from aquitardmap.inputs.heads import HEAD_KEYS
 from aquitardmap.inputs.load import Inputs
 
 
@@ -60,6 +61,7 @@ class Hydraulics:
     hazards: list[dict] = field(default_factory=list)
     piercing_density_per_km2: np.ndarray | None = None
     piercing: pd.DataFrame | None = None
+    heads: dict[str, HeadSurface] = field(default_factory=dict)
 
 
 def protective_cut_m(project: Project, surfaces: dict[str, Surface],
@@ -142,10 +144,11 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
     gradient = np.where(g.mask, stated, np.nan)
     source = "stated"
     head_drop = None
-    if set(HEAD_KEYS) <= set(inputs.heads):
-        head_drop = inputs.heads["water_table"].head_m - inputs.heads["aquifer_head"].head_m
-        from_heads = gradient_from_heads(inputs.heads["water_table"].head_m,
-                                         inputs.heads["aquifer_head"].head_m,
+    heads = {k: head_surface(v, g, p.kriging) for k, v in inputs.heads.items()}
+    if set(HEAD_KEYS) <= set(heads):
+        head_drop = heads["water_table"].head_m - heads["aquifer_head"].head_m
+        from_heads = gradient_from_heads(heads["water_table"].head_m,
+                                         heads["aquifer_head"].head_m,
                                          np.nansum(thick, axis=0))
         gradient = np.where(np.isfinite(from_heads), from_heads, gradient)
         source = "heads"
@@ -193,5 +196,6 @@ def compute_hydraulics(inputs: Inputs, surfaces: dict[str, Surface]) -> Hydrauli
             hazard_removed_aquitard_m=aq_removed,
             hazards=hazard_rows,
             piercing_density_per_km2=density,
+            heads=heads,
             piercing=piercing_table(used, density, g, p.screening.piercing_flag_per_km2),
         )

@@ -18,13 +18,13 @@ from shapely.ops import unary_union
 from aquitardmap.config.project import PROJECT_FILE, Project, read_project, setting_location
 from aquitardmap.errors import Problem, ProblemList
 from aquitardmap.grid import Grid, make_grid, snapped_bounds
-from aquitardmap.hydraulics.conductivity import lab_k_magnitude_warnings
-from aquitardmap.hydraulics.heads import HEAD_KEYS, HeadSurface, read_head_surface
 from aquitardmap.inputs.columns import column_table
 from aquitardmap.inputs.hazards import (
     read_hazards,
 )
+from aquitardmap.inputs.heads import HEAD_KEYS, HeadInput, read_head_input
 from aquitardmap.inputs.logs import Boreholes
+from aquitardmap.inputs.samples import lab_k_magnitude_warnings
 from aquitardmap.inputs.store import project_boreholes
 
 
@@ -39,7 +39,7 @@ class Inputs:
     grid: Grid
     warnings: list[Problem] = field(default_factory=list)
     hazards: gpd.GeoDataFrame | None = None
-    heads: dict[str, HeadSurface] = field(default_factory=dict)
+    heads: dict[str, HeadInput] = field(default_factory=dict)
 
 
 def same_crs(a, b) -> bool:
@@ -277,10 +277,9 @@ def load_inputs(project_dir: str | Path) -> Inputs:
     hazards = read_hazards(project.file("hazards"), project.crs, problems, notes)
     heads = {}
     for key in HEAD_KEYS:
-        surface = read_head_surface(project.file(key), key, grid, project.kriging, problems,
-                                    notes)
-        if surface is not None:
-            heads[key] = surface
+        head = read_head_input(project.file(key), key, grid, problems, notes)
+        if head is not None:
+            heads[key] = head
     if len(heads) == 1:
         only = next(iter(heads.values()))
         notes.append(Problem(only.file, 0, 0, f"only the {only.key.replace('_', ' ')} is "

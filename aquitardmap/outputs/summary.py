@@ -233,7 +233,7 @@ def _hydraulics_summary(inputs: Inputs, hyd: Hydraulics) -> dict:
         "gradient_source": hyd.gradient_source,
         "gradient": _stats(grad[inside]) if grad.size else None,
         "cells_without_downward_gradient": upward,
-        "heads": {k: v.as_dict() for k, v in inputs.heads.items()},
+        "heads": {k: v.as_dict() for k, v in hyd.heads.items()},
         "hazen_c": h.hazen_c,
         "terzaghi_c": h.terzaghi_c,
         "weathered_crust": {
