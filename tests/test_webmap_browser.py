@@ -1,8 +1,8 @@
 """The planners' map in a real browser: Debian's headless Chromium driven by playwright.
 
-No internet is used. Leaflet (the version folium asks for) is installed from the npm
-registry into a cache folder during the test session (or taken from Debian's
-libjs-leaflet when npm cannot fetch it) and served to the page with ``page.route``;
+No internet is used. Leaflet (the version folium asks for) is the package's own copy
+(``aquitardmap/outputs/webmap/vendor``; else npm's, installed into a cache folder, or
+Debian's libjs-leaflet) and is served to the page with ``page.route``;
 background tiles are answered with a blank grey tile; any other request is refused and
 counted as a failure. Screenshots and the measured size and load time of the demo map go
 to ``test-artifacts/`` (git-ignored).
@@ -38,6 +38,7 @@ from mapdata import (
 )
 from pyproj import Transformer
 
+import aquitardmap
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.webmap import assets as webmap_assets
 from aquitardmap.outputs.webmap.build import write_map
@@ -72,9 +73,14 @@ def _cache_root() -> Path:
 
 @pytest.fixture(scope="session")
 def leaflet_dist() -> Path:
-    """A local ``leaflet/dist`` folder: npm's leaflet@<folium's version> in a cache,
-    installed on first use; else Debian's libjs-leaflet; else the tests are skipped."""
+    """A local ``leaflet/dist`` folder: the package's own copy when it is folium's version;
+    else npm's leaflet@<folium's version> in a cache, installed on first use; else Debian's
+    libjs-leaflet; else the tests are skipped."""
     version = _folium_leaflet_version()
+    shipped = Path(aquitardmap.__file__).parent / "outputs" / "webmap" / "vendor" / "leaflet"
+    if (shipped / "leaflet.css").is_file() and f"Leaflet {version}" in (
+            shipped / "leaflet.js").read_text(encoding="utf-8")[:400]:
+        return shipped
     prefix = _cache_root() / f"npm-leaflet-{version}"
     dist = prefix / "node_modules" / "leaflet" / "dist"
     npm = shutil.which("npm")
