@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from pathlib import Path
+from xml.sax.saxutils import escape
 
 import numpy as np
 import rasterio
@@ -19,6 +20,8 @@ from rasterio.enums import Resampling
 from rasterio.features import geometry_mask
 from rasterio.warp import reproject
 from shapely.geometry.base import BaseGeometry
+
+from aquitardmap.files import write_text_atomically
 
 #: Nodata value of every float GeoTIFF the package writes.
 NODATA = -9999.0
@@ -99,7 +102,8 @@ COG_BLOCK_PX = 256
 
 def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str = "float32",
                  nodata: float | int = NODATA, description: str = "", units: str = "",
-                 colours: dict[int, str] | None = None) -> Path:
+                 colours: dict[int, str] | None = None,
+                 class_names: dict[int, str] | None = None) -> Path:
     """Write one band on ``grid`` as a Cloud-Optimized GeoTIFF; cells outside the mask get
     nodata.
 
@@ -110,7 +114,11 @@ def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str
     ``description`` and ``units`` as metadata: GDAL's COG driver (GDAL ≥ 3.1; the layout
     of the COG specification, cogeo.org). ``colours`` (``{value: "#rrggbb"}``, integer
     bands only) is written as the band's colour table, so a GIS shows classes in the map's
-    colours.
+    colours. ``class_names`` (``{value: words}``, integer bands only) are written as the
+    band's category names in GDAL's auxiliary file ``name.tif.aux.xml`` (GDAL's PAM
+    ``<CategoryNames>``, one ``<Category>`` per value from 0; a GeoTIFF has no tag for
+    them), which GDAL and the GIS built on it read as the class labels; values without a
+    name get an empty one.
     """
     path = Path(path)
     arr = np.asarray(values, dtype=float)
@@ -131,7 +139,25 @@ def write_raster(path: str | Path, values: np.ndarray, grid: Grid, *, dtype: str
             dst.update_tags(1, units=units)
         if colours:
             dst.write_colormap(1, {int(k): _rgba(v) for k, v in colours.items()})
+    if class_names:
+        write_text_atomically(aux_xml_path(path), category_names_xml(class_names))
     return path
+
+
+def aux_xml_path(path: str | Path) -> Path:
+    """GDAL's auxiliary metadata file of a raster: ``name.tif`` -> ``name.tif.aux.xml``."""
+    path = Path(path)
+    return path.with_name(path.name + ".aux.xml")
+
+
+def category_names_xml(class_names: dict[int, str]) -> str:
+    """GDAL PAM XML giving band 1 the category names ``{value: words}`` (values 0 to the
+    largest; a missing value gets an empty name, as GDAL lists categories by value)."""
+    top = max(int(k) for k in class_names)
+    cats = "\n".join(f"      <Category>{escape(class_names.get(v, ''))}</Category>"
+                     for v in range(top + 1))
+    return ("<PAMDataset>\n  <PAMRasterBand band=\"1\">\n    <CategoryNames>\n" + cats
+            + "\n    </CategoryNames>\n  </PAMRasterBand>\n</PAMDataset>\n")
 
 
 def _rgba(colour: str) -> tuple[int, int, int, int]:

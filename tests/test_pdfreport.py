@@ -253,3 +253,30 @@ def test_methods_page_describes_the_method_the_run_used(tmp_path):
     text = _text(write_report(tmp_path))
     assert "Methods and sources" in text and CALIBRATION_HEADING not in text
     assert "Gibbs" not in text and "Journel" not in text
+
+
+@needs_poppler
+def test_long_zone_words_wrap_inside_their_column(demo_run):
+    # The pierced kind has the longest words of the report's tables (its threshold on
+    # page 1, its name in the flagged-areas table); a cell's text must wrap, not run into
+    # the next column or be cut. Read in reading order, the wrapped lines of one cell stay
+    # together (pdftotext without -layout).
+    pdf = demo_run.out_dir / outputs.REPORT
+    n = demo_run.summary["zones"]["count_by_kind"]["pierced"]
+    assert n > 0  # the demo has pierced zones
+    assert "reach the aquifer through the clay" in _text(pdf, 1, layout=False)
+    first = _text(pdf, 1)  # as laid out: the wrapped line stands apart from the count
+    assert "through the clay" in first
+    assert f"the{n}" not in first and f"the {n} clay" not in first
+    rows = 0
+    for page in range(1, _pages(pdf) + 1):
+        if "Flagged areas" not in _text(pdf, page):
+            continue
+        lines = subprocess.run(["pdftotext", "-layout", "-f", str(page), "-l", str(page),
+                                str(pdf), "-"], capture_output=True, text=True,
+                               check=True).stdout.splitlines()
+        for i, line in enumerate(lines[:-1]):
+            if re.match(r"\s*\d+\s+Pierced by many\s", line):  # a table row
+                assert lines[i + 1].split() == ["boreholes"], lines[i:i + 2]
+                rows += 1
+    assert rows == n

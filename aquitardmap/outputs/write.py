@@ -15,12 +15,18 @@ from aquitardmap.geostat.probability import (
     ThicknessProbabilities,
 )
 from aquitardmap.geostat.surfaces import CV_COLUMNS, Surface
-from aquitardmap.grid import write_raster
+from aquitardmap.grid import aux_xml_path, write_raster
 from aquitardmap.hydraulics.stage import Hydraulics
 from aquitardmap.inputs.load import Inputs
 from aquitardmap.outputs import names as outputs
 from aquitardmap.outputs.figures import figure_surfaces, variogram_figure
-from aquitardmap.outputs.presentation import avi_classes
+from aquitardmap.outputs.layerstyles import (
+    HOLE_CATEGORY_COLUMN,
+    holes_qml,
+    write_layer_style,
+    zones_qml,
+)
+from aquitardmap.outputs.presentation import avi_classes, hole_category_of
 from aquitardmap.outputs.report import write_report
 from aquitardmap.outputs.summary import json_ready, write_summary
 from aquitardmap.outputs.webmap.build import write_map
@@ -120,8 +126,9 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         write_raster(folder / outputs.AVI_CLASS, cls, g, dtype="uint8", nodata=0,
                      description="Aquifer Vulnerability Index class (1 extremely high to 5 "
                      "extremely low vulnerability)", units="class",
-                     colours={c.code: c.colour for c in avi_classes()})
-        extra.append(outputs.AVI_CLASS)
+                     colours={c.code: c.colour for c in avi_classes()},
+                     class_names={c.code: c.label for c in avi_classes()})
+        extra.extend([outputs.AVI_CLASS, aux_xml_path(outputs.AVI_CLASS).name])
     # style sidecars: each GeoTIFF opens in a desktop GIS with the map's colours (ranges
     # from the values as written, float32)
     values_of = {name: np.where(g.mask, np.asarray(arr, np.float32), np.nan)
@@ -135,12 +142,22 @@ def write_outputs(folder: Path, inputs: Inputs, surfaces: dict[str, Surface],
         hyd.piercing.to_csv(folder / outputs.PIERCING_BOREHOLES, index=False,
                             float_format="%.6g")
         extra.append(outputs.PIERCING_BOREHOLES)
+    # each GeoPackage layer carries its default style (the map's colours); the folder is
+    # staged, so a failed write leaves no half run
     zones.to_file(folder / outputs.ZONES, layer=outputs.ZONES_LAYER, driver="GPKG")
+    write_layer_style(folder / outputs.ZONES, outputs.ZONES_LAYER,
+                      zones_qml(json_ready(summary)), style_name="aquitardmap zones",
+                      description="zones by kind and tier, as on the map")
     bh = boreholes.copy()
+    bh[HOLE_CATEGORY_COLUMN] = [hole_category_of(r) for r in
+                                bh.drop(columns="geometry").to_dict("records")]
     for col in bh.columns:
         if bh[col].dtype == object and col != "geometry":
             bh[col] = bh[col].astype(str)
     bh.to_file(folder / outputs.BOREHOLES, layer=outputs.BOREHOLES_LAYER, driver="GPKG")
+    write_layer_style(folder / outputs.BOREHOLES, outputs.BOREHOLES_LAYER, holes_qml(),
+                      style_name="aquitardmap boreholes",
+                      description="boreholes by what they prove, as on the map")
     names = sorted([*grids, *extra, outputs.ZONES, outputs.BOREHOLES, outputs.SUMMARY, outputs.MAP,
                     outputs.REPORT])
     summary["outputs"] = names

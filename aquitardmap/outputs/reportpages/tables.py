@@ -18,7 +18,7 @@ from aquitardmap.outputs.formatting import (
     fmt_years,
     section,
 )
-from aquitardmap.outputs.reportpages.frame import Flow, Pages, plain_text
+from aquitardmap.outputs.reportpages.frame import Flow, Pages, plain_text, wrap_text
 from aquitardmap.outputs.runfolder import project_crs, read_layer
 from aquitardmap.outputs.wording import (
     probability_method_notes,
@@ -30,6 +30,24 @@ from aquitardmap.outputs.wording import (
 from aquitardmap.screening.zones import TIERED_KINDS, ZONE_KINDS, ZONE_TIERS
 
 ZONE_TABLE_ROWS_PER_PAGE = 34
+#: Characters a line of the zone table's kind column holds (0.13 of the text width at
+#: 7.5 pt); a longer kind ("Pierced by many boreholes") wraps onto a second line.
+ZONE_KIND_WRAP_CHARS = 15
+
+
+def _chunks_by_lines(rows: list[list[str]], kind_chars: int) -> list[list[list[str]]]:
+    """Rows of the zone table in pages of at most :data:`ZONE_TABLE_ROWS_PER_PAGE` lines
+    (a row whose kind wraps takes its lines)."""
+    chunks: list[list[list[str]]] = []
+    used = ZONE_TABLE_ROWS_PER_PAGE
+    for row in rows:
+        n = wrap_text(row[1], kind_chars).count("\n") + 1
+        if used + n > ZONE_TABLE_ROWS_PER_PAGE:
+            chunks.append([])
+            used = 0
+        chunks[-1].append(row)
+        used += n
+    return chunks
 
 #: Methods of every run; the probability method of the run follows them
 #: (:func:`aquitardmap.outputs.wording.probability_method_notes`).
@@ -97,10 +115,10 @@ def zone_pages(pages: Pages, run_dir: Path) -> None:
                          else str(int(n_support))])
     header = ["#", "Kind", "Tier", "Area", "Clay, mean (m)", "least (m)", "SD (m)", "Chance",
               "highest", "Travel time", "Holes", "Proving"]
-    widths = [0.04, 0.11, 0.075, 0.085, 0.125, 0.075, 0.065, 0.075, 0.07, 0.12, 0.065,
-              0.09]
-    chunks = [rows[i:i + ZONE_TABLE_ROWS_PER_PAGE]
-              for i in range(0, len(rows), ZONE_TABLE_ROWS_PER_PAGE)] or [[]]
+    widths = [0.04, 0.13, 0.075, 0.085, 0.125, 0.075, 0.065, 0.075, 0.07, 0.11, 0.065,
+              0.085]
+    wrap = [0, ZONE_KIND_WRAP_CHARS] + [0] * (len(header) - 2)
+    chunks = _chunks_by_lines(rows, ZONE_KIND_WRAP_CHARS) or [[]]
     for k, chunk in enumerate(chunks):
         fig = pages.new("Flagged areas" + (" (continued)" if k else ""))
         if k == 0:
@@ -119,7 +137,7 @@ def zone_pages(pages: Pages, run_dir: Path) -> None:
             intro_flow.para(intro, size=8, width=120)
         flow = Flow(fig, intro_flow.y if k == 0 else 0.895)
         if chunk:
-            flow.table(chunk, header, widths, fontsize=7.5)
+            flow.table(chunk, header, widths, fontsize=7.5, wrap=wrap)
         else:
             flow.para("No zones were flagged in this run.", size=10)
 

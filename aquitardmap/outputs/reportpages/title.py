@@ -16,6 +16,10 @@ from aquitardmap.outputs.wording import (
 )
 from aquitardmap.screening.zones import ZONE_KINDS, ZONE_TIERS
 
+#: Characters a line of the zone-kind column of page 1 holds (0.64 of the text width at
+#: 8.5 pt).
+KIND_WRAP_CHARS = 64
+
 
 def title_page(pages: Pages) -> None:
     """The first page: the job, the data used, thresholds and results, the caution."""
@@ -68,8 +72,9 @@ def title_page(pages: Pages) -> None:
             counts_t = n_t.get(k) if isinstance(n_t.get(k), dict) else {}
             rows += [[f"    {zone_tier_label(s, k, tier)}", str(counts_t.get(tier, "n/a")),
                       fmt_area(finite_float(area_t[k].get(tier)))] for tier in ZONE_TIERS]
+    # long kind words (the pierced threshold) wrap inside their column
     flow.table(rows, ["Flagged zone kind (threshold) and tier", "Zones", "Area"],
-               [0.64, 0.12, 0.24], fontsize=8.5)
+               [0.64, 0.12, 0.24], fontsize=8.5, wrap=[KIND_WRAP_CHARS, 0, 0])
     if zone_tiers_note(s):
         flow.para(zone_tiers_note(s), width=110)
     thick = section(s, "aquitard_thickness_m")
