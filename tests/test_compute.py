@@ -12,7 +12,9 @@ from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.errors import InputError
 from aquitardmap.geostat.compute import (
     DaskRunner,
+    PoolRunner,
     SerialRunner,
+    available_cores,
     compute_session,
 )
 from aquitardmap.geostat.context import KrigingContext
@@ -66,6 +68,59 @@ def test_dask_tiles_equal_single_process(cluster):
     assert np.isnan(a.estimate[~grid.mask]).all() and np.isfinite(a.estimate[grid.mask]).all()
 
 
+def test_pool_tiles_equal_single_process():
+    """Worker processes compute the same function on the same data: bit for bit the numbers
+    of one process (what a one-core run gives)."""
+    x, y, z, grid, m = _problem(seed=3)
+    single = KrigingContext(SerialRunner(tile_cells=1024))
+    a = krige_grid(x, y, z, m, grid, max_neighbours=16, context=single)
+    pa = krige_points(x, y, z, m, x[::3] + 13.0, y[::3], max_neighbours=16, context=single)
+    pool = PoolRunner(workers=2, tile_cells=1024)
+    try:
+        b = krige_grid(x, y, z, m, grid, max_neighbours=16, context=KrigingContext(pool))
+        pb = krige_points(x, y, z, m, x[::3] + 13.0, y[::3], max_neighbours=16,
+                          context=KrigingContext(pool))
+        assert pool._pool is not None  # several tiles: the work went to the workers
+    finally:
+        pool.close()
+    assert np.array_equal(a.estimate, b.estimate, equal_nan=True)
+    assert np.array_equal(a.variance, b.variance, equal_nan=True)
+    assert np.array_equal(pa.estimate, pb.estimate)
+    assert np.array_equal(pa.variance, pb.variance)
+
+
+def test_local_mode_is_the_default_and_workers_cap_it():
+    with compute_session(ComputeSettings()) as r:
+        if available_cores() > 1:
+            assert isinstance(r, PoolRunner) and r.workers == available_cores()
+        else:
+            assert isinstance(r, SerialRunner)
+    with compute_session(ComputeSettings(workers=1)) as r:
+        assert isinstance(r, SerialRunner)  # one worker: this process
+    with compute_session(ComputeSettings(workers=3)) as r:
+        assert isinstance(r, PoolRunner) and r.workers == 3
+
+
+def test_pipeline_on_all_cores_equals_one_core(demo_run):
+    import aquitardmap
+
+    root = demo_run.inputs.project.root
+    one = replace(demo_run.inputs.project.compute, mode="local", workers=1, tile_cells=4096)
+    two = replace(one, workers=2)
+    a = aquitardmap.run(root, None, compute=one)
+    b = aquitardmap.run(root, None, compute=two)
+    assert a.summary["compute"]["mode"] == "single" and b.summary["compute"]["workers"] == 2
+    for name, s in a.surfaces.items():
+        assert np.array_equal(s.thickness_m, b.surfaces[name].thickness_m, equal_nan=True)
+        assert np.array_equal(s.sd_m, b.surfaces[name].sd_m, equal_nan=True)
+    assert np.array_equal(a.p_thin, b.p_thin, equal_nan=True)
+    for key, g in a.probabilities.p_below.items():
+        assert np.array_equal(g, b.probabilities.p_below[key], equal_nan=True), key
+    assert list(a.zones.geometry.to_wkb()) == list(b.zones.geometry.to_wkb())
+    assert a.zones.drop(columns="geometry").equals(b.zones.drop(columns="geometry"))
+    assert a.summary["probability"] == b.summary["probability"]
+
+
 def test_tile_size_changes_nothing_but_rounding():
     x, y, z, grid, m = _problem(seed=2)
     a = krige_grid(x, y, z, m, grid, max_neighbours=16,
@@ -91,13 +146,13 @@ def test_pipeline_on_dask_equals_single_process(cluster, demo_run):
     assert np.array_equal(a.p_thin, b.p_thin, equal_nan=True)
     assert b.summary["compute"]["mode"] == "dask"
     assert b.summary["compute"]["workers"] == 2
-    assert demo_run.summary["compute"]["mode"] == "single"
+    assert demo_run.summary["compute"]["mode"] in ("local", "single")
     assert set(demo_run.summary["run"]["stage_seconds"]) == {"inputs", "surfaces",
                                                              "hydraulics", "zones"}
 
 
 def test_single_mode_session_needs_no_dask():
-    with compute_session(ComputeSettings()) as r:
+    with compute_session(ComputeSettings(mode="single")) as r:
         assert r.name == "single" and isinstance(r, SerialRunner)
 
 
@@ -131,5 +186,5 @@ def test_compute_settings_are_read_and_checked(tmp_path):
     with pytest.raises(InputError) as err:
         read_project(_project(tmp_path, '[compute]\nmode = "cloud"\ntile_cells = 5\n'))
     text = "\n".join(str(q) for q in err.value.problems)
-    assert "[compute] mode must be one of single, dask" in text
+    assert "[compute] mode must be one of local, single, dask" in text
     assert "[compute] tile_cells must be >= 1024" in text

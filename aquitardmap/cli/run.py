@@ -46,14 +46,17 @@ def flagged_area_words(zones: dict) -> str:
                    "copy shipped in the package (or the folder in AQUITARDMAP_WEB_ASSETS), no "
                    "background map tiles; the background is a shaded relief of the DEM unless "
                    "[map] background = \"none\".")
-@click.option("--compute", "compute_mode", type=click.Choice(["single", "dask"]), default=None,
-              help="Where the kriging tiles run: this process (single) or a Dask cluster "
+@click.option("--compute", "compute_mode", type=click.Choice(["local", "single", "dask"]),
+              default=None,
+              help="Where the heavy work runs: worker processes on this machine's cores "
+                   "(local, the default), this process only (single) or a Dask cluster "
                    "(dask; needs the 'dask' extra). Default: [compute] mode of project.toml.")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies "
                    "--compute dask). Without it, dask mode starts local worker processes.")
 @click.option("--workers", type=click.IntRange(min=0), default=None,
-              help="Local Dask worker processes when no scheduler is given (0: one per core).")
+              help="Worker processes on this machine (local mode, or dask without --scheduler); "
+                   "0: one per core; 1 in local mode: this process only.")
 @click.option("--refit-variograms", "refit_variograms", is_flag=True,
               help="Use this run's fitted variograms even where they agree with the ones "
                    "kept from the previous run (see [kriging] reuse_variogram_within).")

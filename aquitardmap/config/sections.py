@@ -44,7 +44,7 @@ ZONE_BASES = ("probability", "kriged_thickness")
 #: Ways to make P(window) and P(thin) (``[screening] probability_method``).
 PROBABILITY_METHODS = ("indicator", "latent_gaussian")
 DRILLING_TARGETS = ("thin", "window", "both")
-COMPUTE_MODES = ("single", "dask")
+COMPUTE_MODES = ("local", "single", "dask")
 VARIOGRAM_KEYS = ("model", "nugget", "psill", "range_m", "anisotropy_ratio",
                   "anisotropy_angle_deg", "model2", "psill2", "range2_m")
 DRILLING_KEYS = ("holes", "p_low", "p_high", "target", "min_spacing_m", "priority_grid")

@@ -255,15 +255,17 @@ class ComputeSettings:
     """Where the kriging tiles run (see :mod:`aquitardmap.geostat.compute`).
 
     Attributes:
-        mode: ``"single"`` (default): in the running process; ``"dask"``: on a Dask cluster
-            (optional extra ``aquitardmap[dask]``).
+        mode: ``"local"`` (default): on worker processes on this machine, one per core;
+            ``"single"``: in the running process; ``"dask"``: on a Dask cluster (optional
+            extra ``aquitardmap[dask]``).
         scheduler: address of an existing Dask scheduler, e.g. ``"tcp://10.0.0.5:8786"``;
             empty: start local worker processes.
-        workers: local worker processes when no scheduler is given (0: one per CPU core).
+        workers: worker processes on this machine (local mode, or dask mode without a
+            scheduler); 0: one per CPU core; 1 in local mode: in the running process.
         tile_cells: grid cells per tile, the unit of work and of working memory.
     """
 
-    mode: str = "single"
+    mode: str = "local"
     scheduler: str = ""
     workers: int = 0
     tile_cells: int = 65_536

@@ -1,10 +1,13 @@
-"""Where the heavy work runs: in this process (default) or on a Dask cluster.
+"""Where the heavy work runs: on this machine's cores (default), in this process only, or on
+a Dask cluster.
 
 The kriging cuts its targets into tiles (:mod:`aquitardmap.geostat.kriging`), and every tile is an
 independent task ``fn(shared, item)``: ``shared`` is the same for all tasks of a call (the
 prepared data), ``item`` is the tile. A *runner* maps such tasks and returns the results in
-order. The default runner runs them one after another in this process and needs nothing
-beyond the core dependencies. The Dask runner sends ``shared`` once to every worker and the
+order. The default runner (``mode = "local"``) hands the tasks of a call to a pool of worker
+processes forked from this one, one per core (``workers`` caps them; ``workers = 1`` runs
+them in this process, as ``mode = "single"`` does); it needs nothing beyond the core
+dependencies. The Dask runner sends ``shared`` once to every worker and the
 tiles as tasks, to local worker processes or to an existing cluster's scheduler; it needs the
 optional ``dask`` extra (``pip install "aquitardmap[dask]"``). A task's numbers do not depend
 on where it runs, so both give identical results (given the same package versions on every
@@ -18,6 +21,7 @@ this process.
 from __future__ import annotations
 
 import os
+import pickle
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from typing import Any, Protocol
@@ -53,6 +57,90 @@ class SerialRunner:
             ) -> Iterator[Any]:
         for item in items:
             yield fn(shared, item)
+
+
+# The shared data of the current call, in a worker process: (token, object).
+_WORKER_SHARED: tuple[int, Any] = (-1, None)
+
+
+def _pool_task(token: int, blob: bytes, fn: Callable[[Any, Any], Any], item: Any) -> Any:
+    """One task in a worker process: ``shared`` is unpickled once per call and worker."""
+    global _WORKER_SHARED
+    if _WORKER_SHARED[0] != token:
+        _WORKER_SHARED = (token, None)  # drop the previous call's data first
+        _WORKER_SHARED = (token, pickle.loads(blob))
+    return fn(_WORKER_SHARED[1], item)
+
+
+def _worker_start() -> None:
+    """A worker process computes one task at a time on one core: numerical libraries there
+    use one thread each (the pool is the parallelism)."""
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(1)
+
+
+def available_cores() -> int:
+    """The CPU cores this process may run on (its affinity where the system tells it)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+class PoolRunner:
+    """Runs the tasks of a call on a pool of worker processes on this machine (the default,
+    ``mode = "local"``). Each task is the same function on the same data as in this
+    process, so the numbers are identical to :class:`SerialRunner`'s. A call of one task
+    runs in this process (starting work elsewhere would cost more than it saves); the pool
+    starts at the first call of several tasks and lives until the session ends. Worker
+    processes are forked where the system can (they start in milliseconds and share the
+    parent's memory until they write), else spawned."""
+
+    name = "local"
+
+    def __init__(self, workers: int = 0, tile_cells: int = DEFAULT_TILE_CELLS) -> None:
+        self.workers = int(workers) or available_cores()
+        self.tile_cells = int(tile_cells)
+        self._pool: Any = None
+        self._token = 0
+
+    def _executor(self) -> Any:
+        if self._pool is None:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            methods = multiprocessing.get_all_start_methods()
+            ctx = multiprocessing.get_context("fork" if "fork" in methods else "spawn")
+            self._pool = ProcessPoolExecutor(self.workers, mp_context=ctx,
+                                             initializer=_worker_start)
+        return self._pool
+
+    def map(self, fn: Callable[[Any, Any], Any], shared: Any, items: Sequence[Any]
+            ) -> Iterator[Any]:
+        items = list(items)
+        if self.workers <= 1 or len(items) <= 1:
+            for item in items:
+                yield fn(shared, item)
+            return
+        self._token += 1
+        blob = pickle.dumps(shared, protocol=pickle.HIGHEST_PROTOCOL)
+        pool = self._executor()
+        futures = [pool.submit(_pool_task, self._token, blob, fn, it) for it in items]
+        try:
+            for i, fut in enumerate(futures):
+                yield fut.result()
+                futures[i] = None
+        finally:
+            for f in futures:
+                if f is not None:
+                    f.cancel()
+
+    def close(self) -> None:
+        """Stop the worker processes."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
 
 
 class DaskRunner:
@@ -91,15 +179,23 @@ def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]
     """Open the runner that ``settings`` (``[compute]`` of project.toml) asks for, yield it
     for the ``with`` block, and shut it down afterwards.
 
-    ``mode = "single"``: in this process. ``mode = "dask"``: connect to ``scheduler`` when
-    given, else start ``workers`` local worker processes (0: one per CPU core) with one
-    thread each, and close them at the end.
+    ``mode = "local"`` (default): a pool of ``workers`` processes on this machine (0: one
+    per core; 1: in this process). ``mode = "single"``: in this process. ``mode =
+    "dask"``: connect to ``scheduler`` when given, else start ``workers`` local worker
+    processes (0: one per CPU core) with one thread each, and close them at the end.
 
     Raises:
         InputError: when Dask is asked for but not installed, or the scheduler cannot be
             reached.
     """
     settings = settings or ComputeSettings()
+    if settings.mode == "local" and (settings.workers or available_cores()) > 1:
+        runner = PoolRunner(settings.workers, settings.tile_cells)
+        try:
+            yield runner
+        finally:
+            runner.close()
+        return
     if settings.mode != "dask":
         yield SerialRunner(settings.tile_cells)
         return
@@ -137,6 +233,8 @@ def describe(runner: Runner) -> dict[str, Any]:
     out: dict[str, Any] = {"mode": runner.name, "tile_cells": runner.tile_cells,
                            "kriging_engine": "compiled (numba)" if numba_available()
                            else "numpy"}
+    if isinstance(runner, PoolRunner):
+        out["workers"] = runner.workers
     client = getattr(runner, "client", None)
     if client is not None:
         info = client.scheduler_info()
