@@ -11,7 +11,9 @@ from typing import Any
 
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure
+from matplotlib.collections import LineCollection
 from matplotlib.lines import Line2D
+from matplotlib.patches import Rectangle
 
 from aquitardmap._version import __version__
 from aquitardmap.outputs import names as outputs
@@ -111,7 +113,13 @@ class Flow:
 
     def table(self, rows: list[list[str]], header: list[str], widths: list[float], *,
               fontsize: float = 7.5, wrap: list[int] | None = None) -> None:
-        """A table as wide as the text, rows as tall as their wrapped lines."""
+        """A table as wide as the text, rows as tall as their wrapped lines.
+
+        Drawn as one text per cell, one collection of rules and one header band (not with
+        ``matplotlib.table``, whose per-cell layout made a long zone table cost most of a
+        regional run's outputs stage); columns take ``widths`` (fractions of the text
+        width, scaled to fill it).
+        """
         if wrap:
             rows = [[wrap_text(c, w) if w else c for c, w in zip(r, wrap, strict=True)]
                     for r in rows]
@@ -121,20 +129,30 @@ class Flow:
         pad = self._line_h(fontsize, 0.45)
         heights = [n * line_h + pad for n in lines]
         total = sum(heights)
-        ax = self.fig.add_axes((self.LEFT, self.y - total, self.WIDTH, total))
-        ax.axis("off")
-        tab = ax.table(cellText=body, colLabels=header, colWidths=widths, bbox=(0, 0, 1, 1),
-                       cellLoc="left", colLoc="left")
-        tab.auto_set_font_size(False)
-        tab.set_fontsize(fontsize)
-        for (r, _c), cell in tab.get_celld().items():
-            cell.set_height(heights[r] / total)
-            cell.set_edgecolor("#bbbbbb")
-            cell.set_linewidth(0.4)
-            cell.PAD = 0.02
-            if r == 0:
-                cell.set_facecolor("#e8ecef")
-                cell.set_text_props(weight="bold")
+        scale = self.WIDTH / sum(widths)
+        xs = [self.LEFT]
+        for w in widths:
+            xs.append(xs[-1] + w * scale)
+        top = self.y
+        edges = [top]
+        for h in heights:
+            edges.append(edges[-1] - h)
+        self.fig.add_artist(Rectangle((xs[0], edges[1]), xs[-1] - xs[0], heights[0],
+                                      facecolor="#e8ecef", edgecolor="none", zorder=0,
+                                      transform=self.fig.transFigure))
+        rules = [[(xs[0], e), (xs[-1], e)] for e in edges]
+        rules += [[(x, edges[0]), (x, edges[-1])] for x in xs]
+        self.fig.add_artist(LineCollection(rules, colors="#bbbbbb", linewidths=0.4,
+                                           transform=self.fig.transFigure))
+        inset = 0.02 * min(w * scale for w in widths)
+        for r, cells in enumerate([header, *body]):
+            y = edges[r] - pad / 2  # the text's first line starts half the padding down
+            for c, text in enumerate(cells):
+                if str(text) == "":
+                    continue
+                self.fig.text(xs[c] + max(inset, 0.004), y, str(text), fontsize=fontsize,
+                              va="top", ha="left", linespacing=1.3,
+                              weight="bold" if r == 0 else "normal")
         self.y -= total + self._line_h(fontsize, 0.9)
 
 
