@@ -10,8 +10,8 @@ from pathlib import Path
 from typing import Any
 
 from matplotlib.backends.backend_pdf import PdfPages
-from matplotlib.figure import Figure
 from matplotlib.collections import LineCollection
+from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Rectangle
 
