@@ -57,6 +57,7 @@ from scipy.spatial import cKDTree
 from aquitardmap.config.settings import ScreeningThresholds
 from aquitardmap.geostat.context import DEFAULT_CONTEXT, KrigingContext
 from aquitardmap.geostat.kriging import krige_points, merge_coincident
+from aquitardmap.geostat.localkrige import numba_available
 from aquitardmap.geostat.variogram import (
     VariogramModel,
     default_lags,
@@ -220,75 +221,231 @@ def continuity_segments(data: IndicatorData, *, max_length_m: float, corridor_m:
 
 
 def local_direction_deg(segments: np.ndarray, xt_m: np.ndarray, yt_m: np.ndarray,
-                        reach_m: float) -> np.ndarray:
+                        reach_m: float, *, accelerate: bool | None = None) -> np.ndarray:
     """Direction (degrees counter-clockwise from east, in [0, 180)) of the segment nearest
     each target within ``reach_m`` of it; NaN where no segment is that near (on a tie, the
     earlier segment).
 
-    The targets are sorted once into square buckets of about ``reach_m``; each segment then
-    looks only at the buckets its box (the segment's bounding box grown by ``reach_m``)
-    touches, so the cost follows the cells near the chains, not the whole grid.
+    A segment is tried at the targets inside its bounding box grown by ``reach_m`` (bounds
+    included); its distance to a target is that to the nearest point ``s`` of the segment,
+    ``s`` the projection clipped to [0, 1]. The targets are sorted once into square buckets
+    (:class:`_TargetBuckets`), so each segment looks only at the rows of buckets its box
+    covers. With numba (``accelerate``; default: when
+    :func:`aquitardmap.geostat.localkrige.numba_available`) a compiled loop does the
+    segments one after another, otherwise numpy does each segment's targets at once: the
+    same operations in the same order, so the same numbers.
     """
     tx, ty = np.asarray(xt_m, float).ravel(), np.asarray(yt_m, float).ravel()
     angle = np.full(tx.size, np.nan)
-    best = np.full(tx.size, np.inf)
     segs = np.asarray(segments, float).reshape(-1, 4)
     if tx.size == 0 or segs.shape[0] == 0:
         return angle
+    boxes, directions = _segment_boxes(segs, tx, ty, reach_m)
+    if accelerate is None:
+        accelerate = numba_available()
+    elif accelerate and not numba_available():
+        raise RuntimeError("the compiled loop is not available (numba missing or disabled)")
     buckets = _TargetBuckets(tx, ty, reach_m)
-    for x0, y0, x1, y1 in segs.tolist():
-        dx, dy = x1 - x0, y1 - y0
-        lo_x, hi_x = min(x0, x1) - reach_m, max(x0, x1) + reach_m
-        lo_y, hi_y = min(y0, y1) - reach_m, max(y0, y1) + reach_m
-        box = buckets.within(lo_x, hi_x, lo_y, hi_y)
-        if box.size == 0:
-            continue
-        s = np.clip(((tx[box] - x0) * dx + (ty[box] - y0) * dy) / (dx * dx + dy * dy), 0, 1)
-        d = np.hypot(tx[box] - x0 - s * dx, ty[box] - y0 - s * dy)
-        better = (d < best[box]) & (d <= reach_m)
-        best[box[better]] = d[better]
-        angle[box[better]] = math.degrees(math.atan2(dy, dx)) % 180.0
+    if accelerate:
+        near = np.full(buckets.order.size, np.nan)
+        _compiled_directions()(buckets.x, buckets.y, buckets.start, buckets.nx, buckets.ny,
+                               buckets.x0, buckets.y0, buckets.side,
+                               np.ascontiguousarray(segs), boxes,
+                               directions, float(reach_m), near)
+    else:
+        near = _directions_numpy(buckets, segs, boxes, directions, float(reach_m))
+    angle[buckets.order] = near
     return angle
 
 
+def _segment_boxes(segs: np.ndarray, tx: np.ndarray, ty: np.ndarray, reach_m: float
+                   ) -> tuple[np.ndarray, np.ndarray]:
+    """Each segment's bounding box grown by ``reach_m`` (n, 4: lo_x, hi_x, lo_y, hi_y) and
+    direction (degrees counter-clockwise from east, in [0, 180)), in Python floats.
+
+    A box that cannot be placed among buckets of the targets (NaN or infinite, e.g. an
+    infinite ``reach_m``) raises ``ValueError`` (NaN) or ``OverflowError`` (infinite), as
+    the bucket search of the former version of :func:`local_direction_deg` did: its
+    buckets' origin and side are computed here for that test only.
+    """
+    finite = np.isfinite(tx) & np.isfinite(ty)
+    any_finite = bool(finite.any())
+    ox = float(tx[finite].min()) if any_finite else 0.0
+    oy = float(ty[finite].min()) if any_finite else 0.0
+    span = max(float(np.ptp(tx[finite])) if any_finite else 0.0,
+               float(np.ptp(ty[finite])) if any_finite else 0.0, 1.0)
+    side = max(float(reach_m), span / max(2.0 * math.sqrt(tx.size), 1.0), 1e-6)
+    boxes = []
+    directions = []
+    for x0, y0, x1, y1 in segs.tolist():
+        lo_x, hi_x = min(x0, x1) - reach_m, max(x0, x1) + reach_m
+        lo_y, hi_y = min(y0, y1) - reach_m, max(y0, y1) + reach_m
+        for v, o in ((lo_x, ox), (hi_x, ox), (lo_y, oy), (hi_y, oy)):
+            math.floor((v - o) / side)  # raises on NaN or infinity
+        boxes.append((float(lo_x), float(hi_x), float(lo_y), float(hi_y)))
+        directions.append(math.degrees(math.atan2(y1 - y0, x1 - x0)) % 180.0)
+    return np.array(boxes, dtype=float).reshape(-1, 4), np.array(directions, dtype=float)
+
+
 class _TargetBuckets:
-    """Targets sorted into square buckets (row by row) for box queries."""
+    """The targets with finite coordinates sorted into square buckets, row by row (x, y:
+    their coordinates in that order; ``order``: their indices among all targets; ``start``:
+    where each bucket begins, with one more entry for the end).
 
-    def __init__(self, x_m: np.ndarray, y_m: np.ndarray, side_m: float) -> None:
-        self.x, self.y = x_m, y_m
-        finite = np.isfinite(x_m) & np.isfinite(y_m)
-        self.x0 = float(x_m[finite].min()) if finite.any() else 0.0
-        self.y0 = float(y_m[finite].min()) if finite.any() else 0.0
-        span = max(float(np.ptp(x_m[finite])) if finite.any() else 0.0,
-                   float(np.ptp(y_m[finite])) if finite.any() else 0.0, 1.0)
-        # about reach-sized buckets, but never more than about 4 per target
-        self.side = max(float(side_m), span / max(2.0 * math.sqrt(x_m.size), 1.0), 1e-6)
-        ix = np.where(finite, np.floor((x_m - self.x0) / self.side), 0).astype(np.int64)
-        iy = np.where(finite, np.floor((y_m - self.y0) / self.side), 0).astype(np.int64)
-        self.nx, self.ny = int(ix.max()) + 1, int(iy.max()) + 1
+    A target's bucket is ``floor((x − x0) / side)`` (and the same in y); that is monotone in
+    x, so every target inside a box lies in the buckets of the box's corners and between
+    them (:meth:`columns`). The side is a quarter of ``reach_m`` (a segment's box is then
+    read with little waste), but never so small that there would be more than about four
+    buckets per target.
+    """
+
+    def __init__(self, x_m: np.ndarray, y_m: np.ndarray, reach_m: float) -> None:
+        finite = np.flatnonzero(np.isfinite(x_m) & np.isfinite(y_m))
+        x, y = x_m[finite], y_m[finite]
+        self.x0 = float(x.min()) if x.size else 0.0
+        self.y0 = float(y.min()) if y.size else 0.0
+        span = max(float(np.ptp(x)) if x.size else 0.0, float(np.ptp(y)) if y.size else 0.0,
+                   1.0)
+        reach = float(reach_m) if math.isfinite(float(reach_m)) else 0.0
+        self.side = max(0.25 * reach, span / max(2.0 * math.sqrt(max(x.size, 1)), 1.0), 1e-6)
+        ix = np.floor((x - self.x0) / self.side).astype(np.int64)
+        iy = np.floor((y - self.y0) / self.side).astype(np.int64)
+        self.nx = int(ix.max()) + 1 if x.size else 1
+        self.ny = int(iy.max()) + 1 if x.size else 1
         key = iy * self.nx + ix
-        self.order = np.argsort(key, kind="stable")
-        self.start = np.searchsorted(key[self.order], np.arange(self.nx * self.ny + 1))
-        self.finite = finite
+        sort = np.argsort(key, kind="stable")
+        self.start = np.searchsorted(key[sort], np.arange(self.nx * self.ny + 1)
+                                     ).astype(np.int64)
+        self.order = finite[sort]
+        self.x, self.y = np.ascontiguousarray(x[sort]), np.ascontiguousarray(y[sort])
 
-    def within(self, lo_x: float, hi_x: float, lo_y: float, hi_y: float) -> np.ndarray:
-        """Indices (ascending) of the targets with lo_x ≤ x ≤ hi_x and lo_y ≤ y ≤ hi_y."""
-        c0 = max(int(math.floor((lo_x - self.x0) / self.side)) - 1, 0)
-        c1 = min(int(math.floor((hi_x - self.x0) / self.side)) + 1, self.nx - 1)
-        r0 = max(int(math.floor((lo_y - self.y0) / self.side)) - 1, 0)
-        r1 = min(int(math.floor((hi_y - self.y0) / self.side)) + 1, self.ny - 1)
+    def columns(self, lo: float, hi: float, origin: float, n: int) -> tuple[int, int]:
+        """First and last bucket (columns or rows, ``n`` of them) that the range lo..hi
+        touches (first > last when none)."""
+        a = math.floor(min(max((lo - origin) / self.side, -1.0), float(n)))
+        b = math.floor(min(max((hi - origin) / self.side, -1.0), float(n)))
+        return max(a, 0), min(b, n - 1)
+
+
+def _directions_numpy(buckets: _TargetBuckets, segs: np.ndarray, boxes: np.ndarray,
+                      directions: np.ndarray, reach_m: float) -> np.ndarray:
+    """:func:`local_direction_deg` at the bucketed targets (in bucket order), each segment's
+    targets at once with numpy."""
+    near = np.full(buckets.order.size, np.nan)
+    best = np.full(buckets.order.size, np.inf)
+    bx, by, start, nx = buckets.x, buckets.y, buckets.start, buckets.nx
+    for (x0, y0, x1, y1), (lo_x, hi_x, lo_y, hi_y), a in zip(
+            segs.tolist(), boxes.tolist(), directions.tolist(), strict=True):
+        c0, c1 = buckets.columns(lo_x, hi_x, buckets.x0, nx)
+        r0, r1 = buckets.columns(lo_y, hi_y, buckets.y0, buckets.ny)
         if c0 > c1 or r0 > r1:
-            return np.empty(0, dtype=np.int64)
-        rows = np.arange(r0, r1 + 1) * self.nx
-        lo, hi = self.start[rows + c0], self.start[rows + c1 + 1]
+            continue
+        rows = np.arange(r0, r1 + 1) * nx
+        lo, hi = start[rows + c0], start[rows + c1 + 1]
         n = hi - lo
-        if n.sum() == 0:
-            return np.empty(0, dtype=np.int64)
-        idx = self.order[np.repeat(lo - np.cumsum(np.r_[0, n[:-1]]), n)
-                         + np.arange(int(n.sum()))]
-        tx, ty = self.x[idx], self.y[idx]
-        inside = (tx >= lo_x) & (tx <= hi_x) & (ty >= lo_y) & (ty <= hi_y)
-        return np.sort(idx[inside])
+        total = int(n.sum())
+        if total == 0:
+            continue
+        box = np.repeat(lo - np.cumsum(np.r_[0, n[:-1]]), n) + np.arange(total)
+        px, py = bx[box], by[box]
+        inside = (px >= lo_x) & (px <= hi_x) & (py >= lo_y) & (py <= hi_y)
+        box, px, py = box[inside], px[inside], py[inside]
+        if box.size == 0:
+            continue
+        dx, dy = x1 - x0, y1 - y0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            s = np.clip(((px - x0) * dx + (py - y0) * dy) / (dx * dx + dy * dy), 0, 1)
+        d = np.hypot(px - x0 - s * dx, py - y0 - s * dy)
+        better = (d < best[box]) & (d <= reach_m)
+        best[box[better]] = d[better]
+        near[box[better]] = a
+    return near
+
+
+_DIRECTIONS_NB = None
+
+
+def _compiled_directions():
+    """:func:`_directions_loop` compiled with numba (on first use; numba caches the machine
+    code on disk), as :func:`aquitardmap.geostat.kernel.compiled_kernel` does."""
+    global _DIRECTIONS_NB
+    if _DIRECTIONS_NB is None:
+        import numba
+
+        _DIRECTIONS_NB = numba.njit(cache=True, nogil=True, error_model="numpy")(
+            _directions_loop)
+    return _DIRECTIONS_NB
+
+
+#: Relative margin of the squared-distance test that lets the compiled loop skip the exact
+#: distance of targets that are clearly too far (:func:`_directions_loop`).
+_SKIP_MARGIN = 1e-9
+#: Below this (m) a distance is not used for that test (squares could underflow).
+_SKIP_FLOOR_M = 1e-100
+
+
+def _directions_loop(bx, by, start, nx, ny, x0b, y0b, side, segs, boxes, directions,
+                     reach, near):  # pragma: no cover - compiled
+    """:func:`_directions_numpy` as one loop (numba subset of Python): segments in order,
+    the targets of each box's rows of buckets one by one, the same operations.
+
+    The exact distance ``hypot`` is skipped where the squared distance ``e²`` already
+    exceeds ``(1 + 1e-9)`` times the square of the reach, or of the target's best distance
+    so far: ``e²`` is within a few units in the last place of the true square and hypot
+    within one of the true distance, so that distance would be over the reach, or not
+    below the best, anyway.
+    """
+    n = bx.shape[0]
+    best = np.full(n, np.inf)
+    if reach >= _SKIP_FLOOR_M:
+        reach_lim = reach * reach * (1.0 + _SKIP_MARGIN)
+    elif reach < 0.0:
+        reach_lim = -1.0  # every distance is over it
+    else:
+        reach_lim = np.inf  # (0 ≤ reach < floor: never skip)
+    lim = np.full(n, reach_lim)
+    fn_x = float(nx)
+    fn_y = float(ny)
+    for k in range(segs.shape[0]):
+        lo_x = boxes[k, 0]
+        hi_x = boxes[k, 1]
+        lo_y = boxes[k, 2]
+        hi_y = boxes[k, 3]
+        c0 = max(int(np.floor(min(max((lo_x - x0b) / side, -1.0), fn_x))), 0)
+        c1 = min(int(np.floor(min(max((hi_x - x0b) / side, -1.0), fn_x))), nx - 1)
+        r0 = max(int(np.floor(min(max((lo_y - y0b) / side, -1.0), fn_y))), 0)
+        r1 = min(int(np.floor(min(max((hi_y - y0b) / side, -1.0), fn_y))), ny - 1)
+        if c0 > c1 or r0 > r1:
+            continue
+        x0 = segs[k, 0]
+        y0 = segs[k, 1]
+        dx = segs[k, 2] - x0
+        dy = segs[k, 3] - y0
+        den = dx * dx + dy * dy
+        a = directions[k]
+        for r in range(r0, r1 + 1):
+            for i in range(start[r * nx + c0], start[r * nx + c1 + 1]):
+                px = bx[i]
+                py = by[i]
+                if px >= lo_x and px <= hi_x and py >= lo_y and py <= hi_y:
+                    s = ((px - x0) * dx + (py - y0) * dy) / den
+                    if s < 0.0:  # np.clip(s, 0, 1): NaN stays NaN
+                        s = 0.0
+                    elif s > 1.0:
+                        s = 1.0
+                    ex = px - x0 - s * dx
+                    ey = py - y0 - s * dy
+                    if ex * ex + ey * ey > lim[i]:
+                        continue
+                    d = np.hypot(ex, ey)
+                    if d < best[i] and d <= reach:
+                        best[i] = d
+                        near[i] = a
+                        if d >= _SKIP_FLOOR_M:
+                            lim[i] = min(reach_lim, d * d * (1.0 + _SKIP_MARGIN))
+                        elif d == 0.0:
+                            lim[i] = 0.0  # any e² > 0 gives a distance > 0, not below
+    return 0
 
 
 def krige_indicator(data: IndicatorData, model: VariogramModel, xt_m: np.ndarray,

@@ -181,6 +181,61 @@ def stable_subset(x_m: np.ndarray, y_m: np.ndarray, n: int, *, seed: int = 0) ->
     return np.sort(np.argsort(key, kind="stable")[:n])
 
 
+def lag_classes(d: np.ndarray, edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Lag class of the distances ``d`` that fall in a class, and their positions in ``d``
+    (ascending): the class is ``np.digitize(d, edges) - 1`` (``edges[c] <= d <
+    edges[c + 1]``), kept when it is one of the ``len(edges) - 1`` classes.
+
+    For strictly increasing edges from 0 (those of :func:`experimental_variogram`) only the
+    distances in ``[edges[0], edges[-1])`` are classed, and each by ``floor(d / width)``
+    corrected against ``edges`` until ``edges[c] <= d < edges[c + 1]``: exactly the class
+    of ``np.digitize``, without a binary search per distance. Other edges go to
+    ``np.digitize`` itself.
+    """
+    d = np.asarray(d, dtype=float)
+    edges = np.asarray(edges, dtype=float)
+    n = edges.size - 1
+    with np.errstate(over="ignore"):
+        scale = n / edges[-1] if n >= 1 and edges[-1] > 0 else np.inf
+    if not (n >= 1 and edges[0] == 0.0 and np.isfinite(scale) and np.all(np.diff(edges) > 0)):
+        which = np.digitize(d, edges) - 1
+        keep = np.flatnonzero((which >= 0) & (which < n))
+        return which[keep], keep
+    keep = np.flatnonzero(d < edges[-1])
+    dk = d[keep]
+    if dk.size and not dk.min() >= 0.0:  # (distances are not negative, but the rule is)
+        keep = keep[dk >= 0.0]
+        dk = d[keep]
+    # 0 <= dk * scale < about n; a distance within a few units in the last place of an
+    # edge may land one class off, which the two loops put right
+    guess = dk * scale
+    np.minimum(guess, n - 1, out=guess)
+    which = guess.astype(np.intp)
+    while True:
+        low = np.flatnonzero(dk < edges[which])  # (never class 0: edges[0] = 0 <= dk)
+        if low.size == 0:
+            break
+        which[low] -= 1
+    while True:
+        high = np.flatnonzero(dk >= edges[which + 1])  # (never class n - 1: dk < edges[n])
+        if high.size == 0:
+            break
+        which[high] += 1
+    return which, keep
+
+
+def pair_indices(n: int, pairs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Points ``i < j`` of the pairs at positions ``pairs`` of the condensed pair order of
+    ``pdist`` over ``n`` points (that of ``np.triu_indices(n, k=1)``): row ``i`` holds the
+    ``n − 1 − i`` pairs ``(i, i + 1) … (i, n − 1)``, after the rows before it."""
+    pairs = np.asarray(pairs, dtype=np.intp)
+    counts = np.arange(n - 1, -1, -1, dtype=np.intp)
+    i = np.repeat(np.arange(n, dtype=np.intp), counts)[pairs]
+    # j = pairs − (first position of row i) + i + 1
+    offset = np.cumsum(counts) - counts - np.arange(n, dtype=np.intp) - 1
+    return i, pairs - offset[i]
+
+
 def experimental_variogram(x_m: np.ndarray, y_m: np.ndarray, values: np.ndarray, *,
                            n_lags: int = 12, max_lag_m: float | None = None,
                            max_lag_fraction: float = 0.5, seed: int = 0,
@@ -231,14 +286,12 @@ class _Pairs:
         if d.size == 0 or max_lag_m <= 0:
             return cls(n_lags, empty, np.array([]), np.array([]), None)
         edges = np.linspace(0.0, max_lag_m, n_lags + 1)
-        which = np.digitize(d, edges) - 1
-        keep = np.flatnonzero((which >= 0) & (which < n_lags))
+        which, keep = lag_classes(d, edges)
         theta = None
         if directions:
-            i, j = np.triu_indices(x.size, k=1)  # the pair order of pdist
-            i, j = i[keep], j[keep]
+            i, j = pair_indices(x.size, keep)
             theta = np.rad2deg(np.arctan2(y[j] - y[i], x[j] - x[i]))
-        return cls(n_lags, which[keep], d[keep], sq[keep], theta)
+        return cls(n_lags, which, d[keep], sq[keep], theta)
 
     def variogram(self, direction_deg: float | None = None, tolerance_deg: float = 22.5
                   ) -> ExperimentalVariogram:
