@@ -189,13 +189,14 @@ def compute_session(settings: ComputeSettings | None = None) -> Iterator[Runner]
             reached.
     """
     settings = settings or ComputeSettings()
-    if settings.mode == "local" and (settings.workers or available_cores()) > 1:
+    if settings.mode == "local":
         runner = PoolRunner(settings.workers, settings.tile_cells)
-        try:
-            yield runner
-        finally:
-            runner.close()
-        return
+        if runner.workers > 1:
+            try:
+                yield runner
+            finally:
+                runner.close()
+            return
     if settings.mode != "dask":
         yield SerialRunner(settings.tile_cells)
         return
