@@ -133,8 +133,7 @@ class Flow:
         xs = [self.LEFT]
         for w in widths:
             xs.append(xs[-1] + w * scale)
-        top = self.y
-        edges = [top]
+        edges = [self.y]
         for h in heights:
             edges.append(edges[-1] - h)
         self.fig.add_artist(Rectangle((xs[0], edges[1]), xs[-1] - xs[0], heights[0],
@@ -144,13 +143,13 @@ class Flow:
         rules += [[(x, edges[0]), (x, edges[-1])] for x in xs]
         self.fig.add_artist(LineCollection(rules, colors="#bbbbbb", linewidths=0.4,
                                            transform=self.fig.transFigure))
-        inset = 0.02 * min(w * scale for w in widths)
+        inset = max(0.02 * min(w * scale for w in widths), 0.004)
         for r, cells in enumerate([header, *body]):
             y = edges[r] - pad / 2  # the text's first line starts half the padding down
             for c, text in enumerate(cells):
                 if str(text) == "":
                     continue
-                self.fig.text(xs[c] + max(inset, 0.004), y, str(text), fontsize=fontsize,
+                self.fig.text(xs[c] + inset, y, str(text), fontsize=fontsize,
                               va="top", ha="left", linespacing=1.3,
                               weight="bold" if r == 0 else "normal")
         self.y -= total + self._line_h(fontsize, 0.9)
