@@ -13,7 +13,10 @@ project store: the region's holes but ``--added`` of them are the store's first 
 before each repeat) and the least time of each stage is kept. Prints the CPU seconds of this
 process in each stage of 3 and 4 (wall times on a shared machine are noisy) and their
 ratio, the cache counts and the variogram decisions, and, last,
-``whole_run_after_add_over_full=<ratio of the CPU seconds>``. Every run writes its outputs
+``whole_run_after_add_over_full=<ratio of the CPU seconds>``. Every run is on one core
+(``[compute] mode = "single"``), so this process's CPU time is all the work a run does (with
+the default pool of workers their CPU would not be counted); the wall time on all cores is
+``bench_scale.py``'s. Every run writes its outputs
 (map, report and all). Not a test: it never asserts on time.
 
     python benchmarks/bench_rerun.py            # 5,000 holes, cells of 25 m
@@ -31,9 +34,12 @@ from pathlib import Path
 
 import aquitardmap
 from aquitardmap.config.project import read_project
+from aquitardmap.config.settings import ComputeSettings
 from aquitardmap.evaluation.synthetic.region import hold_back_holes, make_synthetic_region
 from aquitardmap.inputs.store import add_files, create_store
 
+#: Every run of this benchmark: all of its work in this process.
+ONE_CORE = ComputeSettings(mode="single")
 STAGES = ("inputs", "surfaces", "hydraulics", "zones", "outputs")
 
 
@@ -42,6 +48,7 @@ def _timed_run(project: Path, out: Path, **kw) -> tuple[dict[str, float], dict]:
     open each stage; ``outputs`` is writing the grids, zones, map and report), and the
     run's summary."""
     marks: list[float] = []
+    kw.setdefault("compute", ONE_CORE)
     result = aquitardmap.run(project, out, progress=lambda *_: marks.append(
         time.process_time()), **kw)
     marks.append(time.process_time())
@@ -78,7 +85,8 @@ def main() -> None:
                                toml.read_text()))
         incoming = hold_back_holes(proj, root / "incoming", a.added, seed=a.seed)
         create_store(read_project(proj))
-        aquitardmap.run(proj, tile_cache=False)  # compile the kernels, warm the file cache
+        # compile the kernels, warm the file cache
+        aquitardmap.run(proj, tile_cache=False, compute=ONE_CORE)
         first, _ = _timed_run(proj, root / "run1")
         t = time.perf_counter()
         add_files(read_project(proj), incoming, note="benchmark")
